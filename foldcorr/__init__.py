@@ -1,0 +1,45 @@
+"""foldcorr: Matthews correlation and R_K for multiclass and multilabel classifiers.
+
+The public API is re-exported here lazily, so that ``import foldcorr`` (and
+the command line's ``--help``) stays fast and does not load pandas or xarray
+until a function that needs them is used.
+"""
+
+from __future__ import annotations
+
+import importlib
+
+from foldcorr._version import __version__
+
+_EXPORTS = {
+    "foldcorr.tally": [
+        "tally", "tally_frame", "confusion_tensor", "validate_tensor", "pool",
+        "ACTUAL", "PREDICTED", "FOLD", "CLASS", "LABEL",
+    ],
+    "foldcorr.metrics": [
+        "rk", "mcc", "ovr_mcc", "decompose", "accuracy", "balanced_accuracy",
+        "cohen_kappa", "recall", "precision", "f1", "macro_f1", "macro_mcc",
+        "support", "predicted_count", "top_confusion",
+    ],
+    "foldcorr.evaluation": ["Evaluation", "evaluate"],
+    "foldcorr.errors": [
+        "FoldcorrError", "InvalidTensorError", "InvalidInputError", "OptionError",
+        "MissingDependencyError", "UndefinedMetricWarning",
+    ],
+}
+_WHERE = {name: module for module, names in _EXPORTS.items() for name in names}
+
+__all__ = ["__version__", *_WHERE]
+
+
+def __getattr__(name: str):
+    module = _WHERE.get(name)
+    if module is None:
+        raise AttributeError(f"module 'foldcorr' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(__all__)

@@ -1,0 +1,75 @@
+"""Writing output files whole or not at all."""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import stat
+import tempfile
+from pathlib import Path
+
+from foldcorr.errors import InvalidInputError
+
+__all__ = ["atomic_target", "write_text"]
+
+
+@contextlib.contextmanager
+def atomic_target(path, *, suffix: str = ""):
+    """Yield a temporary path beside ``path``; rename it onto ``path`` on success.
+
+    A non-regular existing target (a device, a pipe) is yielded as is: it is
+    written directly and never replaced. On any error the temporary file is
+    removed and the target is left as it was.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> out = pathlib.Path(tempfile.mkdtemp()) / "x.txt"
+    >>> with atomic_target(out) as tmp:
+    ...     _ = pathlib.Path(tmp).write_text("done")
+    >>> out.read_text()
+    'done'
+    """
+    target = Path(path)
+    if target.exists() and not stat.S_ISREG(target.stat().st_mode):
+        yield target
+        return
+    folder = target.parent if str(target.parent) else Path(".")
+    if not folder.is_dir():
+        raise InvalidInputError(f"cannot write {str(target)!r}: folder {str(folder)!r} does not exist")
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=suffix or ".tmp", dir=folder)
+    except OSError as exc:
+        raise InvalidInputError(f"cannot write {str(target)!r}: {exc.strerror}") from None
+    os.close(fd)
+    try:
+        yield Path(tmp)
+        mode = target.stat().st_mode & 0o777 if target.exists() else 0o666 & ~_umask()
+        os.chmod(tmp, mode)
+        os.replace(tmp, target)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise
+
+
+def _umask() -> int:
+    current = os.umask(0)
+    os.umask(current)
+    return current
+
+
+def write_text(path, text: str) -> None:
+    """Write ``text`` to ``path`` atomically (see :func:`atomic_target`).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> out = pathlib.Path(tempfile.mkdtemp()) / "report.md"
+    >>> write_text(out, "# hi\\n")
+    >>> out.read_text()
+    '# hi\\n'
+    """
+    with atomic_target(path) as tmp:
+        with open(tmp, "w", encoding="utf-8") as fh:
+            fh.write(text)

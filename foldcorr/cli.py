@@ -1,0 +1,193 @@
+"""The command line: argument parsing and exit codes over the public API.
+
+Exit codes: 0 success; 1 a gate or test condition failed; 2 bad input or
+usage, with one line on stderr and no traceback. Heavy libraries are imported
+only inside the verbs, so ``foldcorr --help`` starts fast.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+
+from foldcorr._version import __version__
+
+__all__ = ["main", "get_parser", "run"]
+
+EXIT_OK, EXIT_FAILED, EXIT_USAGE = 0, 1, 2
+FORMATS = ("text", "json", "markdown")
+
+
+def _top(value: str):
+    if value == "all":
+        return None
+    try:
+        number = int(value)
+    except ValueError:
+        number = -1
+    if number < 1:
+        raise argparse.ArgumentTypeError(f"expected a positive whole number or 'all'; got {value!r}")
+    return number
+
+
+def _class_list(value: str) -> tuple:
+    labels = tuple(v.strip() for v in value.split(","))
+    if not all(labels):
+        raise argparse.ArgumentTypeError(f"expected comma-separated class names; got {value!r}")
+    return labels
+
+
+def _add_report_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--format", choices=FORMATS, default="text",
+                   help="output format (default: text)")
+    p.add_argument("--output", metavar="FILE",
+                   help="write the report to FILE (replaced whole, never half-written)")
+    p.add_argument("--top", type=_top, default=20, metavar="N|all",
+                   help="per-class rows shown in text and Markdown (default: 20)")
+    p.add_argument("--undefined", choices=("zero", "nan"), default="zero",
+                   help="value of 0/0 metrics: zero (default) or nan (null in JSON)")
+
+
+def _add_table_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--truth", default="actual", metavar="COL",
+                   help="column of actual labels (default: actual)")
+    p.add_argument("--pred", default="predicted", metavar="COL",
+                   help="column of predicted labels (default: predicted)")
+    p.add_argument("--fold", default="auto", metavar="COL",
+                   help="column of fold labels (default: 'fold' when present)")
+    p.add_argument("--weight", metavar="COL", help="column of sample weights")
+    p.add_argument("--classes", type=_class_list, metavar="A,B,...",
+                   help="fixed class order; labels outside it are an error")
+
+
+def get_parser() -> argparse.ArgumentParser:
+    """Build the argument parser with one subcommand per verb.
+
+    Examples
+    --------
+    >>> get_parser().parse_args(["score", "p.csv", "--top", "all"]).top is None
+    True
+    """
+    parser = argparse.ArgumentParser(
+        prog="foldcorr",
+        description="Matthews correlation and R_K for multiclass and multilabel "
+                    "classifiers, fold by fold.",
+    )
+    parser.add_argument("--version", action="version", version=f"foldcorr {__version__}")
+    verbs = parser.add_subparsers(dest="verb", metavar="VERB")
+    verbs.required = True
+
+    score = verbs.add_parser("score", help="score a prediction table or a counts matrix",
+                             description="Score a prediction table (CSV, Parquet, JSON Lines) "
+                                         "or a counts matrix CSV (--matrix).")
+    score.add_argument("path", metavar="PATH", help="prediction table or counts matrix")
+    _add_table_options(score)
+    score.add_argument("--matrix", action="store_true",
+                       help="PATH is a counts matrix: actual labels down, predicted across")
+    _add_report_options(score)
+    score.set_defaults(func=_run_score)
+
+    demo = verbs.add_parser("demo", help="write the invented plankton demo and score it",
+                            description="Write an invented plankton-imaging demo (36 taxa, "
+                                        "5 folds) to a folder and score it.")
+    demo.add_argument("--out", metavar="DIR",
+                      help="folder for the demo files (default: a new temporary folder)")
+    demo.add_argument("--samples", type=int, default=24_000, metavar="N",
+                      help="number of images (default: 24000)")
+    demo.add_argument("--seed", type=int, default=20261201, metavar="S",
+                      help="seed of the generator (default gives the bundled demo)")
+    _add_report_options(demo)
+    demo.set_defaults(func=_run_demo)
+    return parser
+
+
+def main(argv=None) -> int:
+    """Run the command line; return the exit code instead of exiting.
+
+    Examples
+    --------
+    >>> main(["--version"])
+    foldcorr ...
+    0
+    """
+    parser = get_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:
+        return int(exc.code or 0)
+    from foldcorr.errors import FoldcorrError
+
+    try:
+        return args.func(args)
+    except FoldcorrError as exc:
+        print(f"foldcorr: error: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    except KeyboardInterrupt:
+        print("foldcorr: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        sys.stderr.close()
+        return EXIT_OK
+
+
+def _spec(args):
+    from foldcorr.sources import TableSpec
+
+    return TableSpec(truth=args.truth, pred=args.pred, fold=args.fold,
+                     weight=args.weight, classes=args.classes)
+
+
+def _run_score(args) -> int:
+    from foldcorr.evaluation import evaluate
+    from foldcorr.sources import load_tensor
+
+    tensor = load_tensor(args.path, _spec(args), matrix=args.matrix)
+    _emit(args, evaluate(tensor, undefined=args.undefined))
+    return EXIT_OK
+
+
+def _run_demo(args) -> int:
+    import tempfile
+
+    from foldcorr.demo import write_demo
+    from foldcorr.errors import OptionError
+    from foldcorr.evaluation import evaluate
+    from foldcorr.sources import TableSpec, load_tensor
+
+    if args.samples < 100:
+        raise OptionError(f"`--samples` must be at least 100; got {args.samples!r}")
+    folder = args.out or tempfile.mkdtemp(prefix="foldcorr-demo-")
+    path = write_demo(folder, n=args.samples, seed=args.seed)
+    print(f"demo data written to {path}", file=sys.stderr)
+    tensor = load_tensor(path, TableSpec())
+    _emit(args, evaluate(tensor, undefined=args.undefined))
+    return EXIT_OK
+
+
+def _emit(args, ev) -> None:
+    """Write an evaluation to --output or stdout in the chosen format."""
+    if args.output:
+        from foldcorr._files import write_text
+        from foldcorr.report import render_score
+
+        write_text(args.output, render_score(ev, args.format, top=args.top))
+        return
+    if args.format != "text":
+        from foldcorr.report import render_score
+
+        sys.stdout.write(render_score(ev, args.format, top=args.top))
+        return
+    from rich.console import Console
+
+    from foldcorr.report.text import PLAIN_WIDTH, render_rich
+
+    terminal = sys.stdout.isatty()
+    console = Console(file=sys.stdout, width=None if terminal else PLAIN_WIDTH,
+                      no_color="NO_COLOR" in os.environ or None, highlight=False)
+    console.print(render_rich(ev, top=args.top))
+
+
+def run() -> None:
+    """Console-script entry point: :func:`main` with ``sys.exit``."""
+    sys.exit(main())

@@ -1,0 +1,97 @@
+"""One exception family and one warning class, with user-facing messages.
+
+Every error the package raises on purpose derives from :class:`FoldcorrError`;
+each subclass also derives from the matching builtin so that callers who catch
+``ValueError`` or ``ImportError`` keep working.
+"""
+
+from __future__ import annotations
+
+import importlib
+import importlib.util
+
+__all__ = [
+    "FoldcorrError",
+    "InvalidTensorError",
+    "InvalidInputError",
+    "OptionError",
+    "MissingDependencyError",
+    "UndefinedMetricWarning",
+    "require",
+]
+
+
+class FoldcorrError(Exception):
+    """Root of every error raised by foldcorr."""
+
+
+class InvalidTensorError(FoldcorrError, ValueError):
+    """A confusion tensor has the wrong dims, coordinates or counts."""
+
+
+class InvalidInputError(FoldcorrError, ValueError):
+    """An input file or array cannot be read as predictions or counts."""
+
+
+class OptionError(FoldcorrError, ValueError):
+    """A keyword or command-line option has a value outside what is accepted."""
+
+
+class MissingDependencyError(FoldcorrError, ImportError):
+    """An optional dependency is needed for the requested feature."""
+
+
+class UndefinedMetricWarning(RuntimeWarning):
+    """A metric is 0/0 somewhere; the message says where and what was returned."""
+
+
+def require(module: str, *, extra: str, purpose: str):
+    """Import an optional dependency or raise a message naming the extra.
+
+    Parameters
+    ----------
+    module : str
+        Importable module name, e.g. ``"matplotlib.pyplot"``.
+    extra : str
+        The pyproject extra that installs it, e.g. ``"plot"``.
+    purpose : str
+        What the module is needed for, shown in the message.
+
+    Returns
+    -------
+    module
+        The imported module.
+
+    Raises
+    ------
+    MissingDependencyError
+        When the top-level package is not installed.
+
+    Examples
+    --------
+    >>> require("json", extra="none", purpose="an example").__name__
+    'json'
+    """
+    top = module.split(".")[0]
+    if importlib.util.find_spec(top) is None:
+        raise MissingDependencyError(
+            f"{purpose} needs the package {top!r}; install it with "
+            f"pip install 'foldcorr[{extra}]'"
+        )
+    return importlib.import_module(module)
+
+
+def check_choice(name: str, value, allowed) -> None:
+    """Raise :class:`OptionError` unless ``value`` is one of ``allowed``.
+
+    Examples
+    --------
+    >>> check_choice("undefined", "zero", ("zero", "nan"))
+    >>> check_choice("undefined", "one", ("zero", "nan"))
+    Traceback (most recent call last):
+    ...
+    foldcorr.errors.OptionError: `undefined` must be one of 'zero', 'nan'; got 'one'
+    """
+    if value not in allowed:
+        listed = ", ".join(repr(a) for a in allowed)
+        raise OptionError(f"`{name}` must be one of {listed}; got {value!r}")

@@ -1,0 +1,480 @@
+r"""The metrics layer: pure functions from confusion tensors to labelled figures.
+
+Every function takes a confusion tensor (see :mod:`foldcorr.tally`), reduces
+over ``actual`` and ``predicted``, and broadcasts over every other dim. Per-class
+figures carry a new dim ``class``. Nothing here reads files, prints or draws
+random numbers.
+
+Notation for one K x K matrix C (rows actual, columns predicted): :math:`s` is
+the total, :math:`c` the trace, :math:`t_k` the row sums and :math:`p_k` the
+column sums. All sums and products are taken in float64, so counts of 10^10 and
+more do not overflow.
+
+Undefined values (0/0) follow the ``undefined`` convention: ``"zero"`` (the
+default, the limit commonly used and what scikit-learn returns) or ``"nan"``.
+Either way an :class:`~foldcorr.errors.UndefinedMetricWarning` names where.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+import xarray as xr
+
+from foldcorr.errors import UndefinedMetricWarning, check_choice
+from foldcorr.tally import ACTUAL, CLASS, PREDICTED, validate_tensor
+
+__all__ = [
+    "UNDEFINED_CHOICES",
+    "rk",
+    "mcc",
+    "ovr_mcc",
+    "decompose",
+    "accuracy",
+    "balanced_accuracy",
+    "cohen_kappa",
+    "recall",
+    "precision",
+    "f1",
+    "macro_f1",
+    "macro_mcc",
+    "support",
+    "predicted_count",
+    "top_confusion",
+]
+
+UNDEFINED_CHOICES = ("zero", "nan")
+
+
+@dataclass(frozen=True)
+class _Sums:
+    """Float64 margins of a tensor in normal form, plus its labels."""
+
+    tensor: xr.DataArray
+    cells: np.ndarray  # (..., K, K)
+    total: np.ndarray  # (...)
+    trace: np.ndarray  # (...)
+    diag: np.ndarray  # (..., K)
+    actual: np.ndarray  # (..., K) row sums t_k
+    predicted: np.ndarray  # (..., K) column sums p_k
+
+    @classmethod
+    def of(cls, t) -> _Sums:
+        t = validate_tensor(t)
+        cells = t.values.astype(np.float64)
+        diag = np.diagonal(cells, axis1=-2, axis2=-1)
+        return cls(
+            tensor=t,
+            cells=cells,
+            total=cells.sum(axis=(-2, -1)),
+            trace=diag.sum(axis=-1),
+            diag=diag,
+            actual=cells.sum(axis=-1),
+            predicted=cells.sum(axis=-2),
+        )
+
+    def spread_actual(self) -> np.ndarray:
+        """b_k = t_k (s - t_k), per class."""
+        return self.actual * (self.total[..., None] - self.actual)
+
+    def spread_predicted(self) -> np.ndarray:
+        """a_k = p_k (s - p_k), per class."""
+        return self.predicted * (self.total[..., None] - self.predicted)
+
+
+def _lead(t: xr.DataArray):
+    dims = [d for d in t.dims if d not in (ACTUAL, PREDICTED)]
+    coords = {d: t.coords[d] for d in dims if d in t.coords}
+    return dims, coords
+
+
+def _wrap(sums: _Sums, values: np.ndarray, name: str, *, per_class: bool = False):
+    dims, coords = _lead(sums.tensor)
+    if per_class:
+        dims = [*dims, CLASS]
+        coords = {**coords, CLASS: sums.tensor.coords[ACTUAL].values}
+    return xr.DataArray(values, dims=dims, coords=coords, name=name)
+
+
+def _ratio(num, den, sums: _Sums, what: str, undefined: str, *, per_class=False):
+    """num / den with the undefined convention applied where den == 0."""
+    check_choice("undefined", undefined, UNDEFINED_CHOICES)
+    num, den = np.broadcast_arrays(np.asarray(num, float), np.asarray(den, float))
+    bad = den == 0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        out = np.where(bad, 0.0 if undefined == "zero" else np.nan, num / np.where(bad, 1, den))
+    if bad.any():
+        _warn_undefined(sums, bad, what, undefined, per_class=per_class)
+    return out
+
+
+def _warn_undefined(sums: _Sums, bad: np.ndarray, what: str, undefined: str, *, per_class):
+    dims, _ = _lead(sums.tensor)
+    names = [*dims, CLASS] if per_class else dims
+    labels = [
+        sums.tensor.coords[d].values if d in sums.tensor.coords else np.arange(bad.shape[i])
+        for i, d in enumerate(dims)
+    ]
+    if per_class:
+        labels.append(sums.tensor.coords[ACTUAL].values)
+    places = [
+        " ".join(f"{n}={lab[i]!r}" for n, lab, i in zip(names, labels, index))
+        for index in np.argwhere(bad)
+    ]
+    where = "; ".join(places) if places and places[0] else "the whole tensor"
+    value = "0.0" if undefined == "zero" else "NaN"
+    warnings.warn(
+        f"{what} is undefined (0/0) at {where}; reported as {value} (undefined={undefined!r})",
+        UndefinedMetricWarning,
+        stacklevel=4,
+    )
+
+
+def rk(t, *, undefined: str = "zero") -> xr.DataArray:
+    r"""Gorodkin's multiclass correlation R_K (the MCC when K = 2).
+
+    Parameters
+    ----------
+    t : xarray.DataArray
+        Confusion tensor, dims ``(..., "actual", "predicted")``.
+    undefined : {"zero", "nan"}, default "zero"
+        Value returned where R_K is 0/0.
+
+    Returns
+    -------
+    xarray.DataArray
+        R_K over the leading dims, named ``rk``.
+
+    Warns
+    -----
+    UndefinedMetricWarning
+        Where all truths or all predictions fall in one class.
+
+    Notes
+    -----
+    .. math:: R_K = \frac{c\,s - \sum_k t_k p_k}
+                         {\sqrt{(s^2 - \sum_k p_k^2)(s^2 - \sum_k t_k^2)}}
+
+    The maximum is +1; for K > 2 the minimum lies between -1 and 0 and depends
+    on the class distribution [3]_.
+
+    References
+    ----------
+    .. [1] J. Gorodkin, "Comparing two K-category assignments by a K-category
+       correlation coefficient", Comput. Biol. Chem. 28 (2004) 367-374.
+    .. [2] B. W. Matthews, "Comparison of the predicted and observed secondary
+       structure of T4 phage lysozyme", BBA 405 (1975) 442-451.
+    .. [3] G. Jurman, S. Riccadonna, C. Furlanello, "A comparison of MCC and CEN
+       error measures in multi-class prediction", PLoS ONE 7 (2012) e41882.
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> t = confusion_tensor([[6, 2], [1, 3]], ["pos", "neg"])
+    >>> round(float(rk(t)), 6)
+    0.478091
+    """
+    s = _Sums.of(t)
+    num = s.trace * s.total - (s.actual * s.predicted).sum(axis=-1)
+    den = np.sqrt(s.spread_actual().sum(axis=-1)) * np.sqrt(s.spread_predicted().sum(axis=-1))
+    out = np.clip(_ratio(num, den, s, "R_K", undefined), -1.0, 1.0)
+    return _wrap(s, out, "rk")
+
+
+def mcc(t, *, undefined: str = "zero") -> xr.DataArray:
+    """Matthews correlation coefficient; an alias of :func:`rk` for 2 x 2 tensors.
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> float(mcc(confusion_tensor([[5, 0], [0, 5]], [False, True])))
+    1.0
+    """
+    return rk(t, undefined=undefined).rename("mcc")
+
+
+def ovr_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
+    r"""One-vs-rest MCC of every class.
+
+    Parameters
+    ----------
+    t : xarray.DataArray
+        Confusion tensor.
+    undefined : {"zero", "nan"}, default "zero"
+        Value where a class is absent from truth or predictions (or is all of
+        either).
+
+    Returns
+    -------
+    xarray.DataArray
+        Dims ``(..., "class")``, named ``mcc``.
+
+    Notes
+    -----
+    .. math:: \mathrm{MCC}_k = \frac{s C_{kk} - t_k p_k}
+                                    {\sqrt{p_k (s - p_k)\, t_k (s - t_k)}}
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [1, 0, 5]], ["a", "b", "c"])
+    >>> ovr_mcc(t).round(4).values.tolist()
+    [0.7, 0.6591, 0.7222]
+    """
+    s = _Sums.of(t)
+    num = s.total[..., None] * s.diag - s.actual * s.predicted
+    den = np.sqrt(s.spread_actual()) * np.sqrt(s.spread_predicted())
+    out = np.clip(_ratio(num, den, s, "one-vs-rest MCC", undefined, per_class=True), -1, 1)
+    return _wrap(s, out, "mcc", per_class=True)
+
+
+def decompose(t, *, undefined: str = "zero") -> xr.Dataset:
+    r"""Exact additive decomposition of R_K into per-class terms.
+
+    Parameters
+    ----------
+    t : xarray.DataArray
+        Confusion tensor.
+    undefined : {"zero", "nan"}, default "zero"
+        Convention for R_K and one-vs-rest MCC where they are 0/0.
+
+    Returns
+    -------
+    xarray.Dataset
+        ``weight``, ``mcc``, ``contribution`` and ``drag`` with dims
+        ``(..., "class")``; ``rk`` and ``marginal_mismatch`` over the leading
+        dims. ``contribution.sum("class") == rk`` and
+        ``drag.sum("class") + marginal_mismatch == 1 - rk``.
+
+    Notes
+    -----
+    With :math:`a_k = p_k(s-p_k)`, :math:`b_k = t_k(s-t_k)` and
+    :math:`w_k = \sqrt{a_k b_k} / \sqrt{\sum a \sum b}`,
+
+    .. math:: R_K = \sum_k w_k \mathrm{MCC}_k, \qquad
+              1 - R_K = \sum_k w_k (1 - \mathrm{MCC}_k) + \Big(1 - \sum_k w_k\Big)
+
+    and the last term is non-negative by Cauchy-Schwarz. See
+    ``docs/decomposition.md`` for the proof. Where R_K itself is undefined all
+    weights are 0 and the mismatch term carries ``1 - rk``.
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [1, 0, 5]], ["a", "b", "c"])
+    >>> d = decompose(t)
+    >>> round(float(d.contribution.sum("class")), 12) == round(float(d.rk), 12)
+    True
+    >>> round(float(d.drag.sum("class") + d.marginal_mismatch + d.rk), 12)
+    1.0
+    """
+    s = _Sums.of(t)
+    a, b = s.spread_predicted(), s.spread_actual()
+    scale = np.sqrt(a.sum(axis=-1)) * np.sqrt(b.sum(axis=-1))
+    defined = (scale > 0)[..., None]
+    safe = np.where(scale > 0, scale, 1.0)[..., None]
+    weight = np.where(defined, np.sqrt(a) * np.sqrt(b) / safe, 0.0)
+    num = s.total[..., None] * s.diag - s.actual * s.predicted
+    contribution = np.where(defined, num / safe, 0.0)
+    drag = weight - contribution
+    total_rk = rk(s.tensor, undefined=undefined).values
+    mismatch = np.where(scale > 0, 1.0 - weight.sum(axis=-1), 1.0 - total_rk)
+    per_class = ovr_mcc(s.tensor, undefined=undefined)
+    return xr.Dataset(
+        {
+            "weight": _wrap(s, weight, "weight", per_class=True),
+            "mcc": per_class,
+            "contribution": _wrap(s, contribution, "contribution", per_class=True),
+            "drag": _wrap(s, drag, "drag", per_class=True),
+            "rk": _wrap(s, total_rk, "rk"),
+            "marginal_mismatch": _wrap(s, np.maximum(mismatch, 0.0), "marginal_mismatch"),
+        }
+    )
+
+
+def accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
+    """Fraction of samples on the diagonal.
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> float(accuracy(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
+    0.75
+    """
+    s = _Sums.of(t)
+    return _wrap(s, _ratio(s.trace, s.total, s, "accuracy", undefined), "accuracy")
+
+
+def recall(t, *, undefined: str = "zero") -> xr.DataArray:
+    """Per-class recall C_kk / t_k (undefined where a class has no support).
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> recall(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).values.tolist()
+    [0.75, 0.75]
+    """
+    s = _Sums.of(t)
+    out = _ratio(s.diag, s.actual, s, "recall", undefined, per_class=True)
+    return _wrap(s, out, "recall", per_class=True)
+
+
+def precision(t, *, undefined: str = "zero") -> xr.DataArray:
+    """Per-class precision C_kk / p_k (undefined where a class is never predicted).
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> precision(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).round(4).values.tolist()
+    [0.8571, 0.6]
+    """
+    s = _Sums.of(t)
+    out = _ratio(s.diag, s.predicted, s, "precision", undefined, per_class=True)
+    return _wrap(s, out, "precision", per_class=True)
+
+
+def f1(t, *, undefined: str = "zero") -> xr.DataArray:
+    """Per-class F1 = 2 C_kk / (t_k + p_k).
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> f1(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).round(4).values.tolist()
+    [0.8, 0.6667]
+    """
+    s = _Sums.of(t)
+    out = _ratio(2 * s.diag, s.actual + s.predicted, s, "F1", undefined, per_class=True)
+    return _wrap(s, out, "f1", per_class=True)
+
+
+def _present_mean(values: np.ndarray, present: np.ndarray, sums, what, undefined):
+    num = np.where(present, values, 0.0).sum(axis=-1)
+    return _ratio(num, present.sum(axis=-1), sums, what, undefined)
+
+
+def balanced_accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
+    """Mean recall over the classes that occur in truth.
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> float(balanced_accuracy(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
+    0.75
+    """
+    s = _Sums.of(t)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        per_class = s.diag / s.actual
+    out = _present_mean(per_class, s.actual > 0, s, "balanced accuracy", undefined)
+    return _wrap(s, out, "balanced_accuracy")
+
+
+def macro_f1(t, *, undefined: str = "zero") -> xr.DataArray:
+    """Mean F1 over the classes that occur in truth or predictions.
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> round(float(macro_f1(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))), 4)
+    0.7333
+    """
+    s = _Sums.of(t)
+    present = (s.actual + s.predicted) > 0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        per_class = 2 * s.diag / (s.actual + s.predicted)
+    return _wrap(s, _present_mean(per_class, present, s, "macro F1", undefined), "macro_f1")
+
+
+def macro_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
+    """Mean one-vs-rest MCC over the classes that occur in truth or predictions.
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [1, 0, 5]], ["a", "b", "c"])
+    >>> round(float(macro_mcc(t)), 4)
+    0.6938
+    """
+    s = _Sums.of(t)
+    per_class = ovr_mcc(s.tensor, undefined=undefined).values
+    present = (s.actual + s.predicted) > 0
+    return _wrap(s, _present_mean(per_class, present, s, "macro MCC", undefined), "macro_mcc")
+
+
+def cohen_kappa(t, *, undefined: str = "zero") -> xr.DataArray:
+    r"""Cohen's kappa, :math:`(c s - \sum t_k p_k) / (s^2 - \sum t_k p_k)`.
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> round(float(cohen_kappa(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))), 6)
+    0.470588
+    """
+    s = _Sums.of(t)
+    chance = (s.actual * s.predicted).sum(axis=-1)
+    out = _ratio(s.trace * s.total - chance, s.total**2 - chance, s, "Cohen's kappa", undefined)
+    return _wrap(s, out, "kappa")
+
+
+def support(t) -> xr.DataArray:
+    """Per-class count of actual samples (row sums), dims ``(..., "class")``.
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> support(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).values.tolist()
+    [8, 4]
+    """
+    t = validate_tensor(t)
+    out = t.sum(PREDICTED).rename({ACTUAL: CLASS}).rename("support")
+    return out.drop_attrs() if hasattr(out, "drop_attrs") else out
+
+
+def predicted_count(t) -> xr.DataArray:
+    """Per-class count of predictions (column sums), dims ``(..., "class")``.
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> predicted_count(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).values.tolist()
+    [7, 5]
+    """
+    t = validate_tensor(t)
+    out = t.sum(ACTUAL).rename({PREDICTED: CLASS}).rename("predicted")
+    return out.drop_attrs() if hasattr(out, "drop_attrs") else out
+
+
+def top_confusion(t) -> xr.Dataset:
+    """The most frequent wrong prediction of each actual class.
+
+    Returns
+    -------
+    xarray.Dataset
+        ``top_confusion`` (the predicted class label; missing where a class
+        has no errors) and ``top_confusion_count`` (0 where a class has no
+        errors), dims ``(..., "class")``.
+        Ties go to the class that comes first.
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [0, 0, 5]], ["a", "b", "c"])
+    >>> top = top_confusion(t)
+    >>> top.top_confusion.values[:2].tolist(), top.top_confusion_count.values.tolist()
+    (['b', 'c'], [1, 1, 0])
+    """
+    s = _Sums.of(t)
+    k = s.cells.shape[-1]
+    off = np.where(np.eye(k, dtype=bool), -1, s.tensor.values)
+    index = off.argmax(axis=-1)
+    count = np.take_along_axis(off, index[..., None], axis=-1)[..., 0]
+    labels = np.asarray(s.tensor.coords[PREDICTED].values, dtype=object)
+    label = np.where(count > 0, labels[index], None) if k > 1 else np.full(index.shape, None)
+    count = np.maximum(count, 0)
+    return xr.Dataset(
+        {
+            "top_confusion": _wrap(s, label, "top_confusion", per_class=True),
+            "top_confusion_count": _wrap(s, count, "top_confusion_count", per_class=True),
+        }
+    )

@@ -1,0 +1,560 @@
+"""The tensor layer: labels in, labelled confusion tensors out.
+
+A confusion tensor is an :class:`xarray.DataArray` named ``count`` with dims
+``(..., "actual", "predicted")``. Both class dims carry the same ordered class
+coordinate; leading dims (``fold``, ``split``, ``model``, ``label``) are free.
+Counts are int64, or float64 when sample weights are given. Nothing here
+computes a metric.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+
+import numpy as np
+import pandas as pd
+import xarray as xr
+
+from foldcorr._version import __version__
+from foldcorr.errors import InvalidInputError, InvalidTensorError
+
+__all__ = [
+    "ACTUAL",
+    "PREDICTED",
+    "FOLD",
+    "CLASS",
+    "LABEL",
+    "COUNT",
+    "tally",
+    "tally_frame",
+    "confusion_tensor",
+    "validate_tensor",
+    "pool",
+    "class_dims",
+]
+
+ACTUAL = "actual"
+PREDICTED = "predicted"
+FOLD = "fold"
+CLASS = "class"
+LABEL = "label"
+COUNT = "count"
+
+# Integer labels in [0, _DIRECT_MAX) are used as codes without hashing.
+_DIRECT_MAX = 1 << 16
+
+
+def class_dims() -> tuple[str, str]:
+    """The two class dims, in the order every tensor keeps them.
+
+    Examples
+    --------
+    >>> class_dims()
+    ('actual', 'predicted')
+    """
+    return (ACTUAL, PREDICTED)
+
+
+def confusion_tensor(
+    counts, classes, *, leading: Mapping[str, Sequence] | None = None, attrs=None
+) -> xr.DataArray:
+    """Wrap a numeric array of counts as a labelled confusion tensor.
+
+    Parameters
+    ----------
+    counts : array_like, shape (..., K, K)
+        Counts with rows actual and columns predicted.
+    classes : sequence
+        The K class labels, in order.
+    leading : mapping of str to sequence, optional
+        Names and coordinates of the leading dims, in order.
+    attrs : dict, optional
+        Provenance kept on the result.
+
+    Returns
+    -------
+    xarray.DataArray
+        The validated tensor named ``count``.
+
+    Examples
+    --------
+    >>> t = confusion_tensor([[5, 1], [2, 7]], ["cat", "dog"])
+    >>> t.dims, t.coords["actual"].values.tolist()
+    (('actual', 'predicted'), ['cat', 'dog'])
+    """
+    leading = dict(leading or {})
+    classes = list(classes)
+    dims = (*leading, ACTUAL, PREDICTED)
+    coords = {**leading, ACTUAL: classes, PREDICTED: classes}
+    t = xr.DataArray(np.asarray(counts), dims=dims, coords=coords, name=COUNT)
+    t.attrs.update(attrs or {})
+    return validate_tensor(t)
+
+
+def validate_tensor(t) -> xr.DataArray:
+    """Check a confusion tensor and return it in normal form.
+
+    Normal form: dims ``(..., "actual", "predicted")`` in that order, the same
+    class coordinate on both class dims, finite non-negative counts of dtype
+    int64 or float64, and the name ``count``.
+
+    Parameters
+    ----------
+    t : xarray.DataArray
+        Candidate tensor.
+
+    Returns
+    -------
+    xarray.DataArray
+        The normalised tensor (a new object; the input is not changed).
+
+    Raises
+    ------
+    InvalidTensorError
+        When ``t`` is not a DataArray, lacks a class dim, the class coordinates
+        differ, or a count is negative, NaN or infinite.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> t = xr.DataArray([[3, 1], [0, 4]], dims=("actual", "predicted"))
+    >>> validate_tensor(t).coords["predicted"].values.tolist()
+    [0, 1]
+    >>> validate_tensor(t - 1)
+    Traceback (most recent call last):
+    ...
+    foldcorr.errors.InvalidTensorError: counts must be non-negative; found -1 at actual=1, predicted=0
+    """
+    if not isinstance(t, xr.DataArray):
+        raise InvalidTensorError(
+            f"a confusion tensor must be an xarray.DataArray; got {type(t).__name__!r}"
+        )
+    missing = [d for d in (ACTUAL, PREDICTED) if d not in t.dims]
+    if missing:
+        raise InvalidTensorError(
+            f"a confusion tensor needs dims 'actual' and 'predicted'; "
+            f"missing {missing!r} in dims {t.dims!r}"
+        )
+    lead = [d for d in t.dims if d not in (ACTUAL, PREDICTED)]
+    t = t.transpose(*lead, ACTUAL, PREDICTED)
+    k = t.sizes[ACTUAL]
+    if t.sizes[PREDICTED] != k:
+        raise InvalidTensorError(
+            f"a confusion tensor must be square; got {k} actual by "
+            f"{t.sizes[PREDICTED]} predicted classes"
+        )
+    t = _with_class_coords(t)
+    values = np.asarray(t.values)
+    if not (np.issubdtype(values.dtype, np.number) or values.dtype == bool):
+        raise InvalidTensorError(f"counts must be numeric; got dtype {values.dtype!r}")
+    if np.issubdtype(values.dtype, np.floating):
+        values = values.astype(np.float64, copy=False)
+        bad = ~np.isfinite(values)
+        if bad.any():
+            raise InvalidTensorError(
+                f"counts must be finite; found {_py(values[bad][0])!r} at {_where(t, bad)}"
+            )
+    else:
+        values = values.astype(np.int64, copy=False)
+    neg = values < 0
+    if neg.any():
+        raise InvalidTensorError(
+            f"counts must be non-negative; found {_py(values[neg][0])!r} at {_where(t, neg)}"
+        )
+    out = t.copy(data=values)
+    out.name = COUNT
+    return out
+
+
+def _with_class_coords(t: xr.DataArray) -> xr.DataArray:
+    has_a, has_p = ACTUAL in t.coords, PREDICTED in t.coords
+    if not has_a and not has_p:
+        k = t.sizes[ACTUAL]
+        return t.assign_coords({ACTUAL: np.arange(k), PREDICTED: np.arange(k)})
+    if has_a != has_p:
+        named = ACTUAL if has_a else PREDICTED
+        other = PREDICTED if has_a else ACTUAL
+        return t.assign_coords({other: t.coords[named].values})
+    a, p = t.coords[ACTUAL].values, t.coords[PREDICTED].values
+    if not np.array_equal(a, p):
+        raise InvalidTensorError(
+            "the 'actual' and 'predicted' class coordinates must be the same, in the "
+            f"same order; got {a.tolist()!r} and {p.tolist()!r}"
+        )
+    return t
+
+
+def _where(t: xr.DataArray, mask: np.ndarray) -> str:
+    index = np.argwhere(mask)[0]
+    return ", ".join(
+        f"{dim}={_py(t.coords[dim].values[i])!r}" if dim in t.coords else f"{dim}={i}"
+        for dim, i in zip(t.dims, index)
+    )
+
+
+def pool(t: xr.DataArray, dim: str | Sequence[str] = FOLD) -> xr.DataArray:
+    """Sum a tensor over one or more leading dims, where present.
+
+    Parameters
+    ----------
+    t : xarray.DataArray
+        Confusion tensor.
+    dim : str or sequence of str, default "fold"
+        Dims to pool; names that are absent are ignored.
+
+    Returns
+    -------
+    xarray.DataArray
+        The pooled tensor, attrs kept.
+
+    Examples
+    --------
+    >>> t = tally([0, 1, 1, 0], [0, 1, 0, 0], folds=[1, 1, 2, 2])
+    >>> pool(t).values.tolist()
+    [[2, 0], [1, 1]]
+    """
+    dims = [dim] if isinstance(dim, str) else list(dim)
+    present = [d for d in dims if d in t.dims]
+    if not present:
+        return t
+    return t.sum(present, keep_attrs=True)
+
+
+def tally(truth, pred, *, folds=None, weights=None, classes=None) -> xr.DataArray:
+    """Count (actual, predicted) pairs into a confusion tensor.
+
+    Parameters
+    ----------
+    truth, pred : array_like
+        One label per sample: strings, integers, booleans or categoricals.
+    folds : array_like, optional
+        One fold label per sample; adds a leading dim ``fold``.
+    weights : array_like, optional
+        Non-negative sample weights; the counts become float64.
+    classes : sequence, optional
+        The class order. Labels outside it are an error. Without it, the
+        classes are every label seen in either array, sorted.
+
+    Returns
+    -------
+    xarray.DataArray
+        Tensor with dims ``([fold,] actual, predicted)``.
+
+    Raises
+    ------
+    InvalidInputError
+        On arrays of different length, missing labels, labels outside
+        ``classes``, or negative or non-finite weights.
+
+    Notes
+    -----
+    All labels are coded in one factorisation of truth and predictions together
+    and counted with a single ``numpy.bincount`` over
+    ``(fold * K + actual) * K + predicted``. Small non-negative integer labels
+    and categoricals skip the hashing step.
+
+    Examples
+    --------
+    >>> t = tally(["cat", "dog", "dog"], ["cat", "cat", "dog"])
+    >>> t.values.tolist()
+    [[1, 0], [1, 1]]
+    >>> t.coords["actual"].values.tolist()
+    ['cat', 'dog']
+    """
+    columns = {"truth": truth, "pred": pred}
+    leading = {} if folds is None else {FOLD: folds}
+    return _tally_columns(columns, leading, weights, classes, attrs={})
+
+
+def tally_frame(
+    df: pd.DataFrame,
+    *,
+    truth: str = ACTUAL,
+    pred: str = PREDICTED,
+    by: str | Sequence[str] | Mapping[str, str] | None = None,
+    weight: str | None = None,
+    classes=None,
+) -> xr.DataArray:
+    """Count a prediction table into a confusion tensor.
+
+    Parameters
+    ----------
+    df : pandas.DataFrame
+        One row per sample.
+    truth, pred : str
+        Column names of the actual and predicted labels.
+    by : str, sequence of str or mapping of dim to column, optional
+        Columns that become leading dims (e.g. ``"fold"``); a mapping names
+        the dim differently from its column, e.g. ``{"fold": "cv_round"}``.
+    weight : str, optional
+        Column of sample weights.
+    classes : sequence, optional
+        Fixed class order (see :func:`tally`).
+
+    Returns
+    -------
+    xarray.DataArray
+        The confusion tensor, with the columns used recorded in ``attrs``.
+
+    Raises
+    ------
+    InvalidInputError
+        When a named column is missing, or as :func:`tally`.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> df = pd.DataFrame({"actual": ["a", "b", "b", "a"],
+    ...                    "predicted": ["a", "b", "a", "a"],
+    ...                    "fold": [0, 0, 1, 1]})
+    >>> t = tally_frame(df, by="fold")
+    >>> t.dims
+    ('fold', 'actual', 'predicted')
+    >>> t.sel(fold=1).values.tolist()
+    [[1, 0], [1, 0]]
+    """
+    if by is None:
+        by = {}
+    elif isinstance(by, str):
+        by = {by: by}
+    elif not isinstance(by, Mapping):
+        by = {b: b for b in by}
+    needed = [truth, pred, *by.values()] + ([weight] if weight else [])
+    absent = [c for c in needed if c not in df.columns]
+    if absent:
+        raise InvalidInputError(
+            f"column {absent[0]!r} not found; the table has columns {list(df.columns)!r}"
+        )
+    columns = {truth: df[truth], pred: df[pred]}
+    if truth == pred:
+        raise InvalidInputError(f"truth and pred name the same column {truth!r}")
+    leading = {dim: df[col] for dim, col in by.items()}
+    weights = None if weight is None else df[weight]
+    attrs = {"truth_column": truth, "pred_column": pred}
+    if by:
+        attrs["by_columns"] = ",".join(f"{d}={c}" for d, c in by.items())
+    if weight:
+        attrs["weight_column"] = weight
+    return _tally_columns(columns, leading, weights, classes, attrs=attrs)
+
+
+def _tally_columns(columns, leading, weights, classes, *, attrs) -> xr.DataArray:
+    (t_name, truth), (p_name, pred) = columns.items()
+    truth, pred = _as_1d(truth, t_name), _as_1d(pred, p_name)
+    n = len(truth)
+    _check_lengths(n, {p_name: pred, **leading, "weights": weights})
+    codes_t, codes_p, labels, fixed = _encode_pair(truth, pred, classes, t_name, p_name)
+    group_codes, group_coords = [], {}
+    for dim, values in leading.items():
+        codes, uniques = _encode_one(_as_1d(values, dim), dim)
+        group_codes.append((codes, len(uniques)))
+        group_coords[dim] = uniques
+    w = None if weights is None else _check_weights(weights)
+    counts = _bincount(codes_t, codes_p, len(labels), group_codes, w)
+    if not fixed:
+        seen = None if w is None else _occurring(codes_t, codes_p, len(labels))
+        counts, labels = _drop_unseen(counts, labels, seen)
+    attrs = {**attrs, "n_rows": n, "foldcorr_version": __version__}
+    return confusion_tensor(counts, labels, leading=group_coords, attrs=attrs)
+
+
+def _as_1d(values, name: str):
+    if isinstance(values, (pd.Series, pd.Index, pd.Categorical)):
+        return values
+    arr = np.asarray(values)
+    if arr.ndim != 1:
+        raise InvalidInputError(f"`{name}` must be one-dimensional; got shape {arr.shape!r}")
+    return arr
+
+
+def _check_lengths(n: int, others: Mapping) -> None:
+    for name, values in others.items():
+        if values is not None and len(values) != n:
+            raise InvalidInputError(
+                f"`{name}` has {len(values)} values but there are {n} truth labels"
+            )
+
+
+def _check_weights(weights) -> np.ndarray:
+    try:
+        w = np.asarray(weights, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise InvalidInputError("weights must be numbers") from None
+    bad = ~np.isfinite(w) | (w < 0)
+    if bad.any():
+        row = int(np.flatnonzero(bad)[0])
+        raise InvalidInputError(
+            f"weights must be finite and non-negative; got {w[row]!r} at row {row + 1}"
+        )
+    return w
+
+
+def _encode_pair(truth, pred, classes, t_name, p_name):
+    """Integer codes for truth and pred over one shared class list.
+
+    Returns codes, labels and whether the class list was fixed by the caller.
+    """
+    if classes is not None:
+        labels = _fixed_classes(classes)
+        index = pd.Index(labels)
+        codes = [index.get_indexer(pd.Index(np.asarray(v))) for v in (truth, pred)]
+        for name, values, c in zip((t_name, p_name), (truth, pred), codes):
+            _raise_unknown(name, values, c, labels)
+        return codes[0], codes[1], labels, True
+    direct = _direct_codes(truth, pred)
+    if direct is not None:
+        return (*direct, False)
+    cat = _categorical_codes(truth, pred, t_name, p_name)
+    if cat is not None:
+        return (*cat, False)
+    both = np.concatenate([_plain(truth), _plain(pred)])
+    codes, uniques = pd.factorize(both, use_na_sentinel=True)
+    _raise_missing(codes, len(truth), t_name, p_name)
+    codes, uniques = _sorted_codes(codes, np.asarray(uniques, dtype=object))
+    return codes[: len(truth)], codes[len(truth) :], list(uniques), False
+
+
+def _plain(values) -> np.ndarray:
+    if isinstance(values, (pd.Series, pd.Index)):
+        return values.to_numpy(dtype=object) if values.dtype == object else values.to_numpy()
+    return np.asarray(values)
+
+
+def _fixed_classes(classes) -> list:
+    labels = list(classes)
+    if not labels:
+        raise InvalidInputError("`classes` must name at least one class")
+    seen = pd.Index(labels)
+    if seen.has_duplicates:
+        dup = seen[seen.duplicated()][0]
+        raise InvalidInputError(f"`classes` lists {dup!r} more than once")
+    return labels
+
+
+def _raise_unknown(name, values, codes, labels) -> None:
+    bad = np.flatnonzero(codes < 0)
+    if bad.size:
+        row = int(bad[0])
+        value = np.asarray(values)[row]
+        shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
+        raise InvalidInputError(
+            f"column {name!r} row {row + 1}: label {value!r} is not among the classes "
+            f"[{shown}] ({bad.size} rows outside them)"
+        )
+
+
+def _raise_missing(codes, n_truth, t_name, p_name) -> None:
+    bad = np.flatnonzero(codes < 0)
+    if bad.size:
+        i = int(bad[0])
+        name, row = (t_name, i) if i < n_truth else (p_name, i - n_truth)
+        raise InvalidInputError(
+            f"column {name!r} row {row + 1}: missing label ({bad.size} missing in all)"
+        )
+
+
+def _direct_codes(truth, pred):
+    """Codes for small non-negative integer (or boolean) labels, no hashing."""
+    arrays = []
+    for values in (truth, pred):
+        if isinstance(values, (pd.Series, pd.Index)):
+            if not (pd.api.types.is_integer_dtype(values.dtype) or values.dtype == bool):
+                return None
+            if not isinstance(values.dtype, np.dtype):
+                return None
+            values = values.to_numpy()
+        if not isinstance(values, np.ndarray):
+            return None
+        if values.dtype == bool:
+            values = values.view(np.uint8)
+        elif not np.issubdtype(values.dtype, np.integer):
+            return None
+        arrays.append(values)
+    if arrays[0].size == 0:
+        return None
+    lo = min(int(a.min()) for a in arrays)
+    hi = max(int(a.max()) for a in arrays)
+    if lo < 0 or hi >= _DIRECT_MAX:
+        return None
+    labels = np.arange(hi + 1)
+    if all(getattr(v, "dtype", None) == bool for v in (truth, pred)):
+        labels = labels.astype(bool)
+    return arrays[0], arrays[1], list(labels)
+
+
+def _categorical_codes(truth, pred, t_name, p_name):
+    cats = [_categorical(v) for v in (truth, pred)]
+    if any(c is None for c in cats):
+        return None
+    ct, cp = cats
+    if not ct.categories.equals(cp.categories):
+        union = ct.categories.union(cp.categories, sort=False)
+        ct = ct.set_categories(union)
+        cp = cp.set_categories(union)
+    codes_t, codes_p = ct.codes.astype(np.int64), cp.codes.astype(np.int64)
+    _raise_missing(np.concatenate([codes_t, codes_p]), len(codes_t), t_name, p_name)
+    return codes_t, codes_p, list(ct.categories)
+
+
+def _categorical(values):
+    if isinstance(values, pd.Categorical):
+        return values
+    if isinstance(values, (pd.Series, pd.Index)) and isinstance(values.dtype, pd.CategoricalDtype):
+        return pd.Categorical(values)
+    return None
+
+
+def _sorted_codes(codes: np.ndarray, uniques: np.ndarray):
+    try:
+        order = np.argsort(uniques, kind="stable")
+    except TypeError:
+        order = np.argsort(np.array([f"{type(u).__name__}:{u}" for u in uniques]), kind="stable")
+    rank = np.empty(len(order), dtype=np.int64)
+    rank[order] = np.arange(len(order))
+    return rank[codes], uniques[order]
+
+
+def _encode_one(values, name: str):
+    codes, uniques = pd.factorize(_plain(values), use_na_sentinel=True)
+    bad = np.flatnonzero(codes < 0)
+    if bad.size:
+        raise InvalidInputError(f"column {name!r} row {int(bad[0]) + 1}: missing value")
+    codes, uniques = _sorted_codes(codes, np.asarray(uniques, dtype=object))
+    return codes, [_py(u) for u in uniques]
+
+
+def _py(value):
+    return value.item() if isinstance(value, np.generic) else value
+
+
+def _bincount(codes_t, codes_p, k, groups, weights) -> np.ndarray:
+    index = np.zeros(len(codes_t), dtype=np.int64)
+    shape = []
+    for codes, size in groups:
+        index *= size
+        index += codes
+        shape.append(size)
+    index *= k
+    index += codes_t
+    index *= k
+    index += codes_p
+    total = int(np.prod(shape, dtype=np.int64)) * k * k
+    counts = np.bincount(index, weights=weights, minlength=total)
+    if weights is None:
+        counts = counts.astype(np.int64, copy=False)
+    return counts.reshape(*shape, k, k)
+
+
+def _occurring(codes_t, codes_p, k) -> np.ndarray:
+    return (np.bincount(codes_t, minlength=k) + np.bincount(codes_p, minlength=k)) > 0
+
+
+def _drop_unseen(counts: np.ndarray, labels: list, seen=None):
+    """Drop classes that occur in neither truth nor predictions."""
+    if seen is None:
+        seen = (counts.sum(axis=-1) + counts.sum(axis=-2)).reshape(-1, len(labels)).sum(axis=0) > 0
+    if seen.all():
+        return counts, [_py(x) for x in labels]
+    keep = np.flatnonzero(seen)
+    counts = counts[..., keep, :][..., keep]
+    return counts, [_py(labels[i]) for i in keep]
