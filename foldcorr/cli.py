@@ -143,8 +143,20 @@ def _run_score(args) -> int:
     from foldcorr.sources import load_tensor
 
     tensor = load_tensor(args.path, _spec(args), matrix=args.matrix)
-    _emit(args, evaluate(tensor, undefined=args.undefined))
+    _emit(args, _analyse(args, evaluate(tensor, undefined=args.undefined)))
     return EXIT_OK
+
+
+#: Steps that attach analysis sections to an evaluation, from the parsed
+#: arguments: each is ``(args, evaluation) -> evaluation`` and returns the
+#: evaluation unchanged when its options are not set.
+ANALYSES: list = []
+
+
+def _analyse(args, ev):
+    for step in ANALYSES:
+        ev = step(args, ev)
+    return ev
 
 
 def _run_demo(args) -> int:
@@ -161,7 +173,7 @@ def _run_demo(args) -> int:
     path = write_demo(folder, n=args.samples, seed=args.seed)
     print(f"demo data written to {path}", file=sys.stderr)
     tensor = load_tensor(path, TableSpec())
-    _emit(args, evaluate(tensor, undefined=args.undefined))
+    _emit(args, _analyse(args, evaluate(tensor, undefined=args.undefined)))
     return EXIT_OK
 
 

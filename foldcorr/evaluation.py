@@ -9,7 +9,7 @@ never compute.
 from __future__ import annotations
 
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import xarray as xr
@@ -147,6 +147,20 @@ class Evaluation:
         """The per-class table sorted by drag, largest first (ties by class order)."""
         order = np.argsort(-self.per_class["drag"].values, kind="stable")
         return self.per_class.isel(**{m.CLASS: order})
+
+    def with_extra(self, name: str, value) -> Evaluation:
+        """A copy with one more section in :attr:`extras` (and its warnings, if it has any).
+
+        Examples
+        --------
+        >>> from foldcorr.tally import confusion_tensor
+        >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
+        >>> sorted(ev.with_extra("note", 1).extras)
+        ['note']
+        """
+        more = tuple(getattr(value, "warnings", ()) or ())
+        return replace(self, extras={**self.extras, name: value},
+                       warnings=tuple(dict.fromkeys(self.warnings + more)))
 
     def __rich__(self):
         from foldcorr.report.text import render_rich  # rendering lives in the report layer

@@ -15,7 +15,11 @@ import numpy as np
 
 from foldcorr.evaluation import Evaluation
 
-__all__ = ["SCORE_SCHEMA", "score_dict", "dumps", "plain"]
+__all__ = ["SCORE_SCHEMA", "score_dict", "dumps", "plain", "SECTION_JSON"]
+
+#: JSON for sections in ``Evaluation.extras``: a map from the extras key to a
+#: function ``(evaluation, doc) -> None`` that adds its keys to the document.
+SECTION_JSON: dict = {}
 
 SCORE_SCHEMA = "foldcorr.score/1"
 
@@ -81,6 +85,9 @@ def score_dict(ev: Evaluation) -> dict:
         "per_class": _per_class(ev),
         "warnings": list(ev.warnings),
     }
+    for key, add in SECTION_JSON.items():
+        if key in ev.extras:
+            add(ev, doc)
     return plain(doc)
 
 

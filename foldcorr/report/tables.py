@@ -11,7 +11,13 @@ from dataclasses import dataclass, field
 
 from foldcorr.evaluation import Evaluation
 
-__all__ = ["Column", "Table", "Report", "score_report", "format_value"]
+__all__ = ["Column", "Table", "Report", "score_report", "format_value", "SECTION_TABLES"]
+
+#: Tables for sections that analyses attach to ``Evaluation.extras``: a map from
+#: the extras key to a function ``(evaluation, top) -> list[Table]``. Each
+#: analysis registers its renderer here; tables appear in registration order
+#: after the core tables.
+SECTION_TABLES: dict = {}
 
 
 @dataclass(frozen=True)
@@ -166,4 +172,7 @@ def score_report(ev: Evaluation, *, top: int | None = 20, source: str | None = N
              ("classes", str(len(ev.classes))), ("folds", str(folds)),
              ("R_K", format_value(ev.rk, "metric")))
     tables = [summary_table(ev), fold_table(ev), class_table(ev, top)]
+    for key, make in SECTION_TABLES.items():
+        if key in ev.extras:
+            tables.extend(make(ev, top))
     return Report("foldcorr score", facts, tuple(t for t in tables if t is not None), ev.warnings)
