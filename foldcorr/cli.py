@@ -61,6 +61,10 @@ def _add_table_options(p: argparse.ArgumentParser) -> None:
                    help="fixed class order; labels outside it are an error")
 
 
+def _add_analysis_options(p: argparse.ArgumentParser) -> None:
+    """Options of the analyses in :data:`ANALYSES`, shared by ``score`` and ``demo``."""
+
+
 def get_parser() -> argparse.ArgumentParser:
     """Build the argument parser with one subcommand per verb.
 
@@ -86,6 +90,7 @@ def get_parser() -> argparse.ArgumentParser:
     score.add_argument("--matrix", action="store_true",
                        help="PATH is a counts matrix: actual labels down, predicted across")
     _add_report_options(score)
+    _add_analysis_options(score)
     score.set_defaults(func=_run_score)
 
     demo = verbs.add_parser("demo", help="write the invented plankton demo and score it",
@@ -98,6 +103,7 @@ def get_parser() -> argparse.ArgumentParser:
     demo.add_argument("--seed", type=int, default=20261201, metavar="S",
                       help="seed of the generator (default gives the bundled demo)")
     _add_report_options(demo)
+    _add_analysis_options(demo)
     demo.set_defaults(func=_run_demo)
     return parser
 

@@ -14,12 +14,9 @@ import math
 import numpy as np
 
 from foldcorr.evaluation import Evaluation
+from foldcorr.report.sections import hooks
 
-__all__ = ["SCORE_SCHEMA", "score_dict", "dumps", "plain", "SECTION_JSON"]
-
-#: JSON for sections in ``Evaluation.extras``: a map from the extras key to a
-#: function ``(evaluation, doc) -> None`` that adds its keys to the document.
-SECTION_JSON: dict = {}
+__all__ = ["SCORE_SCHEMA", "score_dict", "dumps", "plain"]
 
 SCORE_SCHEMA = "foldcorr.score/1"
 
@@ -85,9 +82,8 @@ def score_dict(ev: Evaluation) -> dict:
         "per_class": _per_class(ev),
         "warnings": list(ev.warnings),
     }
-    for key, add in SECTION_JSON.items():
-        if key in ev.extras:
-            add(ev, doc)
+    for add in hooks(ev, "json"):
+        add(ev, doc)
     return plain(doc)
 
 

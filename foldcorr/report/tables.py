@@ -10,14 +10,9 @@ import math
 from dataclasses import dataclass, field
 
 from foldcorr.evaluation import Evaluation
+from foldcorr.report.sections import hooks
 
-__all__ = ["Column", "Table", "Report", "score_report", "format_value", "SECTION_TABLES"]
-
-#: Tables for sections that analyses attach to ``Evaluation.extras``: a map from
-#: the extras key to a function ``(evaluation, top) -> list[Table]``. Each
-#: analysis registers its renderer here; tables appear in registration order
-#: after the core tables.
-SECTION_TABLES: dict = {}
+__all__ = ["Column", "Table", "Report", "score_report", "format_value"]
 
 
 @dataclass(frozen=True)
@@ -108,8 +103,15 @@ def summary_table(ev: Evaluation) -> Table:
         "macro_mcc": "macro one-vs-rest MCC",
         "marginal_mismatch": "marginal mismatch",
     }
-    rows = tuple((label, ev.figure(name)) for name, label in names.items())
-    return Table("Pooled over all samples", (Column("figure", "label"), Column("value")), rows)
+    notes: dict[str, str] = {}
+    for more in hooks(ev, "summary_notes"):
+        notes.update(more(ev))
+    columns = (Column("figure", "label"), Column("value"))
+    if notes:
+        columns += (Column("", "text"),)
+    rows = tuple((label, ev.figure(name), *([notes.get(name, "")] if notes else []))
+                 for name, label in names.items())
+    return Table("Pooled over all samples", columns, rows)
 
 
 def fold_table(ev: Evaluation) -> Table | None:
@@ -128,6 +130,10 @@ def fold_table(ev: Evaluation) -> Table | None:
             f"range {s.min_rk:.3f} to {s.max_rk:.3f}; pooled R_K {ev.rk:.3f}")
     columns = (Column("fold", "label"), Column("samples", "count"), Column("R_K", "correlation"),
                Column("accuracy"), Column("bal. acc."), Column("macro MCC", "correlation"))
+    for more in hooks(ev, "fold_columns"):
+        for column, values in more(ev):
+            columns += (column,)
+            rows = tuple((*row, value) for row, value in zip(rows, values))
     return Table("Folds", columns, rows, note)
 
 
@@ -151,6 +157,10 @@ def class_table(ev: Evaluation, top: int | None = 20) -> Table:
                Column("MCC", "correlation"), Column("weight"), Column("contrib."),
                Column("drag"), Column("recall"), Column("precision"),
                Column("most often taken for", "text"))
+    for more in hooks(ev, "class_columns"):
+        for column, by_class in more(ev):
+            columns = (*columns[:-1], column, columns[-1])
+            rows = [(*row[:-1], by_class.get(row[0]), row[-1]) for row in rows]
     note = "" if shown == k else f"{k - shown} more classes not shown (use --top all)"
     return Table(f"Classes by drag (top {shown} of {k})", columns, tuple(rows), note)
 
@@ -172,7 +182,6 @@ def score_report(ev: Evaluation, *, top: int | None = 20, source: str | None = N
              ("classes", str(len(ev.classes))), ("folds", str(folds)),
              ("R_K", format_value(ev.rk, "metric")))
     tables = [summary_table(ev), fold_table(ev), class_table(ev, top)]
-    for key, make in SECTION_TABLES.items():
-        if key in ev.extras:
-            tables.extend(make(ev, top))
+    for make in hooks(ev, "tables"):
+        tables.extend(make(ev, top))
     return Report("foldcorr score", facts, tuple(t for t in tables if t is not None), ev.warnings)
