@@ -133,7 +133,8 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False) ->
     Parameters
     ----------
     path : str or path-like
-        Prediction table, or counts matrix CSV when ``matrix`` is true.
+        Prediction table, counts matrix CSV when ``matrix`` is true, or a
+        saved evaluation (``.nc``, see :mod:`foldcorr.saved`).
     spec : TableSpec
         Column roles (ignored for a matrix, except ``classes``).
     matrix : bool, default False
@@ -157,6 +158,10 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False) ->
     >>> load_tensor(p).dims
     ('fold', 'actual', 'predicted')
     """
+    from foldcorr.saved import is_saved_path, load_saved
+
+    if is_saved_path(path):  # a saved evaluation (NetCDF) stands wherever a table can
+        return load_saved(path).tensor
     if matrix:
         t = read_matrix(path)
         if spec.classes is not None:
