@@ -1,6 +1,6 @@
 r"""The metrics layer: pure functions from confusion tensors to labelled figures.
 
-Every function takes a confusion tensor (see :mod:`foldcorr.tally`), reduces
+Every function takes a confusion tensor (see :mod:`foldcorr.tensor`), reduces
 over ``actual`` and ``predicted``, and broadcasts over every other dim. Per-class
 figures carry a new dim ``class``. Nothing here reads files, prints or draws
 random numbers.
@@ -24,7 +24,7 @@ import numpy as np
 import xarray as xr
 
 from foldcorr.errors import UndefinedMetricWarning, check_choice
-from foldcorr.tally import ACTUAL, CLASS, PREDICTED, validate_tensor
+from foldcorr.tensor import ACTUAL, CLASS, PREDICTED, validate_tensor
 
 __all__ = [
     "UNDEFINED_CHOICES",
@@ -171,7 +171,7 @@ def rk(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[6, 2], [1, 3]], ["pos", "neg"])
     >>> round(float(rk(t)), 6)
     0.478091
@@ -188,7 +188,7 @@ def mcc(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> float(mcc(confusion_tensor([[5, 0], [0, 5]], [False, True])))
     1.0
     """
@@ -218,7 +218,7 @@ def ovr_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [1, 0, 5]], ["a", "b", "c"])
     >>> ovr_mcc(t).round(4).values.tolist()
     [0.7, 0.6591, 0.7222]
@@ -262,7 +262,7 @@ def decompose(t, *, undefined: str = "zero") -> xr.Dataset:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [1, 0, 5]], ["a", "b", "c"])
     >>> d = decompose(t)
     >>> round(float(d.contribution.sum("class")), 12) == round(float(d.rk), 12)
@@ -299,7 +299,7 @@ def accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> float(accuracy(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
     0.75
     """
@@ -312,7 +312,7 @@ def recall(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> recall(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).values.tolist()
     [0.75, 0.75]
     """
@@ -326,7 +326,7 @@ def precision(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> precision(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).round(4).values.tolist()
     [0.8571, 0.6]
     """
@@ -340,7 +340,7 @@ def f1(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> f1(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).round(4).values.tolist()
     [0.8, 0.6667]
     """
@@ -359,7 +359,7 @@ def balanced_accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> float(balanced_accuracy(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
     0.75
     """
@@ -375,7 +375,7 @@ def macro_f1(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> round(float(macro_f1(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))), 4)
     0.7333
     """
@@ -391,7 +391,7 @@ def macro_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [1, 0, 5]], ["a", "b", "c"])
     >>> round(float(macro_mcc(t)), 4)
     0.6938
@@ -407,7 +407,7 @@ def cohen_kappa(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> round(float(cohen_kappa(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))), 6)
     0.470588
     """
@@ -422,7 +422,7 @@ def support(t) -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> support(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).values.tolist()
     [8, 4]
     """
@@ -436,7 +436,7 @@ def predicted_count(t) -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> predicted_count(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).values.tolist()
     [7, 5]
     """
@@ -458,7 +458,7 @@ def top_confusion(t) -> xr.Dataset:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [0, 0, 5]], ["a", "b", "c"])
     >>> top = top_confusion(t)
     >>> top.top_confusion.values[:2].tolist(), top.top_confusion_count.values.tolist()

@@ -59,7 +59,7 @@ def render_rich(source, *, top: int | None = 20) -> Group:
     Examples
     --------
     >>> from rich.console import Console
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> console = Console(file=io.StringIO(), width=100, color_system=None)
     >>> console.print(render_rich(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))))
@@ -89,7 +89,7 @@ def render_text(report: Report, *, width: int = PLAIN_WIDTH) -> str:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> text = render_text(score_report(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))))
     >>> "\\x1b[" in text, "Classes by drag" in text
