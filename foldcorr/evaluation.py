@@ -210,7 +210,7 @@ def evaluate(t, *, undefined: str = "zero") -> Evaluation:
     notes: list[str] = []
     pooled_t = pool(t)
     pooled = _collect(notes, "pooled", lambda: _pooled(pooled_t, undefined))
-    per_class = _collect(notes, "per class", lambda: _per_class(pooled_t, undefined))
+    per_class = _collect(notes, "pooled", lambda: _per_class(pooled_t, undefined))
     folds = summary = None
     if FOLD in t.dims:
         folds = _collect(notes, "per fold", lambda: _per_fold(t, undefined))

@@ -120,7 +120,7 @@ def _warn_undefined(sums: _Sums, bad: np.ndarray, what: str, undefined: str, *, 
     if per_class:
         labels.append(sums.tensor.coords[ACTUAL].values)
     places = [
-        " ".join(f"{n}={lab[i]!r}" for n, lab, i in zip(names, labels, index))
+        " ".join(f"{n}={_item(lab[i])!r}" for n, lab, i in zip(names, labels, index))
         for index in np.argwhere(bad)
     ]
     where = "; ".join(places) if places and places[0] else "the whole tensor"
@@ -130,6 +130,10 @@ def _warn_undefined(sums: _Sums, bad: np.ndarray, what: str, undefined: str, *, 
         UndefinedMetricWarning,
         stacklevel=4,
     )
+
+
+def _item(value):
+    return value.item() if isinstance(value, np.generic) else value
 
 
 def rk(t, *, undefined: str = "zero") -> xr.DataArray:
@@ -278,7 +282,7 @@ def decompose(t, *, undefined: str = "zero") -> xr.Dataset:
     weight = np.where(defined, np.sqrt(a) * np.sqrt(b) / safe, 0.0)
     num = s.total[..., None] * s.diag - s.actual * s.predicted
     contribution = np.where(defined, num / safe, 0.0)
-    drag = weight - contribution
+    drag = np.maximum(weight - contribution, 0.0)  # w (1 - MCC) >= 0; clip rounding
     total_rk = rk(s.tensor, undefined=undefined).values
     mismatch = np.where(scale > 0, 1.0 - weight.sum(axis=-1), 1.0 - total_rk)
     per_class = ovr_mcc(s.tensor, undefined=undefined)

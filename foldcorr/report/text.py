@@ -39,8 +39,7 @@ def correlation_style(value) -> str:
 
 
 def _rich_table(table: Table) -> RichTable:
-    out = RichTable(title=table.title, title_justify="left", box=box.SIMPLE_HEAD,
-                    pad_edge=False, title_style="bold")
+    out = RichTable(box=box.SIMPLE_HEAD, pad_edge=False, show_edge=False)
     for col in table.columns:
         out.add_column(col.title, justify="right" if col.numeric else "left",
                        no_wrap=col.kind != "text", overflow="fold")
@@ -74,7 +73,7 @@ def render_rich(source, *, top: int | None = 20) -> Group:
         facts.append(value)
     parts = [facts]
     for table in report.tables:
-        parts.extend([Text(""), _rich_table(table)])
+        parts.extend([Text(""), Text(table.title, style="bold"), _rich_table(table)])
         if table.note:
             parts.append(Text(table.note, style="dim"))
     if report.warnings:
