@@ -344,13 +344,15 @@ def _tally_columns(columns, leading, weights, classes, *, attrs) -> xr.DataArray
     n = len(truth)
     _check_lengths(n, {p_name: pred, **leading, "weights": weights})
     codes_t, codes_p, labels, fixed = _encode_pair(truth, pred, classes, t_name, p_name)
-    group_codes, group_coords = [], {}
+    group_codes, group_coords, group_seen = [], {}, []
     for dim, values in leading.items():
-        codes, uniques = _encode_one(_as_1d(values, dim), dim)
+        codes, uniques, seen = _encode_one(_as_1d(values, dim), dim)
         group_codes.append((codes, len(uniques)))
         group_coords[dim] = uniques
+        group_seen.append(seen)
     w = None if weights is None else _check_weights(weights)
     counts = _bincount(codes_t, codes_p, len(labels), group_codes, w)
+    counts, group_coords = _drop_unseen_groups(counts, group_coords, group_seen)
     if not fixed:
         seen = None if w is None else _occurring(codes_t, codes_p, len(labels))
         counts, labels = _drop_unseen(counts, labels, seen)
@@ -384,7 +386,7 @@ def _check_weights(weights) -> np.ndarray:
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
         raise InvalidInputError(
-            f"weights must be finite and non-negative; got {w[row]!r} at row {row + 1}"
+            f"weights must be finite and non-negative; got {float(w[row])!r} at row {row + 1}"
         )
     return w
 
@@ -435,7 +437,7 @@ def _raise_unknown(name, values, codes, labels) -> None:
     bad = np.flatnonzero(codes < 0)
     if bad.size:
         row = int(bad[0])
-        value = np.asarray(values)[row]
+        value = _py(np.asarray(values)[row])
         shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
         raise InvalidInputError(
             f"column {name!r} row {row + 1}: label {value!r} is not among the classes "
@@ -515,12 +517,29 @@ def _sorted_codes(codes: np.ndarray, uniques: np.ndarray):
 
 
 def _encode_one(values, name: str):
+    """Codes, sorted unique values, and (for the direct path) which codes occur."""
+    direct = _direct_codes(values, values)
+    if direct is not None:
+        codes, _, labels = direct
+        seen = np.bincount(codes, minlength=len(labels)) > 0
+        return codes, [_py(v) for v in labels], seen
     codes, uniques = pd.factorize(_plain(values), use_na_sentinel=True)
     bad = np.flatnonzero(codes < 0)
     if bad.size:
         raise InvalidInputError(f"column {name!r} row {int(bad[0]) + 1}: missing value")
     codes, uniques = _sorted_codes(codes, np.asarray(uniques, dtype=object))
-    return codes, [_py(u) for u in uniques]
+    return codes, [_py(u) for u in uniques], None
+
+
+def _drop_unseen_groups(counts, coords: dict, seen_masks: list):
+    """Drop leading-dim entries that no sample had (only the direct path makes them)."""
+    coords = dict(coords)
+    for axis, (dim, seen) in enumerate(zip(list(coords), seen_masks)):
+        if seen is not None and not seen.all():
+            keep = np.flatnonzero(seen)
+            counts = np.take(counts, keep, axis=axis)
+            coords[dim] = [coords[dim][i] for i in keep]
+    return counts, coords
 
 
 def _py(value):
