@@ -36,7 +36,7 @@ from foldcorr import metrics as m
 from foldcorr.errors import InvalidInputError, OptionError, UndefinedMetricWarning
 from foldcorr.evaluation import Evaluation
 from foldcorr.samples import Samples, align_samples
-from foldcorr.tally import ACTUAL, FOLD, PREDICTED, pool
+from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, pool
 
 __all__ = ["GateRules", "RuleResult", "ClassShortfall", "GateResult", "check_gate",
            "RULE_TITLES"]
@@ -256,7 +256,7 @@ def check_gate(ev: Evaluation, rules: GateRules, *, baseline: Evaluation | None 
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> ev = evaluate(confusion_tensor([[4, 1, 0], [0, 3, 1], [2, 0, 5]], ["a", "b", "c"]))
     >>> result = check_gate(ev, GateRules(min_rk=0.6, min_class_mcc=0.6))

@@ -38,7 +38,7 @@ from foldcorr._files import atomic_target
 from foldcorr._version import __version__
 from foldcorr.errors import InvalidInputError
 from foldcorr.samples import Samples
-from foldcorr.tally import ACTUAL, COUNT, FOLD, PREDICTED, validate_tensor
+from foldcorr.tensor import ACTUAL, COUNT, FOLD, PREDICTED, validate_tensor
 
 __all__ = [
     "SAVED_SCHEMA",
@@ -197,7 +197,7 @@ def save_evaluation(path, tensor, *, samples: Samples | None = None, options: di
     Examples
     --------
     >>> import tempfile, pathlib
-    >>> from foldcorr.tally import tally
+    >>> from foldcorr.tensor import tally
     >>> t = tally(["a", "b", "b"], ["a", "a", "b"], folds=[1, 1, 2])
     >>> out = save_evaluation(pathlib.Path(tempfile.mkdtemp()) / "run.nc", t)
     >>> load_saved(out).tensor.values.tolist()
@@ -274,7 +274,7 @@ def load_saved(path) -> SavedEvaluation:
     Examples
     --------
     >>> import tempfile, pathlib
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> out = pathlib.Path(tempfile.mkdtemp()) / "m.nc"
     >>> _ = save_evaluation(out, confusion_tensor([[5, 1], [2, 7]], ["cat", "dog"]),
     ...                     options={"undefined": "nan"})

@@ -12,7 +12,8 @@ ORDER = ["errors", "tensor", "metrics", "analysis", "evaluation", "sources", "re
 LAYER = {"errors": "errors", "_files": "errors", "_version": "errors", "tensor": "tensor",
          "testing": "tensor", "metrics": "metrics", "evaluation": "evaluation",
          "sources": "sources", "demo": "sources", "report": "report", "cli": "cli",
-         "__main__": "cli", "__init__": "cli"}
+         "__main__": "cli", "__init__": "cli", "samples": "tensor", "gate": "evaluation",
+         "saved": "sources", "floors": "sources"}
 
 
 def layer_of(module: str) -> str:

@@ -37,7 +37,7 @@ def gate_report(result: GateResult) -> Report:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> from foldcorr.gate import GateRules, check_gate
     >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
@@ -74,7 +74,7 @@ def gate_dict(result: GateResult) -> dict:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> from foldcorr.gate import GateRules, check_gate
     >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
@@ -104,7 +104,7 @@ def junit_xml(result: GateResult) -> str:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> from foldcorr.gate import GateRules, check_gate
     >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
@@ -145,7 +145,7 @@ def render_gate(result: GateResult, fmt: str) -> str:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> from foldcorr.gate import GateRules, check_gate
     >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))

@@ -179,7 +179,7 @@ def render_html(report: Report, *, figures=(), plots_note: str = "") -> str:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> from foldcorr.report.tables import score_report
     >>> page = render_html(score_report(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))))
