@@ -22,6 +22,9 @@ _EXPORTS = {
         "support", "predicted_count", "top_confusion",
     ],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
+    "foldcorr.samples": ["Samples"],
+    "foldcorr.gate": ["GateRules", "GateResult", "check_gate"],
+    "foldcorr.saved": ["SavedEvaluation", "save_evaluation", "load_saved"],
     "foldcorr.errors": [
         "FoldcorrError", "InvalidTensorError", "InvalidInputError", "OptionError",
         "MissingDependencyError", "UndefinedMetricWarning",

@@ -231,10 +231,20 @@ def save_evaluation(path, tensor, *, samples: Samples | None = None, options: di
     target = Path(path)
     with atomic_target(target, suffix=".nc") as tmp:
         try:
-            ds.to_netcdf(tmp, engine=ENGINE, format="NETCDF4")
+            ds.to_netcdf(tmp, engine=ENGINE, format="NETCDF4", encoding=_encoding(data))
         except OSError as exc:
             raise InvalidInputError(f"cannot write {str(target)!r}: {exc}") from None
     return target
+
+
+def _encoding(data: dict) -> dict:
+    """Compress every variable; text ids as compressible fixed-width UTF-8 characters."""
+    out = {}
+    for name, var in data.items():
+        out[name] = {"zlib": True, "complevel": 4}
+        if var.dtype.kind == "U":
+            out[name].update(dtype="S1", _Encoding="utf-8")
+    return out
 
 
 def _sample_vars(samples: Samples, t: xr.DataArray) -> dict:
