@@ -213,3 +213,16 @@ def test_unwritable_save_path(tmp_path, table, capsys):
 def test_samples_validation():
     with pytest.raises(InvalidInputError, match="`actual` must be one-dimensional with 2 values"):
         Samples.of(["a", "b"], ["x"], ["x", "y"])
+
+
+def test_benchmark_quick_run():
+    import importlib.util
+    import pathlib
+
+    path = pathlib.Path(__file__).parent / "bench" / "bench_saved.py"
+    spec = importlib.util.spec_from_file_location("bench_saved", path)
+    bench = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(bench)
+    figures = bench.run(quick=True)
+    assert figures["nc_bytes"] < figures["csv_bytes"]
+    assert {"ours_s", "reference_s", "speedup_vs_reference"} <= set(figures)
