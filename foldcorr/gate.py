@@ -404,9 +404,8 @@ def _drop_rule(ev, baseline, rules: GateRules, samples, baseline_samples):
         passed = _holds(drop, rules.max_drop, "<=")
         return RuleResult("max_drop", drop, rules.max_drop, "<=", passed,
                           f"{head}; drop {_f(drop)}"), "plain", notes
-    from foldcorr.gate_interval import drop_interval  # analysis layer, loaded when needed
-
-    low, high, how, more = drop_interval(ev, baseline, shared, rules, samples, baseline_samples)
+    low, high, how, more = _drop_interval(ev, baseline, shared, rules, samples,
+                                          baseline_samples)
     passed = not (math.isfinite(low) and low > rules.max_drop)
     if not (math.isfinite(low) and math.isfinite(high)):
         passed = _holds(drop, rules.max_drop, "<=")
@@ -416,3 +415,52 @@ def _drop_rule(ev, baseline, rules: GateRules, samples, baseline_samples):
               f"{rules.max_drop:g}")
     return (RuleResult("max_drop", drop, rules.max_drop, "<=", passed, detail),
             how.split()[0], notes + more)
+
+
+def _drop_interval(ev, baseline, shared, rules: GateRules, samples, baseline_samples):
+    """Bootstrap interval (low, high) of the drop, how it was made, and notes.
+
+    Paired (the joint tensor of both runs' predictions on the same samples,
+    resampled together) when both sides carry the same samples; otherwise
+    each tensor is resampled on its own.
+    """
+    notes: list[str] = []
+    if samples is not None and baseline_samples is not None:
+        order, reason = align_samples(baseline_samples, samples)
+        if order is None:
+            notes.append(f"unpaired comparison: {reason}")
+        else:
+            from foldcorr.compare import compare_models, joint_tally
+
+            truth = baseline_samples.actual
+            pred_a, pred_b = baseline_samples.predicted, samples.predicted[order]
+            known = set(shared)
+            keep = np.array([a in known and x in known and y in known
+                             for a, x, y in zip(truth.tolist(), pred_a.tolist(),
+                                                pred_b.tolist())], dtype=bool)
+            folds = None if baseline_samples.fold is None else baseline_samples.fold[keep]
+            joint = joint_tally(truth[keep], pred_a[keep], pred_b[keep], folds=folds,
+                                classes=shared)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", UndefinedMetricWarning)
+                comp = compare_models(joint, n_resamples=rules.n_resamples,
+                                      level=rules.confidence, seed=rules.seed)
+            low, high = -float(comp.ci[1]), -float(comp.ci[0])
+            how = (f"paired bootstrap on {int(keep.sum())} shared samples, "
+                   f"{rules.n_resamples} resamples")
+            return low, high, how, notes + list(comp.warnings)
+    elif samples is not None or baseline_samples is not None:
+        notes.append("unpaired comparison: only one side carries sample ids")
+    from foldcorr.uncertainty import bootstrap_difference
+
+    def cut(t):
+        return t.sel({ACTUAL: shared, PREDICTED: shared})
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UndefinedMetricWarning)
+        res = bootstrap_difference(cut(baseline.tensor), cut(ev.tensor), m.rk,
+                                   n_resamples=rules.n_resamples, level=rules.confidence,
+                                   seed=rules.seed)
+    low, high = -float(res.high), -float(res.low)
+    how = f"unpaired bootstrap of both tensors, {rules.n_resamples} resamples"
+    return low, high, how, notes + list(res.warnings)

@@ -35,9 +35,10 @@ def render_score(ev, fmt: str, *, top: int | None = 20) -> str:
 
         return render_markdown(report)
     if fmt == "html":
-        from foldcorr.report.html import render_html
+        from foldcorr.report.html import render_html, svg_figures
 
-        return render_html(report)
+        figures, note = svg_figures(ev)
+        return render_html(report, figures=figures, plots_note=note)
     from foldcorr.report.text import render_text
 
     return render_text(report)

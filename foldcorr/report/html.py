@@ -18,7 +18,14 @@ import re
 
 from foldcorr.report.tables import Report, Table
 
-__all__ = ["render_html", "html_table"]
+__all__ = ["render_html", "html_table", "svg_figures", "PLOT_CAPTIONS"]
+
+#: Captions of the plots of :mod:`foldcorr.report.plots`, by figure name, in page order.
+PLOT_CAPTIONS = {
+    "loss_budget": "Loss budget: where 1 - R_K goes, class by class, plus the marginal mismatch",
+    "confusion": "Confusion heatmap (rows actual, columns predicted)",
+    "folds": "R_K per fold",
+}
 
 _CSS = """
 :root { color-scheme: light; --ink: #1d232a; --muted: #5b6672; --line: #d5dbe1;
@@ -234,6 +241,45 @@ def render_html(report: Report, *, figures=(), plots_note: str = "") -> str:
         "</html>",
         "",
     ])
+
+
+def svg_figures(ev) -> tuple[list[tuple[str, str]], str]:
+    """The plots of an evaluation as inline SVG, or a note saying why there are none.
+
+    Returns
+    -------
+    tuple
+        ``(figures, note)``: a list of ``(caption, svg)`` pairs, and "" or a
+        sentence shown instead of plots (when matplotlib, from the ``plot``
+        extra, is not installed).
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> from foldcorr.evaluation import evaluate
+    >>> figures, note = svg_figures(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
+    >>> all(svg.lstrip().startswith("<svg") for _, svg in figures)
+    True
+    """
+    import importlib.util
+
+    if importlib.util.find_spec("foldcorr.report.plots") is None:
+        return [], ""
+    if importlib.util.find_spec("matplotlib") is None:
+        return [], ("The plots need matplotlib, from the plot extra: "
+                    "pip install 'foldcorr[plot]'")
+    import io
+
+    from foldcorr.report import plots
+
+    out = []
+    for name, fig in plots.figures(ev).items():
+        buffer = io.StringIO()
+        fig.savefig(buffer, format="svg", bbox_inches="tight",
+                    metadata={"Date": None, "Creator": None})
+        out.append((PLOT_CAPTIONS.get(name, name.replace("_", " ")),
+                    _strip_xml_header(buffer.getvalue())))
+    return out, ""
 
 
 def _strip_xml_header(svg: str) -> str:
