@@ -294,7 +294,8 @@ def _save(args, tensor, source) -> None:
         provenance.update({k: v for k, v in saved.provenance.items()
                            if k in ("source", "source_sha256")})
     else:
-        provenance["source_sha256"] = file_sha256(source)
+        if Path(source).is_file():  # a folder or glob of tables has no single hash
+            provenance["source_sha256"] = file_sha256(source)
         if id_column:
             if getattr(args, "matrix", False):
                 raise OptionError("`--id` needs a prediction table; a counts matrix has no "
