@@ -65,6 +65,9 @@ def read_class_floors(path, classes) -> dict:
         raise InvalidInputError(f"{path.name}: the floors file is empty; expected lines class,floor")
     if [c.strip().lower() for c in rows[0][1]] == ["class", "floor"]:
         rows = rows[1:]
+    if not rows:
+        raise InvalidInputError(f"{path.name}: the floors file lists no class; expected lines "
+                                "class,floor")
     for line, row in rows:
         if len(row) != 2:
             raise InvalidInputError(

@@ -116,6 +116,9 @@ def test_floors_for_unknown_classes(capsys, good, tmp_path):
     floors.write_text("urchin,1.5\n")
     code, _, err = run(capsys, "gate", path, "--class-floors", floors)
     assert code == 2 and "must be a number from -1 to 1" in err
+    floors.write_text("class,floor\n")
+    code, _, err = run(capsys, "gate", path, "--class-floors", floors)
+    assert code == 2 and "the floors file lists no class" in err
 
 
 def test_baseline_drop_against_hand_computed_difference(capsys, tmp_path):
@@ -245,3 +248,4 @@ def test_bad_option_combinations(capsys, good):
     counts.write_text(",a,b\na,5,1\nb,2,7\n")
     code, _, err = run(capsys, "gate", counts, "--matrix", "--min-fold-rk", 0.1)
     assert code == 2 and "`min_fold_rk` needs folds" in err
+
