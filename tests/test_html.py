@@ -62,7 +62,8 @@ class Resources(HTMLParser):
     def handle_starttag(self, tag, attrs):
         self.tags.append(tag)
         for name, value in attrs:
-            local = value is not None and value.startswith("#")  # links inside inline SVG
+            # Links inside the inline SVG, and images embedded in it, are not fetches.
+            local = value is not None and value.startswith(("#", "data:"))
             if name in ("src", "href", "xlink:href", "srcset", "action", "data", "poster") \
                     and value and not local:
                 self.external.append((tag, name, value))
@@ -80,7 +81,7 @@ def test_self_contained(report):
     assert parser.external == []
     assert "link" not in parser.tags and "@import" not in page
     assert page.count("url(") == page.count("url(#")
-    assert parser.tags.count("script") == 1 and parser.tags.count("style") == 1
+    assert parser.tags.count("script") == 1  # our sort script; inline SVG may bring <style>
 
 
 def test_same_figures_as_json(report):
@@ -148,3 +149,35 @@ def test_sorting_a_column_reorders_rows(report, tmp_path):
             page.screenshot(path=str(tmp_path / "sorted.png"), full_page=True)
         finally:
             browser.close()
+
+
+def _page(tmp_path, argv=()):
+    path = tmp_path / "calls.csv"
+    rng = np.random.default_rng(2)
+    y = rng.choice(["a", "b", "c"], 200)
+    pd.DataFrame({"actual": y, "predicted": np.where(rng.random(200) < 0.8, y, "a"),
+                  "fold": np.arange(200) % 2}).to_csv(path, index=False)
+    out = tmp_path / "r.html"
+    assert main(["score", str(path), "--format", "html", "--output", str(out), *argv]) == 0
+    return out.read_text()
+
+
+def test_plots_inline_as_svg(tmp_path):
+    pytest.importorskip("foldcorr.report.plots")
+    pytest.importorskip("matplotlib")
+    page = _page(tmp_path)
+    body = page.split('<section id="plots">')[1]
+    assert body.count("<figure><svg") == 3  # loss budget, heatmap, R_K per fold
+    assert "<?xml" not in page and "<!DOCTYPE svg" not in page
+
+
+def test_plots_need_the_plot_extra(tmp_path, monkeypatch):
+    pytest.importorskip("foldcorr.report.plots")
+    import importlib.util
+
+    real = importlib.util.find_spec
+    monkeypatch.setattr(importlib.util, "find_spec",
+                        lambda name, *a: None if name == "matplotlib" else real(name, *a))
+    page = _page(tmp_path)
+    assert "The plots need matplotlib, from the plot extra" in page
+    assert "<svg" not in page
