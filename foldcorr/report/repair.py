@@ -75,7 +75,7 @@ def confusion_table(ra, top: int | None = 20) -> Table:
     >>> from foldcorr.repair import repair_analysis
     >>> ra = repair_analysis(confusion_tensor([[5, 1], [2, 6]], ["a", "b"]))
     >>> confusion_table(ra).cells()
-    [['1', 'b', 'a', '2', '0.173'], ['2', 'a', 'b', '1', '0.082']]
+    [['1', 'b', 'a', '2', '0.283'], ['2', 'a', 'b', '1', '0.173']]
     """
     rows = ra.confusion_rows()
     shown = rows if top is None else rows[:top]
