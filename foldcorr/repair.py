@@ -136,7 +136,7 @@ def _warn(m: _Margins, bad: np.ndarray, what: str, undefined: str, tail=()) -> N
     spots = np.argwhere(bad)
     shown = []
     for index in spots[:_MAX_PLACES]:
-        parts = [f"{d}={m.labels(d, bad.shape[a])[i]!r}" for a, (d, i) in
+        parts = [f"{d}={_py(m.labels(d, bad.shape[a])[i])!r}" for a, (d, i) in
                  enumerate(zip(names, index))]
         shown.append(" ".join(parts) or "the whole tensor")
     more = len(spots) - len(shown)
@@ -400,8 +400,8 @@ def costliest_confusions(t, *, top: int | None = 20, undefined: str = "zero") ->
         ``predicted`` (class labels), ``count`` and ``gain``. Only non-empty
         off-diagonal cells are ranked, by gain (largest first; NaN gains
         last), then by count, then by cell order. With leading dims, slices
-        with fewer confusions are padded with ``actual`` None, ``count`` 0
-        and ``gain`` NaN.
+        with fewer confusions are padded with missing labels (xarray stores
+        them as NaN in object arrays), ``count`` 0 and ``gain`` NaN.
 
     Raises
     ------
