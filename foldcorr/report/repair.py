@@ -87,7 +87,8 @@ def confusion_table(ra, top: int | None = 20) -> Table:
             f"all of a class's misses / false alarms / both; w/o class: R_K without the "
             f"class's row and column, minus R_K")
     if not rows:
-        note = "no confusions: every sample is on the diagonal"
+        return Table("Costliest confusions (none)", columns, body,
+                     "no confusions: every sample is on the diagonal")
     return Table(f"Costliest confusions (top {len(shown)} by repair gain)", columns, body, note)
 
 
