@@ -27,7 +27,7 @@ _EXPORTS = {
     ],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
     "foldcorr.report.plots": [
-        "loss_budget_figure", "confusion_figure", "fold_figure", "save_plots",
+        "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
     ],
     "foldcorr.errors": [
         "FoldcorrError", "InvalidTensorError", "InvalidInputError", "OptionError",

@@ -149,3 +149,10 @@ def test_cli_plot_option_writes_the_files(tmp_path, capsys):
     captured = capsys.readouterr()
     assert "6 plot files written" in captured.err
     assert len(list((tmp_path / "figs").glob("*.png"))) == 3
+
+
+def test_svg_text_is_the_same_on_every_run():
+    ev = _ev()
+    first = plots.figure_svg(plots.loss_budget_figure(ev))
+    assert first == plots.figure_svg(plots.loss_budget_figure(ev))
+    assert ET.fromstring(first.encode()).tag.endswith("svg")

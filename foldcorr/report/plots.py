@@ -32,6 +32,7 @@ __all__ = [
     "fold_data",
     "fold_figure",
     "figures",
+    "figure_svg",
     "save_plots",
 ]
 
@@ -543,11 +544,34 @@ def save_plots(ev, folder, *, formats=("png", "svg"), max_classes: int = 100) ->
         for fmt in formats:
             path = target / f"{name}.{fmt}"
             with atomic_target(path, suffix=f".{fmt}") as tmp:
-                fig.savefig(tmp, format=fmt, dpi=DPI, metadata=_metadata(fmt))
+                _save(fig, tmp, fmt)
             written.append(path)
     return written
 
 
-def _metadata(fmt: str) -> dict:
-    # no timestamps in the files, so the same evaluation gives the same bytes
-    return {"Date": None} if fmt == "svg" else {}
+def figure_svg(fig) -> str:
+    """A figure as SVG text, e.g. to embed inline in an HTML page.
+
+    The text is the same for the same figure on every run (fixed ids, no date).
+
+    Examples
+    --------
+    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.evaluation import evaluate
+    >>> svg = figure_svg(loss_budget_figure(evaluate(confusion_tensor([[5, 1], [2, 6]], [0, 1]))))
+    >>> svg.lstrip().startswith("<?xml"), "</svg>" in svg
+    (True, True)
+    """
+    import io
+
+    buffer = io.BytesIO()
+    _save(fig, buffer, "svg")
+    return buffer.getvalue().decode("utf-8")
+
+
+def _save(fig, target, fmt: str) -> None:
+    mpl = require("matplotlib", extra="plot", purpose="drawing plots")
+    # fixed ids and no timestamp, so the same evaluation gives the same SVG bytes
+    with mpl.rc_context({"svg.hashsalt": "foldcorr"}):
+        fig.savefig(target, format=fmt, dpi=DPI,
+                    metadata={"Date": None} if fmt == "svg" else None)
