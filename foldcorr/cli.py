@@ -85,6 +85,9 @@ def _add_save_options(p: argparse.ArgumentParser) -> None:
 
 def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     """Options of the analyses in :data:`ANALYSES`, shared by ``score`` and ``demo``."""
+    p.add_argument("--plot", metavar="DIR",
+                   help="also draw the loss budget, confusion heatmap and fold plot "
+                        "into DIR as PNG and SVG (needs the 'plot' extra)")
 
 
 def get_parser() -> argparse.ArgumentParser:
@@ -406,6 +409,18 @@ def _console():
 ANALYSES: list = []
 
 
+def _repair_step(args, ev):
+    """Always on: repair gains, costliest confusions, leave-class-out, fold stability."""
+    from foldcorr.repair import repair_analysis
+
+    result = repair_analysis(ev.tensor, top=getattr(args, "top", 20),
+                             undefined=getattr(args, "undefined", "zero"))
+    return ev.with_extra("repair", result)
+
+
+ANALYSES.append(_repair_step)
+
+
 def _analyse(args, ev):
     for step in ANALYSES:
         ev = step(args, ev)
@@ -433,7 +448,12 @@ def _run_demo(args) -> int:
 
 
 def _emit(args, ev) -> None:
-    """Write an evaluation to --output or stdout in the chosen format."""
+    """Write an evaluation to --output or stdout in the chosen format (and --plot files)."""
+    if getattr(args, "plot", None):
+        from foldcorr.report.plots import save_plots
+
+        written = save_plots(ev, args.plot)
+        print(f"{len(written)} plot files written to {args.plot}", file=sys.stderr)
     if args.output:
         from foldcorr._files import write_text
         from foldcorr.report import render_score

@@ -154,3 +154,11 @@ def test_validate_tensor_puts_class_dims_last():
 def test_assert_tensor_equal_reports_differences():
     with pytest.raises(AssertionError, match="coordinate 'actual' differs"):
         assert_tensor_equal(tally(["a"], ["a"]), tally(["b"], ["b"]))
+
+
+def test_integer_folds_with_gaps_keep_only_folds_that_occur():
+    t = tally([0, 1, 1], [0, 1, 0], folds=[2, 2, 5])
+    assert t.coords["fold"].values.tolist() == [2, 5]
+    weighted = tally([0, 1, 1], [0, 1, 0], folds=[2, 2, 5], weights=[1.0, 0.0, 0.0])
+    assert weighted.coords["fold"].values.tolist() == [2, 5]  # zero weight still occurs
+    assert weighted.sel(fold=5).values.sum() == 0.0

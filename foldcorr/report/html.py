@@ -268,18 +268,11 @@ def svg_figures(ev) -> tuple[list[tuple[str, str]], str]:
     if importlib.util.find_spec("matplotlib") is None:
         return [], ("The plots need matplotlib, from the plot extra: "
                     "pip install 'foldcorr[plot]'")
-    import io
-
     from foldcorr.report import plots
 
-    out = []
-    for name, fig in plots.figures(ev).items():
-        buffer = io.StringIO()
-        fig.savefig(buffer, format="svg", bbox_inches="tight",
-                    metadata={"Date": None, "Creator": None})
-        out.append((PLOT_CAPTIONS.get(name, name.replace("_", " ")),
-                    _strip_xml_header(buffer.getvalue())))
-    return out, ""
+    return [(PLOT_CAPTIONS.get(name, name.replace("_", " ")),
+             _strip_xml_header(plots.figure_svg(fig)))
+            for name, fig in plots.figures(ev).items()], ""
 
 
 def _strip_xml_header(svg: str) -> str:
