@@ -33,7 +33,7 @@ _CSS = """
 * { box-sizing: border-box; }
 body { margin: 0; font: 15px/1.45 system-ui, -apple-system, "Segoe UI", sans-serif;
   color: var(--ink); background: #fff; }
-main { max-width: 1200px; margin: 0 auto; padding: 24px 28px 48px; }
+main { max-width: 1680px; margin: 0 auto; padding: 24px 28px 48px; }
 h1 { font-size: 1.6em; margin: 0 0 8px; }
 h2 { font-size: 1.15em; margin: 28px 0 8px; }
 dl.facts { display: flex; flex-wrap: wrap; gap: 6px 22px; margin: 0 0 12px; }
@@ -41,7 +41,8 @@ dl.facts div { display: flex; gap: 6px; }
 dl.facts dt { color: var(--muted); }
 dl.facts dd { margin: 0; font-weight: 600; }
 .scroll { overflow-x: auto; }
-table { border-collapse: collapse; font-variant-numeric: tabular-nums; }
+table { border-collapse: collapse; font-variant-numeric: tabular-nums; font-size: 14px; }
+p.note, figcaption { max-width: 60em; }
 th, td { padding: 4px 10px; border-bottom: 1px solid var(--line); text-align: left;
   white-space: nowrap; }
 th { background: var(--head); font-weight: 600; }
