@@ -27,7 +27,9 @@ import importlib
 __all__ = ["SECTIONS", "hooks"]
 
 #: Extras key -> report module that renders it, in report order.
-SECTIONS: dict[str, str] = {}
+SECTIONS: dict[str, str] = {
+    "uncertainty": "foldcorr.report.uncertainty",
+}
 
 
 def hooks(ev, name: str) -> list:
