@@ -211,8 +211,11 @@ def _uncertainty_step(args, ev):
                 raise OptionError(f"`{flag}` needs `--ci LEVEL` (e.g. --ci 0.95); got {flag} "
                                   f"{value!r} without it")
         return ev
-    from foldcorr.uncertainty import summarise_uncertainty
+    from foldcorr.uncertainty import check_level, check_resamples, summarise_uncertainty
 
+    check_level(level, name="--ci")
+    if resamples is not None:
+        check_resamples(resamples, name="--resamples")
     result = summarise_uncertainty(
         ev.tensor, level=level, n_resamples=2000 if resamples is None else resamples,
         method=method or "percentile", seed=getattr(args, "seed", None),
@@ -254,18 +257,25 @@ def _run_compare(args) -> int:
 
     spec = PairSpec(truth=args.truth, pred_a=args.pred_a, pred_b=args.pred_b, pred=args.pred,
                     id=args.id, fold=args.fold, classes=args.classes)
+    from foldcorr.uncertainty import check_level, check_resamples
+
+    check_level(args.ci, name="--ci")
+    check_resamples(args.resamples, name="--resamples")
+    if args.permutations is not None:
+        check_resamples(args.permutations, name="--permutations")
     joint = load_joint(args.path, spec, path_b=args.path_b)
     result = compare_models(joint, n_resamples=args.resamples, level=args.ci, seed=args.seed,
                             n_permutations=args.permutations, undefined=args.undefined)
     if args.path_b is None:
-        labels = (f"A ({args.pred_a})", f"B ({args.pred_b})")
+        names = (f"column {args.pred_a!r}", f"column {args.pred_b!r}")
     else:
         from pathlib import Path
 
-        labels = (f"A ({Path(args.path).name})", f"B ({Path(args.path_b).name})")
+        names = (f"{Path(args.path).name}, column {args.pred_a or args.pred!r}",
+                 f"{Path(args.path_b).name}, column {args.pred_b or args.pred!r}")
     source = joint.attrs.get("source")
     if args.output or args.format != "text":
-        text = render_compare(result, args.format, labels=labels, top=args.top, source=source)
+        text = render_compare(result, args.format, names=names, top=args.top, source=source)
         if args.output:
             from foldcorr._files import write_text
 
@@ -273,7 +283,7 @@ def _run_compare(args) -> int:
         else:
             sys.stdout.write(text)
         return EXIT_OK
-    _console().print(_rich(compare_report(result, labels=labels, top=args.top, source=source)))
+    _console().print(_rich(compare_report(result, names=names, top=args.top, source=source)))
     return EXIT_OK
 
 

@@ -67,7 +67,7 @@ _BLOCK_CELLS = 1 << 22
 # validation
 
 
-def check_level(level) -> float:
+def check_level(level, *, name: str = "level") -> float:
     """Return ``level`` as a float, or raise unless it lies strictly in (0, 1).
 
     Examples
@@ -82,7 +82,7 @@ def check_level(level) -> float:
     ok = isinstance(level, numbers.Real) and not isinstance(level, bool)
     if not ok or not (0.0 < float(level) < 1.0):
         raise OptionError(
-            f"`level` must be a number strictly between 0 and 1 (e.g. 0.95); got {level!r}"
+            f"`{name}` must be a number strictly between 0 and 1 (e.g. 0.95); got {level!r}"
         )
     return float(level)
 

@@ -56,7 +56,7 @@ def verdict(c, labels=("A", "B")) -> str:
     return f"the data cannot tell the models apart; {detail}"
 
 
-def compare_report(c, *, labels=("A", "B"), top: int | None = 20,
+def compare_report(c, *, labels=("A", "B"), names=None, top: int | None = 20,
                    source: str | None = None) -> Report:
     """The comparison as a :class:`~foldcorr.report.tables.Report`.
 
@@ -73,8 +73,10 @@ def compare_report(c, *, labels=("A", "B"), top: int | None = 20,
     lvl = percent(c.level)
     facts = (("source", source or "(in memory)"), ("samples", format_value(c.n, "count")),
              ("classes", str(len(c.classes))),
-             ("folds", str(c.folds.sizes["fold"]) if c.folds is not None else "none"),
-             ("verdict", verdict(c, labels)))
+             ("folds", str(c.folds.sizes["fold"]) if c.folds is not None else "none"))
+    if names is not None:
+        facts += ((f"model {a}", str(names[0])), (f"model {b}", str(names[1])))
+    facts += (("verdict", verdict(c, labels)),)
     low, high = c.ci
     summary = Table(
         "R_K of each model, paired",
@@ -123,7 +125,7 @@ def _label(value):
     return value.item() if hasattr(value, "item") else value
 
 
-def compare_dict(c, *, labels=("A", "B"), source: str | None = None) -> dict:
+def compare_dict(c, *, labels=("A", "B"), names=None, source: str | None = None) -> dict:
     """The ``foldcorr.compare/1`` document of a comparison.
 
     Examples
@@ -154,8 +156,8 @@ def compare_dict(c, *, labels=("A", "B"), source: str | None = None) -> dict:
         "source": source,
         "n": c.n,
         "classes": c.classes,
-        "a": {"label": labels[0], "rk": c.rk_a},
-        "b": {"label": labels[1], "rk": c.rk_b},
+        "a": {"label": labels[0], "name": None if names is None else names[0], "rk": c.rk_a},
+        "b": {"label": labels[1], "name": None if names is None else names[1], "rk": c.rk_b},
         "difference": {"estimate": c.difference, "ci": list(c.ci), "p_value": c.p_value,
                        "resamples": c.n_resamples, "permutations": c.n_permutations,
                        "level": c.level, "seed": c.seed, "method": "percentile"},
@@ -167,7 +169,7 @@ def compare_dict(c, *, labels=("A", "B"), source: str | None = None) -> dict:
     return plain(doc)
 
 
-def render_compare(c, fmt: str, *, labels=("A", "B"), top: int | None = 20,
+def render_compare(c, fmt: str, *, labels=("A", "B"), names=None, top: int | None = 20,
                    source: str | None = None) -> str:
     """A comparison as text (no colour), JSON or Markdown.
 
@@ -184,8 +186,8 @@ def render_compare(c, fmt: str, *, labels=("A", "B"), top: int | None = 20,
 
     check_choice("format", fmt, ("text", "json", "markdown"))
     if fmt == "json":
-        return dumps(compare_dict(c, labels=labels, source=source))
-    report = compare_report(c, labels=labels, top=top, source=source)
+        return dumps(compare_dict(c, labels=labels, names=names, source=source))
+    report = compare_report(c, labels=labels, names=names, top=top, source=source)
     if fmt == "markdown":
         from foldcorr.report.markdown import render_markdown
 
