@@ -21,6 +21,12 @@ _EXPORTS = {
         "cohen_kappa", "recall", "precision", "f1", "macro_f1", "macro_mcc",
         "support", "predicted_count", "top_confusion",
     ],
+    "foldcorr.uncertainty": [
+        "resample_cells", "bootstrap", "bootstrap_difference", "fold_statistics",
+        "summarise_uncertainty", "drag", "BootstrapResult", "FoldStatistics", "Uncertainty",
+    ],
+    "foldcorr.compare": ["joint_tally", "model_tensors", "compare_models", "Comparison"],
+    "foldcorr.crossval": ["cross_tally", "rk_score", "rk_scorer"],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
     "foldcorr.errors": [
         "FoldcorrError", "InvalidTensorError", "InvalidInputError", "OptionError",
