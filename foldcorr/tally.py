@@ -435,7 +435,7 @@ def _raise_unknown(name, values, codes, labels) -> None:
     bad = np.flatnonzero(codes < 0)
     if bad.size:
         row = int(bad[0])
-        value = np.asarray(values)[row]
+        value = _py(np.asarray(values)[row])
         shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
         raise InvalidInputError(
             f"column {name!r} row {row + 1}: label {value!r} is not among the classes "

@@ -89,11 +89,11 @@ def test_percentile_interval_matches_per_sample_resampling_with_sklearn_stratifi
     ref_rng = np.random.default_rng(12)
     groups = [np.flatnonzero(folds == f) for f in range(3)]
     ref = []
-    for _ in range(1500):
+    for _ in range(1000):
         idx = np.concatenate([g[ref_rng.integers(0, 80, 80)] for g in groups])
         ref.append(matthews_corrcoef(truth[idx], pred[idx]))
     low, high = np.quantile(ref, [0.025, 0.975])
-    tol = _tolerance(float(ours.draws.std()), 4000, 1500)
+    tol = _tolerance(float(ours.draws.std()), 4000, 1000)
     assert abs(float(ours.low) - low) < tol
     assert abs(float(ours.high) - high) < tol
     assert float(ours.estimate) == pytest.approx(matthews_corrcoef(truth, pred), abs=1e-12)
@@ -107,8 +107,8 @@ def test_bca_interval_matches_scipy_bootstrap_with_sklearn_statistic():
     ours = fc.bootstrap(tally(truth, pred), n_resamples=4000, method="bca", seed=2,
                         keep_draws=True)
     ref = stats.bootstrap((truth, pred), matthews_corrcoef, paired=True, vectorized=False,
-                          n_resamples=1500, method="BCa", random_state=3)
-    tol = _tolerance(float(ours.draws.std()), 4000, 1500)
+                          n_resamples=1000, method="BCa", random_state=3)
+    tol = _tolerance(float(ours.draws.std()), 4000, 1000)
     assert abs(float(ours.low) - ref.confidence_interval.low) < tol
     assert abs(float(ours.high) - ref.confidence_interval.high) < tol
 
@@ -137,14 +137,14 @@ def test_per_class_mcc_intervals_match_per_sample_one_vs_rest():
                         keep_draws=True)
     assert ours.low.dims == ("class",)
     ref_rng = np.random.default_rng(42)
-    ref = np.empty((800, 3))
-    for r in range(800):
+    ref = np.empty((500, 3))
+    for r in range(500):
         idx = ref_rng.integers(0, 200, 200)
         for k in range(3):
             ref[r, k] = matthews_corrcoef(truth[idx] == k, pred[idx] == k)
     low, high = np.quantile(ref, [0.025, 0.975], axis=0)
     sigma = ours.draws.std("resample").values
-    tol = _tolerance(sigma, 3000, 800)
+    tol = _tolerance(sigma, 3000, 500)
     assert np.all(np.abs(ours.low.values - low) < tol)
     assert np.all(np.abs(ours.high.values - high) < tol)
 
@@ -159,11 +159,11 @@ def test_difference_matches_two_independent_per_sample_bootstraps():
         matthews_corrcoef(yb, pb) - matthews_corrcoef(ya, pa), abs=1e-12)
     ref_rng = np.random.default_rng(52)
     ref = []
-    for _ in range(1000):
+    for _ in range(700):
         ia, ib = ref_rng.integers(0, 150, 150), ref_rng.integers(0, 180, 180)
         ref.append(matthews_corrcoef(yb[ib], pb[ib]) - matthews_corrcoef(ya[ia], pa[ia]))
     low, high = np.quantile(ref, [0.025, 0.975])
-    tol = _tolerance(float(ours.draws.std()), 3000, 1000)
+    tol = _tolerance(float(ours.draws.std()), 3000, 700)
     assert abs(float(ours.low) - low) < tol and abs(float(ours.high) - high) < tol
 
 
