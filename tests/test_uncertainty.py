@@ -107,8 +107,11 @@ def test_bca_interval_matches_scipy_bootstrap_with_sklearn_statistic():
     ours = fc.bootstrap(tally(truth, pred), n_resamples=4000, method="bca", seed=2,
                         keep_draws=True)
     ref = stats.bootstrap((truth, pred), matthews_corrcoef, paired=True, vectorized=False,
-                          n_resamples=1000, method="BCa", random_state=3)
-    tol = _tolerance(float(ours.draws.std()), 4000, 1000)
+                          n_resamples=2000, method="BCa", random_state=3)
+    # BCa reads quantiles further in the tail (about 0.01 here, where the
+    # order-statistic error is 3.77 sigma / sqrt(B) rather than 2.67) and also
+    # estimates z0 from the draws, so the tolerance is scaled up accordingly
+    tol = 1.5 * 3.77 / 2.67 * _tolerance(float(ours.draws.std()), 4000, 2000)
     assert abs(float(ours.low) - ref.confidence_interval.low) < tol
     assert abs(float(ours.high) - ref.confidence_interval.high) < tol
 
