@@ -25,7 +25,12 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from foldcorr.errors import InvalidInputError, InvalidTensorError, UndefinedMetricWarning, check_choice
+from foldcorr.errors import (
+    InvalidInputError,
+    InvalidTensorError,
+    UndefinedMetricWarning,
+    check_choice,
+)
 from foldcorr.metrics import ovr_mcc, rk
 from foldcorr.tally import ACTUAL, FOLD, PREDICTED
 from foldcorr.tally import (  # the tensor layer's own label coding, shared
@@ -398,7 +403,7 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     notes: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", UndefinedMetricWarning)
-        pa, pb = t_a.sum(FOLD) if FOLD in t_a.dims else t_a, t_b.sum(FOLD) if FOLD in t_b.dims else t_b
+        pa, pb = (t_a.sum(FOLD), t_b.sum(FOLD)) if FOLD in t_a.dims else (t_a, t_b)
         rk_a, rk_b = float(stat_rk(pa)), float(stat_rk(pb))
         mcc_a, mcc_b = stat_mcc(pa), stat_mcc(pb)
         fold_a = stat_rk(t_a) if FOLD in t_a.dims else None

@@ -75,7 +75,7 @@ def _same_kind(*columns: pd.Series) -> list[pd.Series]:
 
 
 def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArray:
-    """Read two models' predictions into a joint tensor ``([fold,] actual, predicted_a, predicted_b)``.
+    """Read two models' predictions of the same samples into a joint tensor.
 
     Parameters
     ----------
@@ -89,7 +89,8 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
     Returns
     -------
     xarray.DataArray
-        The joint tensor, with ``source`` in ``attrs``.
+        The joint tensor ``([fold,] actual, predicted_a, predicted_b)``, with
+        ``source`` in ``attrs``.
 
     Raises
     ------
@@ -124,7 +125,8 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
     else:
         path_b = Path(path_b)
         if spec.id is None:
-            raise InvalidInputError("with two tables, name the id column that joins them (--id COL)")
+            raise InvalidInputError(
+                "with two tables, name the id column that joins them (--id COL)")
         col_a, col_b = spec.pred_a or spec.pred, spec.pred_b or spec.pred
         _need(path, df, [spec.id, spec.truth, col_a, fold])
         other = read_table(path_b)

@@ -464,13 +464,6 @@ def _draw_notes(label: str, caught, undefined_mask, estimate, n) -> tuple[str, .
     return tuple(notes)
 
 
-def _recorded():
-    cm = warnings.catch_warnings(record=True)
-    caught = cm.__enter__()
-    warnings.simplefilter("always", UndefinedMetricWarning)
-    return cm, caught
-
-
 def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_draws):
     """Bootstrap several statistics on the same resamples of ``t``.
 
@@ -485,15 +478,13 @@ def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_dra
     jobs = {name: (stat, bool(pooled), _label(stat)) for name, (stat, pooled) in jobs.items()}
     estimates = {name: _apply(stat, _pool_fold(t, pooled), label)
                  for name, (stat, pooled, label) in jobs.items()}
-    cm, caught = _recorded()
-    try:
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", UndefinedMetricWarning)
         draws = _draws(strata, rng, n, jobs)
         moments = {}
         if method == "bca":
             for name, (stat, pooled, label) in jobs.items():
                 moments[name] = _jack_moments(t, stat, pooled, estimates[name], label)
-    finally:
-        cm.__exit__(None, None, None)
     results = {}
     for name, (stat, pooled, label) in jobs.items():
         est = estimates[name]
@@ -542,7 +533,8 @@ def _jack_moments(t: xr.DataArray, statistic, pooled: bool, estimate, label: str
     if by_fold:
         tf = t.transpose(FOLD, *xlead, ACTUAL, PREDICTED).values.reshape(t.sizes[FOLD], s, k2)
         tf = np.concatenate([tf, np.zeros((t.sizes[FOLD], s, 1), np.int64)], axis=2)
-        weights = np.take_along_axis(tf, np.broadcast_to(strata.index, tf.shape[:1] + strata.index.shape), axis=2)
+        index = np.broadcast_to(strata.index, tf.shape[:1] + strata.index.shape)
+        weights = np.take_along_axis(tf, index, axis=2)
     else:
         weights = strata.counts[None]
     thetas = []
@@ -711,8 +703,8 @@ def bootstrap_difference(t_a, t_b, statistic=rk, *, n_resamples: int = 2000,
     est_b = _apply(statistic, _pool_fold(tb, pool), label)
     estimate = (est_b - est_a).rename(est_b.name)
     jobs = {"x": (statistic, pool, label)}
-    cm, caught = _recorded()
-    try:
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", UndefinedMetricWarning)
         da = _draws(_Strata.of(ta, (ACTUAL, PREDICTED)), rng, n, jobs)["x"]
         db = _draws(_Strata.of(tb, (ACTUAL, PREDICTED)), rng, n, jobs)["x"]
         mom = None
@@ -721,8 +713,6 @@ def bootstrap_difference(t_a, t_b, statistic=rk, *, n_resamples: int = 2000,
             nb, dnb = _jack_moments(tb, statistic, pool, estimate, label)
             mom = ((nb - na).transpose(*estimate.dims).values,
                    (dna + dnb).transpose(*estimate.dims).values)
-    finally:
-        cm.__exit__(None, None, None)
     diff = db - da
     low, high, undefined = _interval(diff, estimate, level, method, mom)
     notes = _draw_notes(label, caught, undefined, estimate, n)

@@ -14,7 +14,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-import xarray as xr
 
 from foldcorr.metrics import rk
 from foldcorr.tally import confusion_tensor

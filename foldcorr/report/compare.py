@@ -133,7 +133,8 @@ def compare_dict(c, *, labels=("A", "B"), names=None, source: str | None = None)
     >>> import numpy as np
     >>> from foldcorr.compare import compare_models, joint_tally
     >>> y = np.array([0, 1, 2] * 60)
-    >>> doc = compare_dict(compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0))
+    >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
+    >>> doc = compare_dict(c)
     >>> doc["schema"], doc["b"]["rk"], doc["difference"]["p_value"] < 0.01
     ('foldcorr.compare/1', 1.0, True)
     """
