@@ -297,6 +297,12 @@ class Comparison:
             return None
         return "b" if self.difference > 0 else "a"
 
+    def __rich__(self):
+        from foldcorr.report.compare import compare_report  # rendering lives in the report layer
+        from foldcorr.report.text import render_rich
+
+        return render_rich(compare_report(self))
+
 
 class _Cells:
     """The nonzero joint cells of each fold, decoded to (actual, a, b) codes."""
