@@ -433,6 +433,9 @@ def _interval(draws: xr.DataArray, estimate: xr.DataArray, level: float, method:
         for z in (_ndtri(alpha / 2), _ndtri(1 - alpha / 2)):
             bounds.append(_ndtr(z0 + (z0 + z) / (1 - accel * (z0 + z))))
         q_lo, q_hi = bounds
+        # a (z0 + z) at or beyond 1 leaves the adjusted level undefined
+        undefined = undefined | ~np.isfinite(q_lo) | ~np.isfinite(q_hi)
+        q_lo, q_hi = np.nan_to_num(q_lo, nan=0.5), np.nan_to_num(q_hi, nan=0.5)
     low = _quantile_at(d_sorted, np.asarray(q_lo, float))
     high = _quantile_at(d_sorted, np.asarray(q_hi, float))
     low = np.where(undefined, np.nan, low)
