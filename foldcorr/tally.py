@@ -31,6 +31,9 @@ __all__ = [
     "validate_tensor",
     "pool",
     "class_dims",
+    "count_codes",
+    "unknown_label_message",
+    "missing_label_message",
 ]
 
 ACTUAL = "actual"
@@ -436,11 +439,52 @@ def _raise_unknown(name, values, codes, labels) -> None:
     if bad.size:
         row = int(bad[0])
         value = np.asarray(values)[row]
-        shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
-        raise InvalidInputError(
-            f"column {name!r} row {row + 1}: label {value!r} is not among the classes "
-            f"[{shown}] ({bad.size} rows outside them)"
-        )
+        raise InvalidInputError(unknown_label_message(name, row, value, bad.size, labels))
+
+
+def unknown_label_message(name: str, row: int, value, n_bad: int, labels) -> str:
+    """The message for a label outside a fixed class list.
+
+    Shared by the in-memory tally and the streaming sources, so both word it
+    the same way.
+
+    Parameters
+    ----------
+    name : str
+        Column name.
+    row : int
+        Zero-based row of the first offending label.
+    value : object
+        That label.
+    n_bad : int
+        Number of rows outside the classes.
+    labels : sequence
+        The fixed classes.
+
+    Returns
+    -------
+    str
+
+    Examples
+    --------
+    >>> unknown_label_message("actual", 2, "owl", 1, ["cat", "dog"])
+    "column 'actual' row 3: label 'owl' is not among the classes ['cat', 'dog'] (1 rows outside them)"
+    """
+    labels = list(labels)
+    shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
+    return (f"column {name!r} row {row + 1}: label {value!r} is not among the classes "
+            f"[{shown}] ({n_bad} rows outside them)")
+
+
+def missing_label_message(name: str, row: int, n_missing: int) -> str:
+    """The message for a missing truth or predicted label (see :func:`unknown_label_message`).
+
+    Examples
+    --------
+    >>> missing_label_message("predicted", 0, 2)
+    "column 'predicted' row 1: missing label (2 missing in all)"
+    """
+    return f"column {name!r} row {row + 1}: missing label ({n_missing} missing in all)"
 
 
 def _raise_missing(codes, n_truth, t_name, p_name) -> None:
@@ -448,9 +492,7 @@ def _raise_missing(codes, n_truth, t_name, p_name) -> None:
     if bad.size:
         i = int(bad[0])
         name, row = (t_name, i) if i < n_truth else (p_name, i - n_truth)
-        raise InvalidInputError(
-            f"column {name!r} row {row + 1}: missing label ({bad.size} missing in all)"
-        )
+        raise InvalidInputError(missing_label_message(name, row, bad.size))
 
 
 def _direct_codes(truth, pred):
@@ -528,21 +570,55 @@ def _py(value):
 
 
 def _bincount(codes_t, codes_p, k, groups, weights) -> np.ndarray:
-    index = np.zeros(len(codes_t), dtype=np.int64)
-    shape = []
-    for codes, size in groups:
+    codes = [c for c, _ in groups] + [codes_t, codes_p]
+    shape = [size for _, size in groups] + [k, k]
+    return count_codes(codes, shape, weights=weights)
+
+
+def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=None) -> np.ndarray:
+    """Count rows of integer codes into a dense array.
+
+    Row ``i`` adds one (or ``weights[i]``) to the cell
+    ``(codes[0][i], codes[1][i], ...)`` of an array of shape ``shape``. This
+    is the one counting step of the tensor layer; the streaming sources call
+    it batch by batch.
+
+    Parameters
+    ----------
+    codes : sequence of numpy.ndarray
+        One integer array per dim, all of the same length, with
+        ``0 <= codes[d] < shape[d]``.
+    shape : sequence of int
+        Size of each dim.
+    weights : numpy.ndarray, optional
+        One float weight per row.
+
+    Returns
+    -------
+    numpy.ndarray
+        int64 counts, or float64 sums of weights, of shape ``shape``.
+
+    Notes
+    -----
+    The cell is found by the mixed-radix index
+    ``((c_0 * n_1 + c_1) * n_2 + c_2) ...`` and counted with one
+    ``numpy.bincount``, so the cost is O(rows + cells).
+
+    Examples
+    --------
+    >>> count_codes([np.array([0, 1, 1]), np.array([1, 1, 0])], [2, 2]).tolist()
+    [[0, 1], [1, 1]]
+    """
+    n = len(codes[0]) if codes else 0
+    index = np.zeros(n, dtype=np.int64)
+    for c, size in zip(codes, shape):
         index *= size
-        index += codes
-        shape.append(size)
-    index *= k
-    index += codes_t
-    index *= k
-    index += codes_p
-    total = int(np.prod(shape, dtype=np.int64)) * k * k
+        index += c
+    total = int(np.prod(shape, dtype=np.int64))
     counts = np.bincount(index, weights=weights, minlength=total)
     if weights is None:
         counts = counts.astype(np.int64, copy=False)
-    return counts.reshape(*shape, k, k)
+    return counts.reshape(*shape)
 
 
 def _occurring(codes_t, codes_p, k) -> np.ndarray:
