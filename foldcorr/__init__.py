@@ -22,9 +22,10 @@ _EXPORTS = {
         "support", "predicted_count", "top_confusion",
     ],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
+    "foldcorr.streaming": ["tally_dataset", "stream_tensor", "parse_where", "StreamResult"],
     "foldcorr.errors": [
         "FoldcorrError", "InvalidTensorError", "InvalidInputError", "OptionError",
-        "MissingDependencyError", "UndefinedMetricWarning",
+        "MissingDependencyError", "EngineError", "UndefinedMetricWarning",
     ],
 }
 _WHERE = {name: module for module, names in _EXPORTS.items() for name in names}

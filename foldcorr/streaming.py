@@ -965,9 +965,10 @@ def stream_tensor(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
     >>> r.tensor.dims, r.tensor.coords["actual"].values.tolist(), r.rows
     (('fold', 'actual', 'predicted'), ['a', 'b', 'c'], 4)
     """
-    if truth == pred:
-        raise InvalidInputError(f"truth and pred name the same column {truth!r}")
     files = resolve_paths(path)
+    if truth == pred:
+        raise _fail(files[0] if len(files) == 1 else Path(str(path)),
+                    f"truth and pred name the same column {truth!r}")
     if isinstance(where, str):
         where = parse_where(where)
     show = sys.stderr.isatty() if progress is None else progress
@@ -980,90 +981,159 @@ def stream_tensor(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
             bar.close()
 
 
-def _stream(path, files, truth, pred, fold, weight, classes, where, skip_bad_files,
-            batch_rows, bar) -> StreamResult:
-    fmts = [format_of(f) for f in files]
-    single = len(files) == 1
-    acc = None
-    first_types: dict = {}
-    used, skipped = [], []
-    for f, fmt in zip(files, fmts):
+@dataclass(frozen=True)
+class _Plan:
+    """What the schemas of a dataset's files say, read before any row."""
+
+    files: tuple          # files to read, with their format
+    skipped: tuple        # (name, reason) of files left out
+    truth: str
+    pred: str
+    fold: str | None
+    weight: str | None
+    text: bool            # CSV text labels (their types settled at the end)
+    where: object
+    source: str
+    single: bool
+
+    def columns(self) -> list[str]:
+        cols = [c for c in dict.fromkeys([self.truth, self.pred, self.fold, self.weight]) if c]
+        if self.where is not None:
+            cols += [c for c in self.where.columns if c not in cols]
+        return cols
+
+    def text_columns(self) -> list[str]:
+        return [self.truth, self.pred] + ([self.fold] if self.fold else [])
+
+    def new_tally(self) -> StreamTally:
+        return StreamTally(self.truth, self.pred, self.fold, self.weight, text=self.text)
+
+
+def _plan(path, files, truth, pred, fold, weight, where, skip_bad_files) -> _Plan:
+    """Check every file's columns (header or footer only) against the first readable one."""
+    first: dict = {}
+    chosen, skipped = [], []
+    fold_col, text = None, False
+    for f in files:
         try:
-            schema = _checked_schema(f, fmt, truth, pred, fold, weight, first_types, where)
-            if acc is None:
+            fmt = format_of(f)
+            schema = _checked_schema(f, fmt, truth, pred, fold, weight, first, where)
+            if not first:
                 fold_col = (FOLD if FOLD in schema.names else None) if fold == "auto" else fold
                 text = fmt in ("csv", "tsv")
-                acc = StreamTally(truth, pred, fold_col, weight, text=text)
-                first_types.update({c: _kind(schema.field(c).type) for c in
-                                    [truth, pred, fold_col, weight] if c})
-                first_types["__file__"] = f.name
-                first_types["__text__"] = text
-                _require(f, schema, [fold_col])
-            elif (fmt in ("csv", "tsv")) != first_types["__text__"]:
+                first.update({c: _kind(schema.field(c).type) for c in
+                              [truth, pred, fold_col, weight] if c})
+                first["__file__"], first["__text__"] = f.name, text
+            elif (fmt in ("csv", "tsv")) != text:
                 raise _SkipFile(_fail(f, "CSV and typed files (Parquet, JSON Lines) cannot be "
                                          f"mixed in one dataset; the first file is "
-                                         f"{first_types['__file__']}"))
-            else:
-                _require(f, schema, [acc.fold])
-            part = acc if not skip_bad_files else StreamTally(
-                truth, pred, acc.fold, weight, text=acc.coders["truth"].text)
-            check = _FileCheck()
-            columns = [c for c in dict.fromkeys([truth, pred, acc.fold, weight]) if c]
-            if where is not None:
-                columns += [c for c in where.columns if c not in columns]
-            text_cols = [truth, pred] + ([acc.fold] if acc.fold else [])
-            for batch in _read(f, fmt, columns, text_cols, where, batch_rows):
-                try:
-                    part.add(batch, check)
-                except InvalidInputError as exc:
-                    raise _fail(f, str(exc)) from None
-                if bar is not None:
-                    bar.rows(batch.num_rows)
-            _raise_checks(f, check, acc, classes)
-            if part is not acc:
-                acc.merge(part)
-            used.append(f)
+                                         f"{first['__file__']}"))
+            _require(f, schema, [fold_col])
+            chosen.append((f, fmt))
         except _SkipFile as exc:
             if not skip_bad_files:
                 raise exc.args[0] from None
-            skipped.append((f.name, str(exc.args[0]).split(": ", 1)[-1]))
+            skipped.append(_skip_entry(exc))
+    if not chosen:
+        raise InvalidInputError(f"no readable file among {len(files)}; first problem: "
+                                f"{skipped[0][0]}: {skipped[0][1]}")
+    single = len(files) == 1
+    return _Plan(files=tuple(chosen), skipped=tuple(skipped), truth=truth, pred=pred,
+                 fold=fold_col, weight=weight, text=text, where=where,
+                 source=files[0].name if single else Path(str(path)).name, single=single)
+
+
+def _skip_entry(exc: _SkipFile) -> tuple[str, str]:
+    name, _, why = str(exc.args[0]).partition(": ")
+    return name, why
+
+
+def _tally_file(plan: _Plan, f: Path, fmt: str, classes, batch_rows: int,
+                bar=None) -> StreamTally:
+    """Tally one file on its own; raise _SkipFile when it cannot be read."""
+    part = plan.new_tally()
+    check = _FileCheck()
+    for batch in _read(f, fmt, plan.columns(), plan.text_columns(), plan.where, batch_rows):
+        try:
+            part.add(batch, check)
+        except InvalidInputError as exc:
+            raise _fail(f, str(exc)) from None
         if bar is not None:
-            bar.file_done()
-    if acc is None or not used:
-        if skipped:
-            raise InvalidInputError(f"no readable file among {len(files)}; first problem: "
-                                    f"{skipped[0][0]}: {skipped[0][1]}")
-        raise InvalidInputError("no rows")
+            bar.rows(batch.num_rows)
+    _raise_checks(f, check, part, classes)
+    return part
+
+
+def _finish(plan: _Plan, acc: StreamTally, used, skipped, classes, batch_rows) -> StreamResult:
+    """Settle labels and provenance; the same for every engine."""
+    name = plan.files[0][0] if plan.single else Path(plan.source)
     if acc.rows == 0:
-        name = files[0] if single else Path(str(path))
-        raise _fail(name, "no rows pass the filter" if where is not None else "the table has no rows")
-    attrs = {"truth_column": truth, "pred_column": pred}
-    if acc.fold:
-        attrs["by_columns"] = f"{FOLD}={acc.fold}"
-    if weight:
-        attrs["weight_column"] = weight
+        raise _fail(name, "no rows pass the filter" if plan.where is not None
+                    else "the table has no rows")
+    attrs = {"truth_column": plan.truth, "pred_column": plan.pred}
+    if plan.fold:
+        attrs["by_columns"] = f"{FOLD}={plan.fold}"
+    if plan.weight:
+        attrs["weight_column"] = plan.weight
     attrs.update({"n_rows": int(acc.rows), "foldcorr_version": __version__})
-    attrs["source"] = files[0].name if single else Path(str(path)).name
-    if acc.fold:
-        attrs["fold_column"] = acc.fold
-    if not single:
+    attrs["source"] = plan.source
+    if plan.fold:
+        attrs["fold_column"] = plan.fold
+    if not plan.single:
         attrs["n_files"] = len(used)
-    if where is not None:
-        attrs["where"] = where.text
+    if plan.where is not None:
+        attrs["where"] = plan.where.text
     if skipped:
-        attrs["skipped_files"] = ",".join(name for name, _ in skipped)
+        attrs["skipped_files"] = ",".join(n for n, _ in skipped)
 
     def unknown(role, bad_codes, labels):
-        _locate_unknown(acc, used, role, bad_codes, labels, where, batch_rows)
+        _locate_unknown(acc, used, role, bad_codes, labels, plan.where, batch_rows)
 
     try:
         tensor = acc.tensor(classes=classes, attrs=attrs, unknown=unknown)
     except InvalidInputError as exc:
-        if str(exc).startswith(tuple(f"{f.name}:" for f in files)):
+        if str(exc).startswith(tuple(f"{f.name}:" for f, _ in plan.files)):
             raise
-        raise _fail(files[0] if single else Path(str(path)), str(exc)) from None
+        raise _fail(name, str(exc)) from None
     return StreamResult(tensor=tensor, files=tuple(f.name for f in used),
                         skipped=tuple(skipped), rows=int(acc.rows))
+
+
+def _stream(path, files, truth, pred, fold, weight, classes, where, skip_bad_files,
+            batch_rows, bar) -> StreamResult:
+    plan = _plan(path, files, truth, pred, fold, weight, where, skip_bad_files)
+    skipped = list(plan.skipped)
+    if bar is not None:
+        bar.advance(len(skipped))
+    acc, used = None, []
+    for f, fmt in plan.files:
+        try:
+            if acc is None or skip_bad_files:
+                part = _tally_file(plan, f, fmt, classes, batch_rows, bar)
+                acc = part if acc is None else acc.merge(part)
+            else:
+                # Straight into the running tally: no copy of the count array per file.
+                check = _FileCheck()
+                for batch in _read(f, fmt, plan.columns(), plan.text_columns(), where,
+                                   batch_rows):
+                    try:
+                        acc.add(batch, check)
+                    except InvalidInputError as exc:
+                        raise _fail(f, str(exc)) from None
+                    if bar is not None:
+                        bar.rows(batch.num_rows)
+                _raise_checks(f, check, acc, classes)
+            used.append(f)
+        except _SkipFile as exc:
+            if not skip_bad_files:
+                raise exc.args[0] from None
+            skipped.append(_skip_entry(exc))
+        if bar is not None:
+            bar.advance(1)
+    if acc is None:
+        raise InvalidInputError(f"no readable file among {len(files)}; first problem: "
+                                f"{skipped[0][0]}: {skipped[0][1]}")
+    return _finish(plan, acc, used, skipped, classes, batch_rows)
 
 
 def _read(f, fmt, columns, text_cols, where, batch_rows):
@@ -1176,8 +1246,8 @@ class _Progress:
         self.n += n
         self.progress.update(self.task, rows=self.n)
 
-    def file_done(self) -> None:
-        self.progress.advance(self.task)
+    def advance(self, files: int) -> None:
+        self.progress.advance(self.task, files)
 
     def close(self) -> None:
         self.progress.stop()
