@@ -51,6 +51,7 @@ __all__ = [
     "resolve_paths",
     "StreamTally",
     "StreamResult",
+    "SkippedFiles",
     "stream_tensor",
     "tally_dataset",
 ]
@@ -809,6 +810,38 @@ class StreamResult:
     def warnings(self) -> tuple:
         """One plain sentence per skipped file."""
         return tuple(f"skipped unreadable file {name}: {why}" for name, why in self.skipped)
+
+
+@dataclass(frozen=True)
+class SkippedFiles:
+    """Files a run left out (``skip_bad_files``), as a section of an evaluation.
+
+    Attributes
+    ----------
+    files : tuple of str
+        Names of the skipped files.
+    """
+
+    files: tuple
+
+    @classmethod
+    def of(cls, tensor) -> SkippedFiles:
+        """The skipped files recorded in a tensor's ``attrs``.
+
+        Examples
+        --------
+        >>> from foldcorr.tally import confusion_tensor
+        >>> t = confusion_tensor([[1]], ["a"], attrs={"skipped_files": "b.parquet"})
+        >>> SkippedFiles.of(t).warnings
+        ('skipped unreadable file b.parquet; its rows are not counted',)
+        """
+        return cls(tuple(filter(None, str(tensor.attrs.get("skipped_files", "")).split(","))))
+
+    @property
+    def warnings(self) -> tuple:
+        """One sentence per skipped file."""
+        return tuple(f"skipped unreadable file {name}; its rows are not counted"
+                     for name in self.files)
 
 
 class _SkipFile(FoldcorrError):
