@@ -39,6 +39,9 @@ __all__ = ["dask_tally", "FAN_IN"]
 #: Partial tallies merged per task in the reduction tree.
 FAN_IN = 8
 
+#: How long to wait for a scheduler given by address.
+CONNECT_TIMEOUT = "10s"
+
 _PURPOSE = "the Dask engine (--engine dask)"
 
 
@@ -123,7 +126,7 @@ def _connect(distributed, scheduler):
         return scheduler, None
     if scheduler is not None:
         try:
-            return distributed.Client(scheduler, timeout="10s"), None
+            return distributed.Client(scheduler, timeout=CONNECT_TIMEOUT), None
         except (OSError, TimeoutError) as exc:
             raise EngineError(f"cannot reach the Dask scheduler at {scheduler!r}: "
                               f"{_first_line(exc)}") from None
