@@ -431,7 +431,7 @@ class _Coder:
             lo, hi = bounds["min"].as_py(), bounds["max"].as_py()
             if lo >= 0 and hi < DIRECT_MAX:
                 self.size = max(self.size, hi + 1)
-                return arr.to_numpy().astype(np.int64, copy=False), None
+                return arr.to_numpy(), None
         if self.direct and len(arr):
             self._to_dictionary()
         if not len(arr):
@@ -616,14 +616,14 @@ class StreamTally:
             codes = {role: c[keep] for role, c in codes.items()}
             w = None if w is None else w[keep]
         self._grow()
-        shape = self.counts.shape
-        order = [codes["fold"]] if "fold" in codes else [np.zeros(len(codes["truth"]), np.int64)]
-        order += [codes["truth"], codes["pred"]]
-        self.counts += count_codes(order, shape, weights=w)
         if self.seen is not None:
             for role, c in codes.items():
                 self.seen[role][np.unique(c)] = True
         self.rows += len(codes["truth"])
+        order = [codes["fold"]] if "fold" in codes else []
+        order += [codes["truth"], codes["pred"]]
+        target = self.counts if "fold" in codes else self.counts[0]
+        count_codes(order, target.shape, weights=w, out=target)
 
     def _grow(self) -> None:
         f = len(self.coders["fold"]) if "fold" in self.coders else 1

@@ -575,7 +575,8 @@ def _bincount(codes_t, codes_p, k, groups, weights) -> np.ndarray:
     return count_codes(codes, shape, weights=weights)
 
 
-def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=None) -> np.ndarray:
+def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=None,
+                out: np.ndarray | None = None) -> np.ndarray:
     """Count rows of integer codes into a dense array.
 
     Row ``i`` adds one (or ``weights[i]``) to the cell
@@ -592,28 +593,41 @@ def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=No
         Size of each dim.
     weights : numpy.ndarray, optional
         One float weight per row.
+    out : numpy.ndarray, optional
+        A C-contiguous array of shape ``shape`` to add the counts into, in
+        place (int64 for counts, float64 for weights); no array of the
+        size of ``shape`` is allocated then, which suits many small batches.
 
     Returns
     -------
     numpy.ndarray
-        int64 counts, or float64 sums of weights, of shape ``shape``.
+        int64 counts, or float64 sums of weights, of shape ``shape``
+        (``out`` itself when given).
 
     Notes
     -----
     The cell is found by the mixed-radix index
     ``((c_0 * n_1 + c_1) * n_2 + c_2) ...`` and counted with one
-    ``numpy.bincount``, so the cost is O(rows + cells).
+    ``numpy.bincount``, so the cost is O(rows + cells); with ``out`` it is
+    added in place with ``numpy.add.at``, O(rows).
 
     Examples
     --------
     >>> count_codes([np.array([0, 1, 1]), np.array([1, 1, 0])], [2, 2]).tolist()
     [[0, 1], [1, 1]]
+    >>> acc = np.zeros((2, 2), dtype=np.int64)
+    >>> count_codes([np.array([1]), np.array([0])], [2, 2], out=acc).tolist()
+    [[0, 0], [1, 0]]
     """
-    n = len(codes[0]) if codes else 0
-    index = np.zeros(n, dtype=np.int64)
-    for c, size in zip(codes, shape):
+    if not codes:
+        raise ValueError("count_codes needs at least one array of codes")
+    index = np.asarray(codes[0]).astype(np.int64)
+    for c, size in zip(codes[1:], shape[1:]):
         index *= size
         index += c
+    if out is not None:
+        np.add.at(out.reshape(-1), index, 1 if weights is None else weights)
+        return out
     total = int(np.prod(shape, dtype=np.int64))
     counts = np.bincount(index, weights=weights, minlength=total)
     if weights is None:
