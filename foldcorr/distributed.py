@@ -40,7 +40,7 @@ __all__ = ["dask_tally", "FAN_IN"]
 FAN_IN = 8
 
 #: How long to wait for a scheduler given by address.
-CONNECT_TIMEOUT = "10s"
+CONNECT_TIMEOUT = 10.0
 
 _PURPOSE = "the Dask engine (--engine dask)"
 
@@ -100,6 +100,7 @@ def dask_tally(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | 
     if isinstance(where, str):
         where = parse_where(where)
     client, cluster = _connect(distributed, scheduler)
+    owned = not isinstance(scheduler, distributed.Client)
     try:
         if _is_dask_frame(data):
             return _run_frame(client, data, truth, pred, fold, weight, classes, where, progress)
@@ -111,8 +112,9 @@ def dask_tally(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | 
         raise EngineError(f"the Dask run failed and produced no tensor: "
                           f"{type(exc).__name__}: {_first_line(exc)}") from None
     finally:
-        if cluster is not None:
+        if owned:
             client.close()
+        if cluster is not None:
             cluster.close()
 
 
@@ -126,15 +128,28 @@ def _connect(distributed, scheduler):
         return scheduler, None
     if scheduler is not None:
         try:
+            _probe(str(scheduler))
             return distributed.Client(scheduler, timeout=CONNECT_TIMEOUT), None
         except (OSError, TimeoutError) as exc:
             raise EngineError(f"cannot reach the Dask scheduler at {scheduler!r}: "
-                              f"{_first_line(exc)}") from None
+                              f"{_first_line(exc) or type(exc).__name__}") from None
     cluster = distributed.LocalCluster(n_workers=os.cpu_count() or 1, threads_per_worker=1,
                                        processes=True, host="127.0.0.1",
                                        dashboard_address=None,
                                        scheduler_kwargs={"dashboard": False})
     return distributed.Client(cluster), cluster
+
+
+def _probe(address: str) -> None:
+    """Open and close a TCP connection to a ``tcp://host:port`` scheduler (fails fast)."""
+    import socket
+    from urllib.parse import urlsplit
+
+    if not address.startswith("tcp://"):
+        return
+    parts = urlsplit(address)
+    with socket.create_connection((parts.hostname, parts.port or 8786), timeout=CONNECT_TIMEOUT):
+        pass
 
 
 def _is_dask_frame(data) -> bool:

@@ -64,7 +64,7 @@ BATCH_ROWS = 1 << 20
 #: Bytes per CSV / JSON Lines block.
 BLOCK_BYTES = 1 << 24
 #: Integer labels in [0, DIRECT_MAX) are their own codes (no hashing).
-DIRECT_MAX = 1 << 12
+DIRECT_MAX = 1 << 11
 
 _INT_TEXT = re.compile(r"\s*[+-]?[0-9]+\s*")
 _BOOL_TEXT = {"True": True, "TRUE": True, "true": True,
@@ -445,10 +445,7 @@ class _Coder:
         if idx.null_count:
             nulls = idx.is_null().to_numpy(zero_copy_only=False)
             idx = pc.fill_null(idx, -1)
-        codes = lut[idx.to_numpy().astype(np.int64, copy=False)]
-        if nulls is not None and not self.text:
-            pass
-        return codes, nulls
+        return lut[idx.to_numpy().astype(np.int64, copy=False)], nulls
 
     def _to_dictionary(self) -> None:
         self.direct = False

@@ -105,19 +105,20 @@ def test_dask_bad_file_stops_or_is_skipped(client, tmp_path):
     assert r.rows == 600 and len(whole) == 900
 
 
-def _kill_worker(i):
+def _kill_worker(piece):
     # Runs on a worker process: a lost worker in the middle of the run.
-    if i == 1 and os.getpid() != _kill_worker.parent:
+    i, parent = piece
+    if i == 1 and os.getpid() != parent:
         os._exit(1)
     return pd.DataFrame({"actual": ["x", "y"], "predicted": ["x", "x"]})
 
 
 def test_lost_worker_fails_cleanly_without_a_tensor(client):
-    _kill_worker.parent = os.getpid()
-    frame = dd.from_map(_kill_worker, [0, 1, 2],
+    frame = dd.from_map(_kill_worker, [(i, os.getpid()) for i in range(3)],
                         meta=pd.DataFrame({"actual": pd.Series(dtype=object),
                                            "predicted": pd.Series(dtype=object)}))
-    with pytest.raises(EngineError, match="the Dask run failed and produced no tensor"):
+    with pytest.raises(EngineError, match="the Dask run failed and produced no tensor: "
+                                          "KilledWorker"):
         tally_dataset(frame, engine="dask", scheduler=client)
     client.wait_for_workers(2, timeout=60)
     # The cluster still works afterwards.
@@ -130,6 +131,6 @@ def test_lost_worker_fails_cleanly_without_a_tensor(client):
 def test_unreachable_scheduler(monkeypatch):
     import foldcorr.distributed
 
-    monkeypatch.setattr(foldcorr.distributed, "CONNECT_TIMEOUT", "1s")
+    monkeypatch.setattr(foldcorr.distributed, "CONNECT_TIMEOUT", 1.0)
     with pytest.raises(EngineError, match="cannot reach the Dask scheduler"):
         tally_dataset(".", engine="dask", scheduler="tcp://127.0.0.1:9")

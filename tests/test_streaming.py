@@ -351,3 +351,13 @@ def test_cli_score_of_a_glob_equals_the_concatenated_file(tmp_path, capsys):
     assert a["source"] == "run-*.csv" and b["source"] == "all.csv"
     a.pop("source"), b.pop("source")
     assert a == b
+
+
+def test_progress_bar_gives_the_same_tensor(tmp_path, capsys):
+    parts = _parts(seed=2, n_files=2)
+    for i, df in enumerate(parts):
+        df.to_parquet(tmp_path / f"p{i}.parquet")
+    quiet = stream_tensor(tmp_path, progress=False).tensor
+    shown = stream_tensor(tmp_path, progress=True, batch_rows=100).tensor
+    np.testing.assert_array_equal(quiet.values, shown.values)
+    assert capsys.readouterr().out == ""          # the bar never goes to stdout
