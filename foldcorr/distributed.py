@@ -26,9 +26,7 @@ from foldcorr.streaming import (
     _plan,
     _Progress,
     _raise_checks,
-    _SkipFile,
-    _skip_entry,
-    _tally_file,
+    _tally_files,
     BATCH_ROWS,
     parse_where,
     resolve_paths,
@@ -38,6 +36,10 @@ __all__ = ["dask_tally", "FAN_IN"]
 
 #: Partial tallies merged per task in the reduction tree.
 FAN_IN = 8
+
+#: Pieces of work per worker: each is a run of consecutive files, so that few
+#: partial tallies (folds x K x K each) travel between workers.
+PIECES_PER_WORKER = 2
 
 #: How long to wait for a scheduler given by address.
 CONNECT_TIMEOUT = 10.0
@@ -135,7 +137,7 @@ def _connect(distributed, scheduler):
                               f"{_first_line(exc) or type(exc).__name__}") from None
     cluster = distributed.LocalCluster(n_workers=os.cpu_count() or 1, threads_per_worker=1,
                                        processes=True, host="127.0.0.1",
-                                       dashboard_address=None,
+                                       dashboard_address="127.0.0.1:0",
                                        scheduler_kwargs={"dashboard": False})
     return distributed.Client(cluster), cluster
 
@@ -166,21 +168,24 @@ def _run_files(client, path, truth, pred, fold, weight, classes, where, skip_bad
         raise InvalidInputError(f"truth and pred name the same column {truth!r}")
     files = resolve_paths(path)
     plan = _plan(path, files, truth, pred, fold, weight, where, skip_bad_files)
-    leaves = client.map(_file_piece, [f for f, _ in plan.files], [fmt for _, fmt in plan.files],
-                        plan=plan, classes=classes, batch_rows=batch_rows,
-                        skip=skip_bad_files, pure=False)
+    workers = max(1, len(client.scheduler_info().get("workers", {})))
+    groups = _groups(plan.files, PIECES_PER_WORKER * workers)
+    leaves = client.map(_files_piece, groups, plan=plan, classes=classes,
+                        batch_rows=batch_rows, skip=skip_bad_files, pure=False)
     show = sys.stderr.isatty() if progress is None else progress
     if show:
         bar = _Progress(len(files))
         bar.advance(len(plan.skipped))
+        root = _tree(client, leaves)          # the reduction starts while we watch
         try:
-            for future in as_completed(leaves):
-                piece = future.result()
-                bar.rows(piece.rows)
-                bar.advance(1)
+            for future in as_completed(client.map(_summary, leaves, pure=False)):
+                rows, n_files = future.result()  # two numbers, not the partial tally
+                bar.rows(rows)
+                bar.advance(n_files)
         finally:
             bar.close()
-    root = _tree(client, leaves)
+    else:
+        root = _tree(client, leaves)
     done = client.submit(_finish_piece, root, plan=plan, classes=classes,
                          batch_rows=batch_rows, pure=False)
     return done.result()
@@ -197,13 +202,31 @@ class _Piece:
         return 0 if self.tally is None else self.tally.rows
 
 
-def _file_piece(f: Path, fmt: str, *, plan, classes, batch_rows, skip) -> _Piece:
-    try:
-        return _Piece(_tally_file(plan, f, fmt, classes, batch_rows), [f], [])
-    except _SkipFile as exc:
-        if not skip:
-            raise exc.args[0] from None
-        return _Piece(None, [], [_skip_entry(exc)])
+def _groups(files, n: int) -> list[list]:
+    """Split (file, format) pairs, in order, into at most ``n`` runs of about equal bytes."""
+    n = max(1, min(n, len(files)))
+    sizes = [max(Path(f).stat().st_size, 1) for f, _ in files]
+    total, target = sum(sizes), sum(sizes) / n
+    groups, current, filled = [], [], 0.0
+    for pair, size in zip(files, sizes):
+        current.append(pair)
+        filled += size
+        if filled >= target * (len(groups) + 1) and len(groups) < n - 1:
+            groups.append(current)
+            current = []
+    if current:
+        groups.append(current)
+    assert sum(map(len, groups)) == len(files) and filled == total
+    return groups
+
+
+def _files_piece(files, *, plan, classes, batch_rows, skip) -> _Piece:
+    acc, used, skipped = _tally_files(plan, files, classes, skip, batch_rows)
+    return _Piece(acc, used, skipped)
+
+
+def _summary(piece: _Piece) -> tuple[int, int]:
+    return piece.rows, len(piece.used) + len(piece.skipped)
 
 
 def _merge(*pieces: _Piece) -> _Piece:

@@ -312,7 +312,6 @@ def parse_where(text: str) -> Where:
         raise error(pos - 1, "expected a value (text in quotes, a number, true or false)")
 
     def single():
-        nonlocal pos
         tok = peek()
         if tok == ("name", "not"):
             take()
@@ -648,8 +647,11 @@ class StreamTally:
         self._grow()
         c = other.counts
         f_map = maps.get("fold", np.zeros(1, np.int64))
-        ix = np.ix_(f_map[: c.shape[0]], maps["truth"][: c.shape[1]], maps["pred"][: c.shape[2]])
-        self.counts[ix] += c
+        parts = [m[:n] for m, n in zip((f_map, maps["truth"], maps["pred"]), c.shape)]
+        if all(np.array_equal(m, np.arange(len(m))) for m in parts):
+            self.counts[: c.shape[0], : c.shape[1], : c.shape[2]] += c   # same codes
+        else:
+            self.counts[np.ix_(*parts)] += c
         if self.seen is not None:
             for role, m in maps.items():
                 self.seen[role][m[: len(other.seen[role])][other.seen[role]]] = True
@@ -1132,11 +1134,24 @@ def _finish(plan: _Plan, acc: StreamTally, used, skipped, classes, batch_rows) -
 def _stream(path, files, truth, pred, fold, weight, classes, where, skip_bad_files,
             batch_rows, bar) -> StreamResult:
     plan = _plan(path, files, truth, pred, fold, weight, where, skip_bad_files)
-    skipped = list(plan.skipped)
     if bar is not None:
-        bar.advance(len(skipped))
-    acc, used = None, []
-    for f, fmt in plan.files:
+        bar.advance(len(plan.skipped))
+    acc, used, skipped = _tally_files(plan, plan.files, classes, skip_bad_files, batch_rows, bar)
+    skipped = list(plan.skipped) + skipped
+    if acc is None:
+        raise InvalidInputError(f"no readable file among {len(files)}; first problem: "
+                                f"{skipped[0][0]}: {skipped[0][1]}")
+    return _finish(plan, acc, used, skipped, classes, batch_rows)
+
+
+def _tally_files(plan: _Plan, files, classes, skip_bad_files: bool, batch_rows: int, bar=None):
+    """Tally (file, format) pairs in order; return the tally, files used and files skipped.
+
+    When files may be skipped, each is counted on its own first and added only
+    once it was read to the end, so a file that fails half-way adds nothing.
+    """
+    acc, used, skipped = None, [], []
+    for f, fmt in files:
         try:
             if acc is None or skip_bad_files:
                 part = _tally_file(plan, f, fmt, classes, batch_rows, bar)
@@ -1144,7 +1159,7 @@ def _stream(path, files, truth, pred, fold, weight, classes, where, skip_bad_fil
             else:
                 # Straight into the running tally: no copy of the count array per file.
                 check = _FileCheck()
-                for batch in _read(f, fmt, plan.columns(), plan.text_columns(), where,
+                for batch in _read(f, fmt, plan.columns(), plan.text_columns(), plan.where,
                                    batch_rows):
                     try:
                         acc.add(batch, check)
@@ -1160,10 +1175,7 @@ def _stream(path, files, truth, pred, fold, weight, classes, where, skip_bad_fil
             skipped.append(_skip_entry(exc))
         if bar is not None:
             bar.advance(1)
-    if acc is None:
-        raise InvalidInputError(f"no readable file among {len(files)}; first problem: "
-                                f"{skipped[0][0]}: {skipped[0][1]}")
-    return _finish(plan, acc, used, skipped, classes, batch_rows)
+    return acc, used, skipped
 
 
 def _read(f, fmt, columns, text_cols, where, batch_rows):

@@ -30,7 +30,7 @@ def client():
     # One retry only, so that the lost-worker test stays short.
     with dask.config.set({"distributed.scheduler.allowed-failures": 1}):
         cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                           host="127.0.0.1", dashboard_address=None,
+                                           host="127.0.0.1", dashboard_address="127.0.0.1:0",
                                            scheduler_kwargs={"dashboard": False})
         c = distributed.Client(cluster)
         try:

@@ -70,7 +70,7 @@ def run(quick: bool = False) -> dict:
 
 def _cluster(distributed, workers: int):
     cluster = distributed.LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
-                                       host="127.0.0.1", dashboard_address=None,
+                                       host="127.0.0.1", dashboard_address="127.0.0.1:0",
                                        scheduler_kwargs={"dashboard": False})
     return cluster, distributed.Client(cluster)
 
