@@ -635,6 +635,25 @@ class StreamTally:
                     self.seen[role] = np.concatenate(
                         [self.seen[role], np.zeros(len(coder) - len(self.seen[role]), bool)])
 
+    def __getstate__(self) -> dict:
+        # Partial tallies travel between processes: counts go in the narrowest
+        # unsigned type that holds them (often 2 or 4 bytes instead of 8).
+        state = dict(self.__dict__)
+        c = self.counts
+        if c.dtype == np.int64 and c.size:
+            top = int(c.max())
+            for small in (np.uint8, np.uint16, np.uint32):
+                if top <= np.iinfo(small).max:
+                    state["counts"] = c.astype(small)
+                    break
+        return state
+
+    def __setstate__(self, state: dict) -> None:
+        counts = state["counts"]
+        if counts.dtype.kind == "u":
+            state["counts"] = counts.astype(np.int64)
+        self.__dict__.update(state)
+
     def merge(self, other: StreamTally) -> StreamTally:
         """Add the counts of ``other`` (coded on its own) into this accumulator.
 
