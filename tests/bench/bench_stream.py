@@ -55,7 +55,7 @@ def measure(paths, classes, folds):
     for batch in ds.dataset(paths, format="parquet").to_batches(
             columns=["actual", "predicted", "fold"], batch_size=BATCH_ROWS,
             batch_readahead=1, fragment_readahead=1):
-        f, a, p = (batch.column(i).to_numpy() for i in range(3))
+        f, a, p = (batch.column(c).to_numpy() for c in ("fold", "actual", "predicted"))
         index = f.astype(np.int64)
         index *= classes
         index += a
