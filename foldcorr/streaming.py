@@ -302,10 +302,8 @@ def parse_where(text: str) -> Where:
     def value():
         if pos >= len(tokens):
             raise error(pos, "a value is missing")
-        (kind, val), _ = take()[0], None
-        if kind == "str":
-            return val
-        if kind == "num":
+        kind, val = take()[0]
+        if kind in ("str", "num"):
             return val
         if kind == "name" and val in ("true", "false"):
             return val == "true"
