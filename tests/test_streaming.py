@@ -361,3 +361,15 @@ def test_progress_bar_gives_the_same_tensor(tmp_path, capsys):
     shown = stream_tensor(tmp_path, progress=True, batch_rows=100).tensor
     np.testing.assert_array_equal(quiet.values, shown.values)
     assert capsys.readouterr().out == ""          # the bar never goes to stdout
+
+
+def test_csv_text_that_reads_as_one_number_is_one_class(tmp_path):
+    # "1" and "1.0" in float columns are the same class, as pandas reads them.
+    p = tmp_path / "p.csv"
+    p.write_text("actual,predicted\n1,1.0\n1.0,2\n2.50,1\n1,1\n")
+    t = stream_tensor(p, batch_rows=1).tensor
+    assert t.coords["actual"].values.tolist() == [1.0, 2.0, 2.5]
+    # sklearn.metrics.confusion_matrix on the numbers
+    np.testing.assert_array_equal(t.values, confusion_matrix([1, 1, 2.5, 1], [1, 2, 1, 1],
+                                                             labels=[1.0, 2.0, 2.5]))
+    assert t.values.tolist() == _load_in_memory(p).values.tolist()

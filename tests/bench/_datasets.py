@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-import resource
 import subprocess
 import sys
 from pathlib import Path
@@ -61,4 +60,4 @@ def in_child(code: str, **kwargs) -> dict:
     return json.loads(run.stdout.strip().splitlines()[-1])
 
 
-__all__ = ["write_parquet_dataset", "in_child", "resource"]
+__all__ = ["write_parquet_dataset", "in_child"]
