@@ -369,7 +369,8 @@ def test_csv_text_that_reads_as_one_number_is_one_class(tmp_path):
     p.write_text("actual,predicted\n1,1.0\n1.0,2\n2.50,1\n1,1\n")
     t = stream_tensor(p, batch_rows=1).tensor
     assert t.coords["actual"].values.tolist() == [1.0, 2.0, 2.5]
-    # sklearn.metrics.confusion_matrix on the numbers
-    np.testing.assert_array_equal(t.values, confusion_matrix([1, 1, 2.5, 1], [1, 2, 1, 1],
-                                                             labels=[1.0, 2.0, 2.5]))
+    # sklearn.metrics.confusion_matrix on the same classes written as text
+    np.testing.assert_array_equal(t.values, confusion_matrix(["1", "1", "2.5", "1"],
+                                                             ["1", "2", "1", "1"],
+                                                             labels=["1", "2", "2.5"]))
     assert t.values.tolist() == _load_in_memory(p).values.tolist()
