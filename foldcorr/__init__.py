@@ -35,9 +35,10 @@ _EXPORTS = {
     "foldcorr.report.plots": [
         "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
     ],
+    "foldcorr.streaming": ["tally_dataset", "stream_tensor", "parse_where", "StreamResult"],
     "foldcorr.errors": [
         "FoldcorrError", "InvalidTensorError", "InvalidInputError", "OptionError",
-        "MissingDependencyError", "UndefinedMetricWarning",
+        "MissingDependencyError", "EngineError", "UndefinedMetricWarning",
     ],
 }
 _WHERE = {name: module for module, names in _EXPORTS.items() for name in names}
