@@ -83,11 +83,35 @@ def _add_save_options(p: argparse.ArgumentParser) -> None:
                         "saved too, so that a later gate can pair the samples")
 
 
+def _add_source_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--where", metavar="EXPR",
+                   help='row filter, e.g. \'split == "test" and fold != 3\' '
+                        "(comparisons joined by and/or/not; see docs/streaming.md)")
+    p.add_argument("--engine", choices=("local", "dask"), default="local",
+                   help="local: stream in this process (default); dask: tally on a Dask cluster")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="Dask scheduler to use, e.g. tcp://10.0.0.5:8786 (default: a local "
+                        "cluster on 127.0.0.1, one worker per core)")
+    p.add_argument("--skip-bad-files", action="store_true",
+                   help="skip unreadable files of a dataset and report them, instead of stopping")
+    p.add_argument("--quiet", action="store_true",
+                   help="no progress bar (it is shown only when stderr is a terminal)")
+
+
 def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     """Options of the analyses in :data:`ANALYSES`, shared by ``score`` and ``demo``."""
     p.add_argument("--plot", metavar="DIR",
                    help="also draw the loss budget, confusion heatmap and fold plot "
                         "into DIR as PNG and SVG (needs the 'plot' extra)")
+    p.add_argument("--ci", type=float, metavar="LEVEL",
+                   help="add bootstrap intervals at this level, e.g. 0.95")
+    p.add_argument("--resamples", type=int, metavar="B",
+                   help="bootstrap resamples for --ci (default: 2000, at least 100)")
+    p.add_argument("--ci-method", choices=("percentile", "bca"),
+                   help="interval method for --ci: percentile (default) or bca")
+    if "--seed" not in p._option_string_actions:  # demo's --seed seeds its data and this too
+        p.add_argument("--seed", type=int, metavar="S",
+                       help="seed of the resamples, for reproducible intervals")
 
 
 def get_parser() -> argparse.ArgumentParser:
@@ -110,10 +134,13 @@ def get_parser() -> argparse.ArgumentParser:
     score = verbs.add_parser("score", help="score a prediction table or a counts matrix",
                              description="Score a prediction table (CSV, Parquet, JSON Lines) "
                                          "or a counts matrix CSV (--matrix).")
-    score.add_argument("path", metavar="PATH", help="prediction table or counts matrix")
+    score.add_argument("path", metavar="PATH",
+                       help="prediction table, a folder or a quoted glob of them, "
+                            "or a counts matrix")
     _add_table_options(score)
     score.add_argument("--matrix", action="store_true",
                        help="PATH is a counts matrix: actual labels down, predicted across")
+    _add_source_options(score)
     _add_report_options(score)
     _add_save_options(score)
     _add_analysis_options(score)
@@ -158,6 +185,14 @@ def get_parser() -> argparse.ArgumentParser:
                             "(default with --baseline: 0)")
     rules.add_argument("--allow-new-classes", action="store_true",
                        help="compare with a baseline of other classes on the shared ones")
+    rules.add_argument("--confidence", type=_number, metavar="LEVEL",
+                       help="with --baseline: a drop counts as a regression only when the whole "
+                            "bootstrap interval of the drop at this level (e.g. 0.95) lies "
+                            "above D; paired when both sides carry the same sample ids")
+    gate.add_argument("--resamples", type=int, default=2000, metavar="B",
+                      help="bootstrap resamples for --confidence (default: 2000)")
+    gate.add_argument("--seed", type=int, default=None, metavar="S",
+                      help="seed of the bootstrap for --confidence")
     gate.add_argument("--undefined", choices=("zero", "nan"), default=None,
                       help="value of 0/0 metrics (default: as saved, else zero); "
                            "an undefined figure fails its rule")
@@ -182,6 +217,36 @@ def get_parser() -> argparse.ArgumentParser:
     _add_save_options(demo)
     _add_analysis_options(demo)
     demo.set_defaults(func=_run_demo)
+
+    compare = verbs.add_parser(
+        "compare", help="compare two models scored on the same samples",
+        description="Paired comparison of two models on the same samples: either one table "
+                    "with two prediction columns (--pred-a COL --pred-b COL), or two tables, "
+                    "one per model, joined on an id column (--id COL).")
+    compare.add_argument("path", metavar="PATH", help="table with truth (and both predictions)")
+    compare.add_argument("path_b", metavar="PATH_B", nargs="?",
+                         help="second table with model B's predictions, joined on --id")
+    compare.add_argument("--truth", default="actual", metavar="COL",
+                         help="column of actual labels (default: actual)")
+    compare.add_argument("--pred-a", metavar="COL", help="prediction column of model A")
+    compare.add_argument("--pred-b", metavar="COL", help="prediction column of model B")
+    compare.add_argument("--pred", default="predicted", metavar="COL",
+                         help="prediction column of each of two tables (default: predicted)")
+    compare.add_argument("--id", metavar="COL", help="id column joining two tables")
+    compare.add_argument("--fold", default="auto", metavar="COL",
+                         help="column of fold labels (default: 'fold' when present)")
+    compare.add_argument("--classes", type=_class_list, metavar="A,B,...",
+                         help="fixed class order; labels outside it are an error")
+    compare.add_argument("--ci", type=float, default=0.95, metavar="LEVEL",
+                         help="level of the intervals (default: 0.95)")
+    compare.add_argument("--resamples", type=int, default=2000, metavar="B",
+                         help="paired bootstrap resamples (default: 2000, at least 100)")
+    compare.add_argument("--permutations", type=int, metavar="P",
+                         help="sign-flip permutations (default: as many as --resamples)")
+    compare.add_argument("--seed", type=int, metavar="S",
+                         help="seed of resamples and permutations")
+    _add_report_options(compare)
+    compare.set_defaults(func=_run_compare)
     return parser
 
 
@@ -225,10 +290,29 @@ def _run_score(args) -> int:
     from foldcorr.evaluation import evaluate
     from foldcorr.sources import load_tensor
 
+    if args.scheduler and args.engine != "dask":
+        from foldcorr.errors import OptionError
+
+        raise OptionError(f"`--scheduler` needs `--engine dask`; got --engine {args.engine!r}")
+    if args.matrix and (args.where or args.engine != "local"):
+        from foldcorr.errors import OptionError
+
+        raise OptionError("`--where` and `--engine` apply to prediction tables, not to --matrix")
     _check_targets(args.output, getattr(args, "save", None))
-    tensor = load_tensor(args.path, _spec(args), matrix=args.matrix)
+    tensor = load_tensor(args.path, _spec(args), matrix=args.matrix, where=args.where,
+                         skip_bad_files=args.skip_bad_files,
+                         progress=False if args.quiet else None,
+                         engine=args.engine, scheduler=args.scheduler)
     _save(args, tensor, args.path)
-    _emit(args, _analyse(args, evaluate(tensor, undefined=args.undefined)))
+    ev = evaluate(tensor, undefined=args.undefined)
+    if tensor.attrs.get("skipped_files"):
+        from foldcorr.streaming import SkippedFiles
+
+        skipped = SkippedFiles.of(tensor)
+        for line in skipped.warnings:
+            print(f"foldcorr: {line}", file=sys.stderr)
+        ev = ev.with_extra("skipped_files", skipped)
+    _emit(args, _analyse(args, ev))
     return EXIT_OK
 
 
@@ -300,6 +384,11 @@ def _save(args, tensor, source) -> None:
         if Path(source).is_file():  # a folder or glob of tables has no single hash
             provenance["source_sha256"] = file_sha256(source)
         if id_column:
+            if getattr(args, "where", None):
+                raise OptionError("`--id` cannot be combined with `--where`: the saved samples "
+                                  "would not be those counted")
+            if not Path(source).is_file():
+                raise OptionError(f"`--id` needs one prediction table file; got {source!r}")
             if getattr(args, "matrix", False):
                 raise OptionError("`--id` needs a prediction table; a counts matrix has no "
                                   "samples")
@@ -355,6 +444,8 @@ def _run_gate(args) -> int:
     _check_targets(args.output, args.junit, args.markdown)
     if args.max_drop is not None and not args.baseline:
         raise OptionError("`--max-drop` compares with a baseline; give --baseline FILE too")
+    if args.confidence is not None and not args.baseline:
+        raise OptionError("`--confidence` applies to a baseline; give --baseline FILE too")
     if args.allow_new_classes and not args.baseline:
         raise OptionError("`--allow-new-classes` applies to a baseline; give --baseline FILE too")
     ev, samples = _gate_source(args.path, args, args.undefined)
@@ -366,7 +457,8 @@ def _run_gate(args) -> int:
         min_rk=args.min_rk, min_fold_rk=args.min_fold_rk, min_class_mcc=args.min_class_mcc,
         class_floors=floors, max_marginal_mismatch=args.max_marginal_mismatch,
         max_drop=(args.max_drop if args.max_drop is not None else 0.0) if args.baseline else None,
-        allow_new_classes=args.allow_new_classes,
+        allow_new_classes=args.allow_new_classes, confidence=args.confidence,
+        n_resamples=args.resamples, seed=args.seed,
     )
     result = check_gate(ev, rules, baseline=baseline, samples=samples,
                         baseline_samples=base_samples)
@@ -387,22 +479,6 @@ def _run_gate(args) -> int:
     return EXIT_OK if result.passed else EXIT_FAILED
 
 
-def _rich(report):
-    from foldcorr.report.text import render_rich
-
-    return render_rich(report)
-
-
-def _console():
-    from rich.console import Console
-
-    from foldcorr.report.text import PLAIN_WIDTH
-
-    terminal = sys.stdout.isatty()
-    return Console(file=sys.stdout, width=None if terminal else PLAIN_WIDTH,
-                   no_color="NO_COLOR" in os.environ or None, highlight=False)
-
-
 #: Steps that attach analysis sections to an evaluation, from the parsed
 #: arguments: each is ``(args, evaluation) -> evaluation`` and returns the
 #: evaluation unchanged when its options are not set.
@@ -419,6 +495,32 @@ def _repair_step(args, ev):
 
 
 ANALYSES.append(_repair_step)
+def _uncertainty_step(args, ev):
+    """Attach bootstrap intervals and fold statistics when ``--ci`` is given."""
+    level = getattr(args, "ci", None)
+    resamples = getattr(args, "resamples", None)
+    method = getattr(args, "ci_method", None)
+    if level is None:
+        for flag, value in (("--resamples", resamples), ("--ci-method", method)):
+            if value is not None:
+                from foldcorr.errors import OptionError
+
+                raise OptionError(f"`{flag}` needs `--ci LEVEL` (e.g. --ci 0.95); got {flag} "
+                                  f"{value!r} without it")
+        return ev
+    from foldcorr.uncertainty import check_level, check_resamples, summarise_uncertainty
+
+    check_level(level, name="--ci")
+    if resamples is not None:
+        check_resamples(resamples, name="--resamples")
+    result = summarise_uncertainty(
+        ev.tensor, level=level, n_resamples=2000 if resamples is None else resamples,
+        method=method or "percentile", seed=getattr(args, "seed", None),
+        undefined=ev.undefined)
+    return ev.with_extra("uncertainty", result)
+
+
+ANALYSES.append(_uncertainty_step)
 
 
 def _analyse(args, ev):
@@ -445,6 +547,59 @@ def _run_demo(args) -> int:
     _save(args, tensor, path)
     _emit(args, _analyse(args, evaluate(tensor, undefined=args.undefined)))
     return EXIT_OK
+
+
+def _run_compare(args) -> int:
+    from foldcorr.compare import compare_models
+    from foldcorr.paired import PairSpec, load_joint
+    from foldcorr.report.compare import compare_report, render_compare
+
+    spec = PairSpec(truth=args.truth, pred_a=args.pred_a, pred_b=args.pred_b, pred=args.pred,
+                    id=args.id, fold=args.fold, classes=args.classes)
+    from foldcorr.uncertainty import check_level, check_resamples
+
+    check_level(args.ci, name="--ci")
+    check_resamples(args.resamples, name="--resamples")
+    if args.permutations is not None:
+        check_resamples(args.permutations, name="--permutations")
+    joint = load_joint(args.path, spec, path_b=args.path_b)
+    result = compare_models(joint, n_resamples=args.resamples, level=args.ci, seed=args.seed,
+                            n_permutations=args.permutations, undefined=args.undefined)
+    if args.path_b is None:
+        names = (f"column {args.pred_a!r}", f"column {args.pred_b!r}")
+    else:
+        from pathlib import Path
+
+        names = (f"{Path(args.path).name}, column {args.pred_a or args.pred!r}",
+                 f"{Path(args.path_b).name}, column {args.pred_b or args.pred!r}")
+    source = joint.attrs.get("source")
+    if args.output or args.format != "text":
+        text = render_compare(result, args.format, names=names, top=args.top, source=source)
+        if args.output:
+            from foldcorr._files import write_text
+
+            write_text(args.output, text)
+        else:
+            sys.stdout.write(text)
+        return EXIT_OK
+    _console().print(_rich(compare_report(result, names=names, top=args.top, source=source)))
+    return EXIT_OK
+
+
+def _rich(report):
+    from foldcorr.report.text import render_rich
+
+    return render_rich(report)
+
+
+def _console():
+    from rich.console import Console
+
+    from foldcorr.report.text import PLAIN_WIDTH
+
+    terminal = sys.stdout.isatty()
+    return Console(file=sys.stdout, width=None if terminal else PLAIN_WIDTH,
+                   no_color="NO_COLOR" in os.environ or None, highlight=False)
 
 
 def _emit(args, ev) -> None:

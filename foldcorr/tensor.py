@@ -27,10 +27,15 @@ __all__ = [
     "COUNT",
     "tally",
     "tally_frame",
+    "tally_columns",
     "confusion_tensor",
     "validate_tensor",
     "pool",
     "class_dims",
+    "count_codes",
+    "unknown_label_message",
+    "missing_label_message",
+    "bad_weight_message",
 ]
 
 ACTUAL = "actual"
@@ -340,24 +345,70 @@ def tally_frame(
 
 def _tally_columns(columns, leading, weights, classes, *, attrs) -> xr.DataArray:
     (t_name, truth), (p_name, pred) = columns.items()
-    truth, pred = _as_1d(truth, t_name), _as_1d(pred, p_name)
-    n = len(truth)
-    _check_lengths(n, {p_name: pred, **leading, "weights": weights})
-    codes_t, codes_p, labels, fixed = _encode_pair(truth, pred, classes, t_name, p_name)
-    group_codes, group_coords, group_seen = [], {}, []
-    for dim, values in leading.items():
-        codes, uniques, direct = _encode_one(_as_1d(values, dim), dim)
-        group_codes.append((codes, len(uniques)))
-        group_coords[dim] = uniques
-        group_seen.append(direct)
+    counted = tally_columns({ACTUAL: (t_name, truth), PREDICTED: (p_name, pred)},
+                            leading=leading, weights=weights, classes=classes, attrs=attrs)
+    return validate_tensor(counted)
+
+
+def tally_columns(columns, *, leading=None, weights=None, classes=None, attrs=None) -> xr.DataArray:
+    """Count samples by several label columns that share one class coordinate.
+
+    The general form of :func:`tally`: a confusion tensor is the case of two
+    columns, ``actual`` and ``predicted``; a paired comparison of two models
+    counts three (``actual``, ``predicted_a``, ``predicted_b``).
+
+    Parameters
+    ----------
+    columns : mapping of str to (str, array_like)
+        Dim name -> (name used in messages, one label per sample). All columns
+        are coded over one class list.
+    leading : mapping of str to array_like, optional
+        Dims that lead, e.g. ``{"fold": folds}``; their labels are sorted.
+    weights : array_like, optional
+        Non-negative sample weights; the counts become float64.
+    classes : sequence, optional
+        Fixed class order; labels outside it are an error. Without it the
+        classes are every label seen in any column, sorted.
+    attrs : dict, optional
+        Provenance kept on the result (``n_rows`` and the version are added).
+
+    Returns
+    -------
+    xarray.DataArray
+        Named ``count``, dims ``(*leading, *columns)``, the class coordinate on
+        every column dim.
+
+    Raises
+    ------
+    InvalidInputError
+        On columns of different length, missing labels, labels outside
+        ``classes``, or bad weights.
+
+    Examples
+    --------
+    >>> j = tally_columns({"actual": ("truth", ["x", "y"]), "a": ("a", ["x", "x"]),
+    ...                    "b": ("b", ["y", "y"])})
+    >>> j.dims, int(j.sel(actual="y", a="x", b="y"))
+    (('actual', 'a', 'b'), 1)
+    """
+    dims = list(columns)
+    names = [columns[d][0] for d in dims]
+    arrays = [_as_1d(columns[d][1], name) for d, name in zip(dims, names)]
+    leading = dict(leading or {})
+    n = len(arrays[0])
+    _check_lengths(n, {**dict(zip(names[1:], arrays[1:])), **leading, "weights": weights})
+    codes, labels, fixed = _encode_labels(arrays, names, classes)
+    groups = [(dim, *_encode_one(_as_1d(values, dim), dim)) for dim, values in leading.items()]
     w = None if weights is None else _check_weights(weights)
-    counts = _bincount(codes_t, codes_p, len(labels), group_codes, w)
-    counts, group_coords = _drop_unseen_groups(counts, group_coords, group_seen, group_codes, w)
+    counts = _bincount(codes, len(labels), [(c, len(u)) for _, c, u, _ in groups], w)
+    counts, group_coords = _drop_unseen_groups(counts, groups, w)
     if not fixed:
-        seen = None if w is None else _occurring(codes_t, codes_p, len(labels))
-        counts, labels = _drop_unseen(counts, labels, seen)
-    attrs = {**attrs, "n_rows": n, "foldcorr_version": __version__}
-    return confusion_tensor(counts, labels, leading=group_coords, attrs=attrs)
+        seen = None if w is None else _occurring(codes, len(labels))
+        counts, labels = _drop_unseen(counts, labels, len(dims), seen)
+    coords = {**group_coords, **{d: [_py(x) for x in labels] for d in dims}}
+    out = xr.DataArray(counts, dims=(*group_coords, *dims), coords=coords, name=COUNT)
+    out.attrs.update({**(attrs or {}), "n_rows": n, "foldcorr_version": __version__})
+    return out
 
 
 def _as_1d(values, name: str):
@@ -385,35 +436,38 @@ def _check_weights(weights) -> np.ndarray:
     bad = ~np.isfinite(w) | (w < 0)
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
-        raise InvalidInputError(
-            f"weights must be finite and non-negative; got {float(w[row])!r} at row {row + 1}"
-        )
+        raise InvalidInputError(bad_weight_message(row, w[row]))
     return w
 
 
-def _encode_pair(truth, pred, classes, t_name, p_name):
-    """Integer codes for truth and pred over one shared class list.
+def _encode_labels(arrays, names, classes):
+    """Integer codes for several label arrays over one shared class list.
 
-    Returns codes, labels and whether the class list was fixed by the caller.
+    Returns the codes (one array per input), the labels, and whether the class
+    list was fixed by the caller.
     """
     if classes is not None:
         labels = _fixed_classes(classes)
         index = pd.Index(labels)
-        codes = [index.get_indexer(pd.Index(np.asarray(v))) for v in (truth, pred)]
-        for name, values, c in zip((t_name, p_name), (truth, pred), codes):
+        codes = [index.get_indexer(pd.Index(_plain(v))) for v in arrays]
+        for name, values, c in zip(names, arrays, codes):
             _raise_unknown(name, values, c, labels)
-        return codes[0], codes[1], labels, True
-    direct = _direct_codes(truth, pred)
-    if direct is not None:
-        return (*direct, False)
-    cat = _categorical_codes(truth, pred, t_name, p_name)
-    if cat is not None:
-        return (*cat, False)
-    both = np.concatenate([_plain(truth), _plain(pred)])
-    codes, uniques = pd.factorize(both, use_na_sentinel=True)
-    _raise_missing(codes, len(truth), t_name, p_name)
+        return codes, labels, True
+    for special in (_direct_codes, _categorical_codes):
+        found = special(arrays, names)
+        if found is not None:
+            return (*found, False)
+    plain = [_plain(v) for v in arrays]
+    if len({p.dtype.kind for p in plain}) > 1:  # keep 1 and "1" apart
+        plain = [p.astype(object) for p in plain]
+    codes, uniques = pd.factorize(np.concatenate(plain), use_na_sentinel=True)
+    _raise_missing(codes, [len(p) for p in plain], names)
     codes, uniques = _sorted_codes(codes, np.asarray(uniques, dtype=object))
-    return codes[: len(truth)], codes[len(truth) :], list(uniques), False
+    return _split(codes, [len(p) for p in plain]), list(uniques), False
+
+
+def _split(codes: np.ndarray, lengths) -> list:
+    return np.split(codes, np.cumsum(lengths)[:-1])
 
 
 def _plain(values) -> np.ndarray:
@@ -438,27 +492,79 @@ def _raise_unknown(name, values, codes, labels) -> None:
     if bad.size:
         row = int(bad[0])
         value = _py(np.asarray(values)[row])
-        shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
-        raise InvalidInputError(
-            f"column {name!r} row {row + 1}: label {value!r} is not among the classes "
-            f"[{shown}] ({bad.size} rows outside them)"
-        )
+        raise InvalidInputError(unknown_label_message(name, row, value, bad.size, labels))
 
 
-def _raise_missing(codes, n_truth, t_name, p_name) -> None:
+def unknown_label_message(name: str, row: int, value, n_bad: int, labels) -> str:
+    """The message for a label outside a fixed class list.
+
+    Shared by the in-memory tally and the streaming sources, so both word it
+    the same way.
+
+    Parameters
+    ----------
+    name : str
+        Column name.
+    row : int
+        Zero-based row of the first offending label.
+    value : object
+        That label.
+    n_bad : int
+        Number of rows outside the classes.
+    labels : sequence
+        The fixed classes.
+
+    Returns
+    -------
+    str
+
+    Examples
+    --------
+    >>> unknown_label_message("actual", 2, "owl", 1, ["cat", "dog"])
+    "column 'actual' row 3: label 'owl' is not among the classes ['cat', 'dog'] (1 rows outside them)"
+    """
+    labels = list(labels)
+    shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
+    return (f"column {name!r} row {row + 1}: label {value!r} is not among the classes "
+            f"[{shown}] ({n_bad} rows outside them)")
+
+
+def bad_weight_message(row: int, value) -> str:
+    """The message for a negative or non-finite weight at zero-based ``row``.
+
+    Examples
+    --------
+    >>> bad_weight_message(1, -2.0)
+    'weights must be finite and non-negative; got -2.0 at row 2'
+    """
+    return f"weights must be finite and non-negative; got {float(value)!r} at row {row + 1}"
+
+
+def missing_label_message(name: str, row: int, n_missing: int) -> str:
+    """The message for a missing truth or predicted label (see :func:`unknown_label_message`).
+
+    Examples
+    --------
+    >>> missing_label_message("predicted", 0, 2)
+    "column 'predicted' row 1: missing label (2 missing in all)"
+    """
+    return f"column {name!r} row {row + 1}: missing label ({n_missing} missing in all)"
+
+
+def _raise_missing(codes, lengths, names) -> None:
     bad = np.flatnonzero(codes < 0)
     if bad.size:
         i = int(bad[0])
-        name, row = (t_name, i) if i < n_truth else (p_name, i - n_truth)
-        raise InvalidInputError(
-            f"column {name!r} row {row + 1}: missing label ({bad.size} missing in all)"
-        )
+        ends = np.cumsum(lengths)
+        which = int(np.searchsorted(ends, i, side="right"))
+        row = i - (int(ends[which - 1]) if which else 0)
+        raise InvalidInputError(missing_label_message(names[which], row, bad.size))
 
 
-def _direct_codes(truth, pred):
+def _direct_codes(arrays, names=None):
     """Codes for small non-negative integer (or boolean) labels, no hashing."""
-    arrays = []
-    for values in (truth, pred):
+    out = []
+    for values in arrays:
         if isinstance(values, (pd.Series, pd.Index)):
             if not (pd.api.types.is_integer_dtype(values.dtype) or values.dtype == bool):
                 return None
@@ -471,31 +577,31 @@ def _direct_codes(truth, pred):
             values = values.view(np.uint8)
         elif not np.issubdtype(values.dtype, np.integer):
             return None
-        arrays.append(values)
-    if arrays[0].size == 0:
+        out.append(values)
+    if out[0].size == 0:
         return None
-    lo = min(int(a.min()) for a in arrays)
-    hi = max(int(a.max()) for a in arrays)
+    lo = min(int(a.min()) for a in out)
+    hi = max(int(a.max()) for a in out)
     if lo < 0 or hi >= _DIRECT_MAX:
         return None
     labels = np.arange(hi + 1)
-    if all(getattr(v, "dtype", None) == bool for v in (truth, pred)):
+    if all(getattr(v, "dtype", None) == bool for v in arrays):
         labels = labels.astype(bool)
-    return arrays[0], arrays[1], list(labels)
+    return out, list(labels)
 
 
-def _categorical_codes(truth, pred, t_name, p_name):
-    cats = [_categorical(v) for v in (truth, pred)]
+def _categorical_codes(arrays, names):
+    cats = [_categorical(v) for v in arrays]
     if any(c is None for c in cats):
         return None
-    ct, cp = cats
-    if not ct.categories.equals(cp.categories):
-        union = ct.categories.union(cp.categories, sort=False)
-        ct = ct.set_categories(union)
-        cp = cp.set_categories(union)
-    codes_t, codes_p = ct.codes.astype(np.int64), cp.codes.astype(np.int64)
-    _raise_missing(np.concatenate([codes_t, codes_p]), len(codes_t), t_name, p_name)
-    return codes_t, codes_p, list(ct.categories)
+    union = cats[0].categories
+    for c in cats[1:]:
+        if not c.categories.equals(union):
+            union = union.union(c.categories, sort=False)
+    cats = [c if c.categories.equals(union) else c.set_categories(union) for c in cats]
+    codes = [c.codes.astype(np.int64) for c in cats]
+    _raise_missing(np.concatenate(codes), [len(c) for c in codes], names)
+    return codes, list(union)
 
 
 def _categorical(values):
@@ -518,9 +624,9 @@ def _sorted_codes(codes: np.ndarray, uniques: np.ndarray):
 
 def _encode_one(values, name: str):
     """Codes, sorted unique values, and whether the codes are the values themselves."""
-    direct = _direct_codes(values, values)
+    direct = _direct_codes([values])
     if direct is not None:
-        codes, _, labels = direct
+        (codes,), labels = direct
         return codes, [_py(v) for v in labels], True
     codes, uniques = pd.factorize(_plain(values), use_na_sentinel=True)
     bad = np.flatnonzero(codes < 0)
@@ -530,21 +636,21 @@ def _encode_one(values, name: str):
     return codes, [_py(u) for u in uniques], False
 
 
-def _drop_unseen_groups(counts, coords: dict, direct: list, group_codes: list, weights):
-    """Drop leading-dim entries that no sample had (only the direct path makes them)."""
-    coords = dict(coords)
-    for axis, (dim, is_direct, (codes, size)) in enumerate(zip(list(coords), direct, group_codes)):
-        if not is_direct:
+def _drop_unseen_groups(counts, groups: list, weights):
+    """Leading coordinates, without entries no sample had (only the direct path makes them)."""
+    coords = {}
+    for axis, (dim, codes, labels, direct) in enumerate(groups):
+        coords[dim] = labels
+        if not direct:
             continue
         if weights is None:
-            other = tuple(i for i in range(counts.ndim) if i != axis)
-            seen = counts.sum(axis=other) > 0
+            seen = counts.sum(axis=tuple(i for i in range(counts.ndim) if i != axis)) > 0
         else:
-            seen = np.bincount(codes, minlength=size) > 0
+            seen = np.bincount(codes, minlength=len(labels)) > 0
         if not seen.all():
             keep = np.flatnonzero(seen)
             counts = np.take(counts, keep, axis=axis)
-            coords[dim] = [coords[dim][i] for i in keep]
+            coords[dim] = [labels[i] for i in keep]
     return counts, coords
 
 
@@ -552,34 +658,87 @@ def _py(value):
     return value.item() if isinstance(value, np.generic) else value
 
 
-def _bincount(codes_t, codes_p, k, groups, weights) -> np.ndarray:
-    index = np.zeros(len(codes_t), dtype=np.int64)
-    shape = []
-    for codes, size in groups:
+def _bincount(class_codes: list, k: int, groups: list, weights) -> np.ndarray:
+    """Count the group codes, then the class codes, into one dense array."""
+    codes = [c for c, _ in groups] + list(class_codes)
+    shape = [size for _, size in groups] + [k] * len(class_codes)
+    return count_codes(codes, shape, weights=weights)
+
+
+def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=None,
+                out: np.ndarray | None = None) -> np.ndarray:
+    """Count rows of integer codes into a dense array.
+
+    Row ``i`` adds one (or ``weights[i]``) to the cell
+    ``(codes[0][i], codes[1][i], ...)`` of an array of shape ``shape``. This
+    is the one counting step of the tensor layer; the streaming sources call
+    it batch by batch.
+
+    Parameters
+    ----------
+    codes : sequence of numpy.ndarray
+        One integer array per dim, all of the same length, with
+        ``0 <= codes[d] < shape[d]``.
+    shape : sequence of int
+        Size of each dim.
+    weights : numpy.ndarray, optional
+        One float weight per row.
+    out : numpy.ndarray, optional
+        A C-contiguous array of shape ``shape`` to add the counts into, in
+        place (int64 for counts, float64 for weights); no array of the
+        size of ``shape`` is allocated then, which suits many small batches.
+
+    Returns
+    -------
+    numpy.ndarray
+        int64 counts, or float64 sums of weights, of shape ``shape``
+        (``out`` itself when given).
+
+    Notes
+    -----
+    The cell is found by the mixed-radix index
+    ``((c_0 * n_1 + c_1) * n_2 + c_2) ...`` and counted with one
+    ``numpy.bincount``, so the cost is O(rows + cells); with ``out`` it is
+    added in place with ``numpy.add.at``, O(rows).
+
+    Examples
+    --------
+    >>> count_codes([np.array([0, 1, 1]), np.array([1, 1, 0])], [2, 2]).tolist()
+    [[0, 1], [1, 1]]
+    >>> acc = np.zeros((2, 2), dtype=np.int64)
+    >>> count_codes([np.array([1]), np.array([0])], [2, 2], out=acc).tolist()
+    [[0, 0], [1, 0]]
+    """
+    if not codes:
+        raise ValueError("count_codes needs at least one array of codes")
+    index = np.asarray(codes[0]).astype(np.int64)
+    for c, size in zip(codes[1:], shape[1:]):
         index *= size
-        index += codes
-        shape.append(size)
-    index *= k
-    index += codes_t
-    index *= k
-    index += codes_p
-    total = int(np.prod(shape, dtype=np.int64)) * k * k
+        index += c
+    if out is not None:
+        np.add.at(out.reshape(-1), index, 1 if weights is None else weights)
+        return out
+    total = int(np.prod(shape, dtype=np.int64))
     counts = np.bincount(index, weights=weights, minlength=total)
     if weights is None:
         counts = counts.astype(np.int64, copy=False)
-    return counts.reshape(*shape, k, k)
+    return counts.reshape(*shape)
 
 
-def _occurring(codes_t, codes_p, k) -> np.ndarray:
-    return (np.bincount(codes_t, minlength=k) + np.bincount(codes_p, minlength=k)) > 0
+def _occurring(class_codes: list, k: int) -> np.ndarray:
+    return sum(np.bincount(c, minlength=k) for c in class_codes) > 0
 
 
-def _drop_unseen(counts: np.ndarray, labels: list, seen=None):
-    """Drop classes that occur in neither truth nor predictions."""
+def _drop_unseen(counts: np.ndarray, labels: list, n_axes: int, seen=None):
+    """Drop classes that occur in none of the last ``n_axes`` (class) axes."""
+    class_axes = range(counts.ndim - n_axes, counts.ndim)
     if seen is None:
-        seen = (counts.sum(axis=-1) + counts.sum(axis=-2)).reshape(-1, len(labels)).sum(axis=0) > 0
+        seen = np.zeros(len(labels), dtype=bool)
+        for axis in class_axes:
+            seen |= counts.sum(axis=tuple(i for i in range(counts.ndim) if i != axis)) > 0
     if seen.all():
-        return counts, [_py(x) for x in labels]
+        return counts, list(labels)
     keep = np.flatnonzero(seen)
-    counts = counts[..., keep, :][..., keep]
-    return counts, [_py(labels[i]) for i in keep]
+    for axis in class_axes:
+        counts = np.take(counts, keep, axis=axis)
+    return counts, [labels[i] for i in keep]

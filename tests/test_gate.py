@@ -249,3 +249,81 @@ def test_bad_option_combinations(capsys, good):
     code, _, err = run(capsys, "gate", counts, "--matrix", "--min-fold-rk", 0.1)
     assert code == 2 and "`min_fold_rk` needs folds" in err
 
+
+
+def _two_runs(tmp_path, *, n, seed, skill_a, skill_b, ids_b=None):
+    rng = np.random.default_rng(seed)
+    y = rng.choice(CLASSES, n)
+    a = np.where(rng.random(n) < skill_a, y, rng.choice(CLASSES, n))
+    b = np.where(rng.random(n) < skill_b, y, rng.choice(CLASSES, n))
+    ids = [f"f{i:04d}" for i in range(n)]
+    base = pd.DataFrame({"frame": ids, "actual": y, "predicted": a, "fold": np.arange(n) % 3})
+    new = pd.DataFrame({"frame": ids_b or ids, "actual": y, "predicted": b,
+                        "fold": np.arange(n) % 3})
+    base.to_csv(tmp_path / "base.csv", index=False)
+    new.iloc[::-1].to_csv(tmp_path / "new.csv", index=False)  # another row order
+    return base, new
+
+
+def _batch_rk(y, p, k=len(CLASSES)):
+    """Gorodkin's R_K of each row of label arrays (last axis: samples), vectorised."""
+    y, p = np.atleast_2d(y), np.atleast_2d(p)
+    rows = np.arange(y.shape[0])[:, None]
+    c = np.bincount((rows * k * k + y * k + p).ravel(), minlength=y.shape[0] * k * k)
+    c = c.reshape(-1, k, k).astype(float)
+    s, trace = c.sum(axis=(1, 2)), np.trace(c, axis1=1, axis2=2)
+    t, q = c.sum(axis=2), c.sum(axis=1)
+    out = (trace * s - (t * q).sum(1)) / np.sqrt((s**2 - (q**2).sum(1)) * (s**2 - (t**2).sum(1)))
+    return out if out.size > 1 else float(out[0])
+
+
+def test_confidence_paired_interval_against_scipy(capsys, tmp_path):
+    # Reference: scipy.stats.bootstrap (paired, percentile) of the per-sample difference in MCC.
+    pytest.importorskip("foldcorr.compare")
+    from scipy.stats import bootstrap
+
+    base, new = _two_runs(tmp_path, n=500, seed=21, skill_a=0.8, skill_b=0.7)
+    run(capsys, "score", tmp_path / "base.csv", "--save", tmp_path / "base.nc", "--id", "frame")
+    code, out, _ = run(capsys, "gate", tmp_path / "new.csv", "--id", "frame",
+                       "--baseline", tmp_path / "base.nc", "--max-drop", 0.0,
+                       "--confidence", 0.95, "--resamples", 2000, "--seed", 4,
+                       "--format", "json")
+    doc = json.loads(out)
+    assert doc["comparison"] == "paired"
+    rule = doc["rules"][0]
+    drop = matthews_corrcoef(base.actual, base.predicted) - matthews_corrcoef(new.actual,
+                                                                              new.predicted)
+    assert abs(rule["value"] - drop) < 1e-12
+    codes = {c: i for i, c in enumerate(CLASSES)}
+    y, a, b = (np.array([codes[v] for v in col]) for col in (base.actual, base.predicted,
+                                                             new.predicted))
+    # The statistic checked against sklearn on the full sample, then resampled by scipy.
+    assert abs(_batch_rk(y, a) - matthews_corrcoef(base.actual, base.predicted)) < 1e-12
+    ref = bootstrap((y, a, b), lambda y, a, b, axis=-1: _batch_rk(y, a) - _batch_rk(y, b),
+                    paired=True, vectorized=True, n_resamples=4000, method="percentile",
+                    confidence_level=0.95, random_state=1)
+    low, high = ref.confidence_interval
+    detail = rule["detail"]
+    shown = detail.split("interval [")[1].split("]")[0].split(", ")
+    # Within Monte Carlo error of two independent bootstraps (common practice: about 0.02 here).
+    assert abs(float(shown[0]) - low) < 0.02 and abs(float(shown[1]) - high) < 0.02
+    assert "paired bootstrap on 500 shared samples" in detail
+    # The whole interval lies above 0: a regression, exit 1.
+    assert low > 0 and code == 1 and rule["passed"] is False
+
+
+def test_confidence_spares_a_drop_within_noise(capsys, tmp_path):
+    pytest.importorskip("foldcorr.uncertainty")
+    base, new = _two_runs(tmp_path, n=120, seed=5, skill_a=0.72, skill_b=0.70,
+                          ids_b=[f"g{i:04d}" for i in range(120)])
+    drop = matthews_corrcoef(base.actual, base.predicted) - matthews_corrcoef(new.actual,
+                                                                              new.predicted)
+    assert drop > 0
+    args = ["gate", tmp_path / "new.csv", "--id", "frame", "--baseline", tmp_path / "base.csv",
+            "--max-drop", 0.0]
+    assert run(capsys, *args)[0] == 1  # the plain check counts any drop
+    code, out, _ = run(capsys, *args, "--confidence", 0.95, "--seed", 2, "--format", "json")
+    doc = json.loads(out)
+    assert code == 0 and doc["comparison"] == "unpaired"
+    assert any("the sample ids differ" in w for w in doc["warnings"])
+    assert "unpaired bootstrap" in doc["rules"][0]["detail"]
