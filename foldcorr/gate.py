@@ -209,7 +209,10 @@ def _holds(value: float, threshold: float, op: str) -> bool:
 
 
 def _f(value) -> str:
-    return "n/a" if value is None or not math.isfinite(value) else f"{value:.3f}"
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    text = f"{value:.3f}"
+    return "0.000" if text == "-0.000" else text
 
 
 def _listed(items: list[str], limit: int = 5) -> str:

@@ -226,3 +226,21 @@ def test_benchmark_quick_run():
     figures = bench.run(quick=True)
     assert figures["nc_bytes"] < figures["csv_bytes"]
     assert {"ours_s", "reference_s", "speedup_vs_reference"} <= set(figures)
+
+
+def test_show_repeats_the_analyses_with_their_options(tmp_path, table, capsys):
+    # Intervals depend on --ci, --resamples and --seed: show must rerun them with the saved ones.
+    pytest.importorskip("foldcorr.uncertainty")
+    path, _ = table
+    out = tmp_path / "run.nc"
+    argv = ["--ci", "0.9", "--resamples", "300", "--seed", "5", "--ci-method", "bca"]
+    code, printed, _ = run(capsys, "score", path, "--format", "json", *argv, "--save", out)
+    assert code == 0
+    doc = json.loads(printed)
+    assert doc["ci"]["level"] == 0.9 and doc["ci"]["resamples"] == 300
+    assert load_saved(out).options["ci_method"] == "bca"
+    assert load_saved(out).provenance["seed"] == 5
+    code, shown, _ = run(capsys, "show", out, "--format", "json")
+    assert code == 0 and shown == printed
+    code, text_score, _ = run(capsys, "score", path, *argv)
+    assert run(capsys, "show", out)[1] == text_score
