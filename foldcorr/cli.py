@@ -446,6 +446,11 @@ def _run_gate(args) -> int:
         raise OptionError("`--max-drop` compares with a baseline; give --baseline FILE too")
     if args.confidence is not None and not args.baseline:
         raise OptionError("`--confidence` applies to a baseline; give --baseline FILE too")
+    if args.confidence is not None:
+        from foldcorr.uncertainty import check_level, check_resamples
+
+        check_level(args.confidence, name="--confidence")
+        check_resamples(args.resamples, name="--resamples")
     if args.allow_new_classes and not args.baseline:
         raise OptionError("`--allow-new-classes` applies to a baseline; give --baseline FILE too")
     ev, samples = _gate_source(args.path, args, args.undefined)

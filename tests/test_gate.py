@@ -327,3 +327,15 @@ def test_confidence_spares_a_drop_within_noise(capsys, tmp_path):
     assert code == 0 and doc["comparison"] == "unpaired"
     assert any("the sample ids differ" in w for w in doc["warnings"])
     assert "unpaired bootstrap" in doc["rules"][0]["detail"]
+
+
+def test_confidence_options_are_checked(capsys, good, tmp_path):
+    pytest.importorskip("foldcorr.uncertainty")
+    path, _ = good
+    code, _, err = run(capsys, "gate", path, "--baseline", path, "--confidence", 1.5)
+    assert code == 2 and "--confidence" in err and err.count("\n") == 1
+    code, _, err = run(capsys, "gate", path, "--baseline", path, "--confidence", 0.9,
+                       "--resamples", 5)
+    assert code == 2 and "--resamples" in err
+    code, _, err = run(capsys, "gate", path, "--min-rk", 0, "--confidence", 0.9)
+    assert code == 2 and "give --baseline FILE too" in err
