@@ -1,0 +1,110 @@
+"""Score sweeps, checked against a brute-force loop with scikit-learn."""
+
+import numpy as np
+import pytest
+from sklearn.metrics import (
+    accuracy_score, confusion_matrix, f1_score, matthews_corrcoef, precision_score, recall_score,
+)
+
+from foldcorr.errors import InvalidInputError
+from foldcorr.thresholds import sweep, threshold_curve
+
+
+def _brute(y, s, full=True):
+    """Every distinct threshold with the reference library (sklearn.metrics)."""
+    rows = []
+    for theta in np.unique(s):
+        p = s >= theta
+        if not full:
+            rows.append((theta, 0, 0, 0, 0, matthews_corrcoef(y, p)))
+            continue
+        tn, fp, fn, tp = confusion_matrix(y, p, labels=[False, True]).ravel()
+        rows.append((theta, tp, fp, fn, tn, matthews_corrcoef(y, p), accuracy_score(y, p),
+                     f1_score(y, p, zero_division=0), recall_score(y, p, zero_division=0),
+                     precision_score(y, p, zero_division=0)))
+    return np.array(rows, dtype=float)
+
+
+@pytest.mark.parametrize("case", ["ties", "continuous", "constant", "all_negative"])
+def test_curve_equals_brute_force(case):
+    rng = np.random.default_rng(7)
+    y = rng.random(200) < 0.3
+    if case == "ties":
+        s = np.round(rng.random(200) + 0.5 * y, 1)  # heavy ties
+    elif case == "continuous":
+        s = rng.normal(size=200) + y
+    elif case == "constant":
+        s = np.full(200, 0.25)
+    else:
+        y = np.zeros(200, bool)
+        s = rng.integers(0, 5, 200).astype(float)
+    c = threshold_curve(y, s)
+    ref = _brute(y, s)
+    got = np.column_stack([c[k].values for k in
+                           ("threshold", "tp", "fp", "fn", "tn", "mcc", "accuracy", "f1",
+                            "recall", "precision")])
+    np.testing.assert_allclose(got, ref, atol=1e-12)
+
+
+def test_best_and_at_threshold_match_brute_force():
+    rng = np.random.default_rng(8)
+    y = rng.random(500) < 0.2
+    s = np.round(rng.random(500) + 0.6 * y, 2)
+    r = sweep(y, s, at=0.55).labels[0]
+    ref = _brute(y, s, full=False)
+    assert r.best_mcc == pytest.approx(ref[:, 5].max(), abs=1e-12)
+    best_rows = ref[np.isclose(ref[:, 5], ref[:, 5].max(), atol=1e-12)]
+    assert r.best_threshold == best_rows[:, 0].max()  # ties go to the highest threshold
+    # sklearn.metrics.matthews_corrcoef at the user's threshold
+    assert r.mcc_at == pytest.approx(matthews_corrcoef(y, s >= 0.55), abs=1e-12)
+    assert r.n_thresholds == len(np.unique(s))
+
+
+def test_crossfold_choice_matches_brute_force_on_the_other_folds():
+    rng = np.random.default_rng(9)
+    y = rng.random(400) < 0.35
+    s = np.round(rng.random(400) + 0.5 * y, 2)
+    folds = rng.integers(0, 4, 400)
+    r = sweep(y, s, folds=folds).labels[0]
+    held = []
+    for j in range(4):
+        train, test = folds != j, folds == j
+        ref = _brute(y[train], s[train], full=False)
+        top = ref[:, 5].max()
+        theta = ref[np.isclose(ref[:, 5], top, atol=1e-12), 0].max()
+        assert float(r.crossfold["threshold"].sel(fold=j)) == theta
+        # sklearn.metrics.matthews_corrcoef on the held-out fold
+        held.append(matthews_corrcoef(y[test], s[test] >= theta))
+        assert float(r.crossfold["mcc"].sel(fold=j)) == pytest.approx(held[-1], abs=1e-12)
+    assert r.crossfold_mcc == pytest.approx(np.mean(held), abs=1e-12)
+    assert r.optimism == pytest.approx(r.best_mcc - np.mean(held))
+
+
+def test_multilabel_sweep_per_column():
+    rng = np.random.default_rng(10)
+    y = rng.random((300, 3)) < [0.1, 0.4, 0.7]
+    s = np.round(rng.random((300, 3)) + 0.4 * y, 1)
+    r = sweep(y, s, labels=["a", "b", "c"])
+    assert [x.label for x in r.labels] == ["a", "b", "c"]
+    for j, x in enumerate(r.labels):
+        assert x.best_mcc == pytest.approx(_brute(y[:, j], s[:, j], full=False)[:, 5].max(), abs=1e-12)
+
+
+def test_degenerate_labels_are_named_in_warnings():
+    r = sweep(np.array([[0, 1], [0, 0], [0, 1]]), np.array([[0.1, 0.5], [0.4, 0.5], [0.2, 0.5]]),
+              labels=["never", "flat"])
+    assert any("'never'" in w and "no positives" in w for w in r.warnings)
+    assert any("'flat'" in w and "constant" in w for w in r.warnings)
+
+
+def test_bad_scores_and_truth():
+    with pytest.raises(InvalidInputError, match=r"row 2: score nan is not finite"):
+        sweep([0, 1], [0.1, np.nan])
+    with pytest.raises(InvalidInputError, match=r"row 1: score inf is not finite"):
+        sweep([0, 1], [np.inf, 0.1])
+    with pytest.raises(InvalidInputError, match=r"row 2: score 'high' is not a number"):
+        sweep([0, 1], np.array([0.1, "high"], dtype=object))
+    with pytest.raises(InvalidInputError, match=r"truth 2 is not 0/1"):
+        sweep([0, 2], [0.1, 0.2])
+    with pytest.raises(InvalidInputError, match="at least two folds"):
+        sweep([0, 1], [0.1, 0.2], folds=[1, 1])
