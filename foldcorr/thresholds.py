@@ -75,22 +75,61 @@ def _check_truth(truth, name: str) -> np.ndarray:
     raise InvalidInputError(f"{name} must be 0/1 or True/False; got dtype {arr.dtype!r}")
 
 
-def _curve_counts(truth_sorted: np.ndarray, score_sorted: np.ndarray):
-    """Counts at every distinct threshold, from arrays sorted by descending score.
+class _Grid:
+    """Distinct thresholds of one score array, from one sort, and counts on them.
 
-    Returns thresholds ascending and the matching (tp, fp, positives, n).
+    ``values`` is the sorted score array, ``first`` the position of the first
+    occurrence of each distinct score in it, ``thresholds`` those scores
+    (ascending) and ``predicted`` the number of samples with score >= each.
     """
-    n = truth_sorted.size
-    pos = np.cumsum(truth_sorted, dtype=np.int64)
-    if n:
-        last = np.flatnonzero(score_sorted[1:] != score_sorted[:-1])
-        last = np.append(last, n - 1)
-    else:
-        last = np.zeros(0, dtype=np.int64)
-    tp = pos[last]
-    fp = (last + 1) - tp
-    total_pos = int(pos[-1]) if n else 0
-    return score_sorted[last][::-1], tp[::-1], fp[::-1], total_pos, n
+
+    def __init__(self, scores: np.ndarray):
+        self.values = np.sort(scores)
+        n = self.values.size
+        change = np.empty(n, dtype=bool)
+        if n:
+            change[0] = True
+            np.not_equal(self.values[1:], self.values[:-1], out=change[1:])
+        self.first = np.flatnonzero(change)
+        self.thresholds = self.values[self.first]
+        self.n = n
+        self.predicted = n - self.first
+
+    def at_or_above(self, subset: np.ndarray) -> np.ndarray:
+        """For each threshold, how many of ``subset`` (scores from the same array) are >= it."""
+        where = np.searchsorted(self.values, np.sort(subset), side="left")
+        occ = np.bincount(where, minlength=self.n)[self.first]
+        return np.cumsum(occ[::-1])[::-1]
+
+
+def _curve_counts(truth: np.ndarray, scores: np.ndarray):
+    """Thresholds ascending and (tp, fp, positives, n) at each, with the grid."""
+    grid = _Grid(scores)
+    tp = grid.at_or_above(scores[truth])
+    return grid, tp, grid.predicted - tp, int(np.count_nonzero(truth)), grid.n
+
+
+def _mcc_counts(tp, fp, total_pos, n, undefined: str) -> np.ndarray:
+    r"""Binary MCC from the counts at each threshold (Matthews 1975), vectorised.
+
+    The same value as :func:`foldcorr.metrics.mcc` on each threshold's 2 x 2
+    tensor (checked in the tests), computed straight from the four counts so a
+    curve of 10^7 thresholds costs a few array passes.
+    """
+    # tp*tn - fp*fn = n*tp - (tp + fp)*n+, with n+ = total_pos; float64 throughout
+    tp = np.atleast_1d(np.asarray(tp, dtype=np.float64))
+    pp = tp + np.atleast_1d(np.asarray(fp, dtype=np.float64))  # predicted positive
+    num = tp * float(n)
+    num -= pp * float(total_pos)
+    den = float(n) - pp
+    den *= pp
+    np.sqrt(den, out=den)
+    den *= np.sqrt(float(total_pos) * float(n - total_pos))
+    bad = den == 0
+    den[bad] = 1.0
+    out = np.divide(num, den, out=num)
+    out[bad] = 0.0 if undefined == "zero" else np.nan
+    return np.clip(out, -1.0, 1.0, out=out)
 
 
 def _curve_tensor(thresholds, tp, fp, total_pos, n) -> xr.DataArray:
@@ -132,16 +171,18 @@ def threshold_curve(truth, scores, *, undefined: str = "zero") -> xr.Dataset:
     Notes
     -----
     Threshold :math:`\theta` predicts positive every sample with
-    :math:`\text{score} \ge \theta`. With scores sorted once in descending
-    order and :math:`P(i)` the cumulative count of positives among the first
-    :math:`i` samples, the threshold equal to the :math:`j`-th distinct score,
-    whose last occurrence is at sorted position :math:`i_j`, has
-    :math:`TP = P(i_j)`, :math:`FP = i_j - TP`, :math:`FN = n^+ - TP`,
-    :math:`TN = n^- - FP`. Cost :math:`O(n \log n)` for the sort and
-    :math:`O(n)` after it. The figures at each threshold are
-    :func:`foldcorr.metrics.mcc` and companions on that 2 x 2 matrix;
-    undefined values at individual thresholds are not warned about (the
-    lowest threshold is always undefined for MCC).
+    :math:`\text{score} \ge \theta`. The scores are sorted once; the
+    position :math:`f_j` of the first occurrence of the :math:`j`-th distinct
+    score gives the number predicted positive, :math:`n - f_j`. The sorted
+    positive scores are located in that array (a binary search of sorted keys)
+    and a suffix sum of their occurrences gives :math:`TP_j`; then
+    :math:`FP_j = n - f_j - TP_j`, :math:`FN_j = n^+ - TP_j`,
+    :math:`TN_j = n^- - FP_j`. Ties are exact: every sample whose score equals
+    a threshold is on the positive side of it. Cost :math:`O(n \log n)`.
+    The figures at each threshold are :func:`foldcorr.metrics.mcc` and its
+    companions on that 2 x 2 matrix; undefined values at single thresholds
+    are not warned about (at the lowest threshold every sample is predicted
+    positive, so MCC is always 0/0 there).
 
     Examples
     --------
@@ -158,8 +199,8 @@ def threshold_curve(truth, scores, *, undefined: str = "zero") -> xr.Dataset:
         raise InvalidInputError(
             f"truth and scores must be 1-D of the same length; got shapes {y.shape!r} and "
             f"{s.shape!r}")
-    order = np.argsort(s)[::-1]
-    return _figures(_curve_tensor(*_curve_counts(y[order], s[order])), undefined)
+    grid, tp, fp, total_pos, n = _curve_counts(y, s)
+    return _figures(_curve_tensor(grid.thresholds, tp, fp, total_pos, n), undefined)
 
 
 def _figures(t: xr.DataArray, undefined: str) -> xr.Dataset:
@@ -181,27 +222,23 @@ def _figures(t: xr.DataArray, undefined: str) -> xr.Dataset:
     return out
 
 
-def _best(curve: xr.Dataset) -> tuple[float, float]:
-    """The MCC-maximising threshold (ties go to the highest threshold) and its MCC."""
-    mcc = np.nan_to_num(curve["mcc"].values, nan=-np.inf)
-    if mcc.size == 0:
-        return float("nan"), float("nan")
-    i = mcc.size - 1 - int(np.argmax(mcc[::-1]))
-    return float(curve[THRESHOLD].values[i]), float(curve["mcc"].values[i])
+def _argbest(mcc: np.ndarray, allowed: np.ndarray | None = None) -> int:
+    """Index of the largest MCC (ties go to the highest threshold); -1 if none."""
+    score = mcc if allowed is None else np.where(allowed, mcc, -np.inf)
+    if score.size == 0:
+        return -1
+    if np.isnan(score).any():
+        score = np.where(np.isnan(score), -np.inf, score)
+    if not np.isfinite(score).any():
+        return -1
+    return score.size - 1 - int(np.argmax(score[::-1]))
 
 
-def _mcc_at(thresholds, tp, fp, total_pos, n, at: float, undefined: str) -> float:
+def _mcc_at(grid: _Grid, tp, fp, total_pos, n, at: float, undefined: str) -> float:
     """MCC of predicting ``score >= at``, read off the curve counts."""
-    i = int(np.searchsorted(thresholds, at, side="left"))
-    tp_i, fp_i = (int(tp[i]), int(fp[i])) if i < len(thresholds) else (0, 0)
-    return _mcc_counts(tp_i, fp_i, total_pos, n, undefined)
-
-
-def _mcc_counts(tp: int, fp: int, total_pos: int, n: int, undefined: str) -> float:
-    t = _curve_tensor(np.array([0.0]), np.array([tp]), np.array([fp]), total_pos, n)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UndefinedMetricWarning)
-        return float(m.mcc(t, undefined=undefined).values[0])
+    i = int(np.searchsorted(grid.thresholds, at, side="left"))
+    tp_i, fp_i = (tp[i], fp[i]) if i < len(grid.thresholds) else (0, 0)
+    return float(_mcc_counts(tp_i, fp_i, total_pos, n, undefined)[0])
 
 
 @dataclass(frozen=True)
@@ -213,7 +250,8 @@ class LabelSweep:
     label : object
         Label name (None for a binary sweep).
     curve : xarray.Dataset
-        Figures at every distinct threshold (see :func:`threshold_curve`).
+        Dim ``threshold`` (distinct scores, ascending): ``tp``, ``fp``, ``fn``,
+        ``tn`` and ``mcc``. :meth:`figures` adds the companions.
     n_thresholds : int
         Number of distinct thresholds.
     best_threshold, best_mcc : float
@@ -226,6 +264,8 @@ class LabelSweep:
         that threshold on the held-out fold) and ``n``; None without folds.
     crossfold_mcc : float or None
         Mean held-out MCC over folds.
+    undefined : str
+        The convention used for undefined values.
     """
 
     label: object
@@ -237,6 +277,23 @@ class LabelSweep:
     mcc_at: float | None
     crossfold: xr.Dataset | None
     crossfold_mcc: float | None
+    undefined: str = "zero"
+
+    def figures(self) -> xr.Dataset:
+        """The curve with accuracy, F1, recall and precision, from :mod:`foldcorr.metrics`.
+
+        Examples
+        --------
+        >>> s = sweep([0, 1, 1], [0.2, 0.5, 0.9]).labels[0]
+        >>> s.figures()["recall"].values.tolist()
+        [1.0, 1.0, 0.5]
+        """
+        c = self.curve
+        total_pos = int(c["tp"].values[0] + c["fn"].values[0]) if c.sizes[THRESHOLD] else 0
+        n = int(c[["tp", "fp", "fn", "tn"]].isel({THRESHOLD: 0}).to_array().sum()) \
+            if c.sizes[THRESHOLD] else 0
+        t = _curve_tensor(c[THRESHOLD].values, c["tp"].values, c["fp"].values, total_pos, n)
+        return _figures(t, self.undefined)
 
     @property
     def optimism(self) -> float | None:
@@ -308,9 +365,14 @@ def sweep(truth, scores, *, labels: Sequence | None = None, folds=None,
 
     Notes
     -----
-    Each label's scores are sorted once; the cross-fold curves reuse that order
-    (a subset of a sorted array is sorted), so J folds cost J linear passes,
-    not J sorts. For fold :math:`j`,
+    Each label's scores are sorted once (see :func:`threshold_curve`). Each
+    fold's counts are then located on that label's grid of distinct scores (a
+    sort of the fold's scores, which together are one more sort of the
+    array), and the other folds' counts are the totals minus the fold's. Only
+    thresholds that occur among the other folds' scores are candidates. MCC at
+    every threshold is computed straight from the four counts (Matthews 1975),
+    the same value as :func:`foldcorr.metrics.mcc` on each 2 x 2 matrix, which
+    keeps a curve of 10^7 thresholds to a few array passes. For fold :math:`j`,
 
     .. math:: \hat\theta_{-j} = \arg\max_\theta \mathrm{MCC}_{-j}(\theta), \qquad
               \text{crossfold MCC} = \frac{1}{J}\sum_j \mathrm{MCC}_j(\hat\theta_{-j})
@@ -379,51 +441,64 @@ def _fold_codes(folds, n):
 
 
 def _sweep_one(y, s, name, codes, fold_labels, at, undefined, notes) -> LabelSweep:
-    order = np.argsort(s)[::-1]
-    ys, ss = y[order], s[order]
-    counts = _curve_counts(ys, ss)
-    curve = _figures(_curve_tensor(*counts), undefined)
-    where = "" if name is None else f"label {name!r}: "
-    reason = _degenerate(counts)
+    grid, tp, fp, total_pos, n = _curve_counts(y, s)
+    mcc = _mcc_counts(tp, fp, total_pos, n, undefined)
+    curve = xr.Dataset({"tp": (THRESHOLD, tp), "fp": (THRESHOLD, fp),
+                        "fn": (THRESHOLD, total_pos - tp), "tn": (THRESHOLD, (n - total_pos) - fp),
+                        "mcc": (THRESHOLD, mcc)}, coords={THRESHOLD: grid.thresholds})
+    reason = _degenerate(grid, total_pos, n)
     if reason:
+        where = "" if name is None else f"label {name!r}: "
         notes.append(f"{where}MCC is undefined at every threshold ({reason}); "
                      f"reported as {'0.0' if undefined == 'zero' else 'NaN'}")
-    best_t, best_mcc = _best(curve)
-    mcc_at = None if at is None else _mcc_at(*counts, at, undefined)
+    i = _argbest(mcc)
+    best_t, best_mcc = (float(grid.thresholds[i]), float(mcc[i])) if i >= 0 else (np.nan, np.nan)
+    mcc_at = None if at is None else _mcc_at(grid, tp, fp, total_pos, n, at, undefined)
     crossfold = crossfold_mcc = None
     if codes is not None:
-        cs = codes[order]
-        chosen, held, sizes = [], [], []
-        for j in range(len(fold_labels)):
-            train = cs != j
-            inner = _curve_counts(ys[train], ss[train])
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", UndefinedMetricWarning)
-                theta, _ = _best(xr.Dataset({"mcc": m.mcc(_curve_tensor(*inner), undefined=undefined)},
-                                            coords={THRESHOLD: inner[0]}))
-            test = ~train
-            yt, st = ys[test], ss[test]
-            pred = st >= theta
-            tp = int(np.count_nonzero(yt & pred))
-            fp = int(np.count_nonzero(pred)) - tp
-            chosen.append(theta)
-            held.append(_mcc_counts(tp, fp, int(yt.sum()), int(yt.size), undefined))
-            sizes.append(int(yt.size))
-        crossfold = xr.Dataset({"threshold": (FOLD, np.array(chosen)),
-                                "mcc": (FOLD, np.array(held)), "n": (FOLD, np.array(sizes))},
-                               coords={FOLD: fold_labels})
-        crossfold_mcc = float(np.mean(held))
-    return LabelSweep(label=name, curve=curve, n_thresholds=int(curve.sizes[THRESHOLD]),
+        crossfold = _crossfold(grid, tp, s, y, total_pos, codes, fold_labels, undefined)
+        crossfold_mcc = float(crossfold["mcc"].mean())
+    return LabelSweep(label=name, curve=curve, n_thresholds=int(grid.thresholds.size),
                       best_threshold=best_t, best_mcc=best_mcc, at_threshold=at, mcc_at=mcc_at,
-                      crossfold=crossfold, crossfold_mcc=crossfold_mcc)
+                      crossfold=crossfold, crossfold_mcc=crossfold_mcc, undefined=undefined)
 
 
-def _degenerate(counts) -> str:
-    thresholds, _, _, total_pos, n = counts
+def _crossfold(grid: _Grid, tp, s, y, total_pos, codes, fold_labels, undefined) -> xr.Dataset:
+    """Per fold: the best threshold on the other folds, and its MCC on the fold.
+
+    Each fold's counts are taken on the grid of all distinct scores, so the
+    complement's counts are the totals minus the fold's: no second sort of the
+    whole array. Only thresholds that occur among the other folds' scores are
+    candidates, exactly as if the other folds had been swept alone.
+    """
+    occurs = np.diff(np.append(grid.first, grid.n))
+    chosen, held, sizes = [], [], []
+    for j in range(len(fold_labels)):
+        inside = codes == j
+        pred_j = grid.at_or_above(s[inside])
+        tp_j = grid.at_or_above(s[inside & y])
+        n_j, pos_j = int(np.count_nonzero(inside)), int(np.count_nonzero(inside & y))
+        here = np.append(pred_j[:-1] - pred_j[1:], pred_j[-1:]) if pred_j.size else pred_j
+        tp_c = tp - tp_j
+        fp_c = (grid.predicted - pred_j) - tp_c
+        mcc_c = _mcc_counts(tp_c, fp_c, total_pos - pos_j, grid.n - n_j, undefined)
+        i = _argbest(mcc_c, allowed=(occurs - here) > 0)
+        if i < 0:
+            chosen.append(np.nan)
+            held.append(np.nan if undefined == "nan" else 0.0)
+        else:
+            chosen.append(float(grid.thresholds[i]))
+            held.append(float(_mcc_counts(tp_j[i], pred_j[i] - tp_j[i], pos_j, n_j, undefined)[0]))
+        sizes.append(n_j)
+    return xr.Dataset({"threshold": (FOLD, np.array(chosen)), "mcc": (FOLD, np.array(held)),
+                       "n": (FOLD, np.array(sizes))}, coords={FOLD: fold_labels})
+
+
+def _degenerate(grid: _Grid, total_pos: int, n: int) -> str:
     if total_pos == 0:
         return "no positives"
     if total_pos == n:
         return "no negatives"
-    if len(thresholds) == 1:
+    if grid.thresholds.size == 1:
         return "the score is constant"
     return ""

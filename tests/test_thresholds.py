@@ -108,3 +108,16 @@ def test_bad_scores_and_truth():
         sweep([0, 2], [0.1, 0.2])
     with pytest.raises(InvalidInputError, match="at least two folds"):
         sweep([0, 1], [0.1, 0.2], folds=[1, 1])
+
+
+def test_fast_curve_mcc_equals_metrics_mcc():
+    # the sweep's closed-form MCC against foldcorr.metrics.mcc on each threshold's 2 x 2 tensor,
+    # both checked against sklearn above; R_K with K = 2 is Matthews' MCC (Gorodkin 2004)
+    rng = np.random.default_rng(11)
+    y = rng.random(1000) < 0.25
+    s = np.round(rng.normal(size=1000) + y, 2)
+    fast = sweep(y, s).labels[0]
+    np.testing.assert_allclose(fast.curve["mcc"].values, threshold_curve(y, s)["mcc"].values,
+                               atol=1e-12)
+    full = fast.figures()
+    np.testing.assert_allclose(full["precision"].values, threshold_curve(y, s)["precision"].values)
