@@ -279,8 +279,14 @@ class LabelSweep:
     crossfold_mcc: float | None
     undefined: str = "zero"
 
-    def figures(self) -> xr.Dataset:
+    def figures(self, *, max_points: int | None = None) -> xr.Dataset:
         """The curve with accuracy, F1, recall and precision, from :mod:`foldcorr.metrics`.
+
+        Parameters
+        ----------
+        max_points : int, optional
+            Keep at most about this many thresholds, evenly spaced in curve
+            order plus the best threshold (for drawing); all when None.
 
         Examples
         --------
@@ -289,9 +295,15 @@ class LabelSweep:
         [1.0, 1.0, 0.5]
         """
         c = self.curve
-        total_pos = int(c["tp"].values[0] + c["fn"].values[0]) if c.sizes[THRESHOLD] else 0
-        n = int(c[["tp", "fp", "fn", "tn"]].isel({THRESHOLD: 0}).to_array().sum()) \
-            if c.sizes[THRESHOLD] else 0
+        size = c.sizes[THRESHOLD]
+        if max_points is not None and size > max_points:
+            keep = np.unique(np.concatenate([
+                np.linspace(0, size - 1, max_points).round().astype(np.int64),
+                np.flatnonzero(c[THRESHOLD].values == self.best_threshold)]))
+            c = c.isel({THRESHOLD: keep})
+        total_pos = int(c["tp"].values[0] + c["fn"].values[0]) if size else 0
+        n = int(c["tp"].values[0] + c["fp"].values[0] + c["fn"].values[0] + c["tn"].values[0]) \
+            if size else 0
         t = _curve_tensor(c[THRESHOLD].values, c["tp"].values, c["fp"].values, total_pos, n)
         return _figures(t, self.undefined)
 

@@ -27,7 +27,9 @@ import importlib
 __all__ = ["SECTIONS", "hooks"]
 
 #: Extras key -> report module that renders it, in report order.
-SECTIONS: dict[str, str] = {}
+SECTIONS: dict[str, str] = {
+    "shifted": "foldcorr.report.shift",
+}
 
 
 def hooks(ev, name: str) -> list:
