@@ -58,9 +58,9 @@ def tables(ev, top):
         f"{len(classes) - len(shown)} more classes not shown (use --top all)"
     per_class = Table(
         "Classes at the target prevalence",
-        (Column("class", "label"), Column("observed share"), Column("target share"),
-         Column("MCC observed", "correlation"), Column("MCC at target", "correlation"),
-         Column("precision observed"), Column("precision at target"), Column("recall")),
+        (Column("class", "label"), Column("share obs."), Column("share target"),
+         Column("MCC obs.", "correlation"), Column("MCC target", "correlation"),
+         Column("prec. obs."), Column("prec. target"), Column("recall")),
         rows, note)
     return [pooled, per_class]
 

@@ -128,9 +128,11 @@ def curve_frame(result: SweepResult) -> pd.DataFrame:
     """
     frames = []
     for s in result.labels:
-        f = s.figures().drop_vars("count").to_dataframe().reset_index()
-        f.insert(0, "label", _name(s.label) if s.label is not None else "")
-        frames.append(f[["label", *CURVE_COLUMNS]].rename(columns={THRESHOLD: "threshold"}))
+        c = s.figures()
+        f = pd.DataFrame({"threshold": c[THRESHOLD].values,
+                          **{k: c[k].values for k in CURVE_COLUMNS[1:]}})
+        f.insert(0, "label", "" if s.label is None else str(s.label))
+        frames.append(f)
     return pd.concat(frames, ignore_index=True)
 
 
