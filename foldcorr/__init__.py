@@ -12,7 +12,7 @@ import importlib
 from foldcorr._version import __version__
 
 _EXPORTS = {
-    "foldcorr.tally": [
+    "foldcorr.tensor": [
         "tally", "tally_frame", "confusion_tensor", "validate_tensor", "pool",
         "ACTUAL", "PREDICTED", "FOLD", "CLASS", "LABEL",
     ],

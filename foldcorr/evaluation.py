@@ -16,7 +16,7 @@ import xarray as xr
 
 from foldcorr import metrics as m
 from foldcorr.errors import InvalidTensorError, UndefinedMetricWarning, check_choice
-from foldcorr.tally import ACTUAL, FOLD, PREDICTED, pool, validate_tensor
+from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, pool, validate_tensor
 
 __all__ = ["Evaluation", "FoldSummary", "evaluate", "POOLED_FIGURES"]
 
@@ -136,7 +136,7 @@ class Evaluation:
 
         Examples
         --------
-        >>> from foldcorr.tally import confusion_tensor
+        >>> from foldcorr.tensor import confusion_tensor
         >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
         >>> ev.figure("accuracy")
         0.75
@@ -153,7 +153,7 @@ class Evaluation:
 
         Examples
         --------
-        >>> from foldcorr.tally import confusion_tensor
+        >>> from foldcorr.tensor import confusion_tensor
         >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
         >>> sorted(ev.with_extra("note", 1).extras)
         ['note']
@@ -195,7 +195,7 @@ def evaluate(t, *, undefined: str = "zero") -> Evaluation:
 
     Examples
     --------
-    >>> from foldcorr.tally import tally
+    >>> from foldcorr.tensor import tally
     >>> ev = evaluate(tally(["a", "a", "b", "c"], ["a", "b", "b", "c"], folds=[1, 2, 1, 2]))
     >>> round(ev.rk, 4), ev.fold_summary.count
     (0.7, 2)
@@ -210,7 +210,7 @@ def evaluate(t, *, undefined: str = "zero") -> Evaluation:
     notes: list[str] = []
     pooled_t = pool(t)
     pooled = _collect(notes, "pooled", lambda: _pooled(pooled_t, undefined))
-    per_class = _collect(notes, "per class", lambda: _per_class(pooled_t, undefined))
+    per_class = _collect(notes, "pooled", lambda: _per_class(pooled_t, undefined))
     folds = summary = None
     if FOLD in t.dims:
         folds = _collect(notes, "per fold", lambda: _per_fold(t, undefined))

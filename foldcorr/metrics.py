@@ -1,6 +1,6 @@
 r"""The metrics layer: pure functions from confusion tensors to labelled figures.
 
-Every function takes a confusion tensor (see :mod:`foldcorr.tally`), reduces
+Every function takes a confusion tensor (see :mod:`foldcorr.tensor`), reduces
 over ``actual`` and ``predicted``, and broadcasts over every other dim. Per-class
 figures carry a new dim ``class``. Nothing here reads files, prints or draws
 random numbers.
@@ -24,7 +24,7 @@ import numpy as np
 import xarray as xr
 
 from foldcorr.errors import UndefinedMetricWarning, check_choice
-from foldcorr.tally import ACTUAL, CLASS, PREDICTED, validate_tensor
+from foldcorr.tensor import ACTUAL, CLASS, PREDICTED, validate_tensor
 
 __all__ = [
     "UNDEFINED_CHOICES",
@@ -120,7 +120,7 @@ def _warn_undefined(sums: _Sums, bad: np.ndarray, what: str, undefined: str, *, 
     if per_class:
         labels.append(sums.tensor.coords[ACTUAL].values)
     places = [
-        " ".join(f"{n}={lab[i]!r}" for n, lab, i in zip(names, labels, index))
+        " ".join(f"{n}={_item(lab[i])!r}" for n, lab, i in zip(names, labels, index))
         for index in np.argwhere(bad)
     ]
     where = "; ".join(places) if places and places[0] else "the whole tensor"
@@ -130,6 +130,10 @@ def _warn_undefined(sums: _Sums, bad: np.ndarray, what: str, undefined: str, *, 
         UndefinedMetricWarning,
         stacklevel=4,
     )
+
+
+def _item(value):
+    return value.item() if isinstance(value, np.generic) else value
 
 
 def rk(t, *, undefined: str = "zero") -> xr.DataArray:
@@ -171,7 +175,7 @@ def rk(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[6, 2], [1, 3]], ["pos", "neg"])
     >>> round(float(rk(t)), 6)
     0.478091
@@ -188,7 +192,7 @@ def mcc(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> float(mcc(confusion_tensor([[5, 0], [0, 5]], [False, True])))
     1.0
     """
@@ -218,7 +222,7 @@ def ovr_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [1, 0, 5]], ["a", "b", "c"])
     >>> ovr_mcc(t).round(4).values.tolist()
     [0.7, 0.6591, 0.7222]
@@ -262,7 +266,7 @@ def decompose(t, *, undefined: str = "zero") -> xr.Dataset:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [1, 0, 5]], ["a", "b", "c"])
     >>> d = decompose(t)
     >>> round(float(d.contribution.sum("class")), 12) == round(float(d.rk), 12)
@@ -278,7 +282,7 @@ def decompose(t, *, undefined: str = "zero") -> xr.Dataset:
     weight = np.where(defined, np.sqrt(a) * np.sqrt(b) / safe, 0.0)
     num = s.total[..., None] * s.diag - s.actual * s.predicted
     contribution = np.where(defined, num / safe, 0.0)
-    drag = weight - contribution
+    drag = np.maximum(weight - contribution, 0.0)  # w (1 - MCC) >= 0; clip rounding
     total_rk = rk(s.tensor, undefined=undefined).values
     mismatch = np.where(scale > 0, 1.0 - weight.sum(axis=-1), 1.0 - total_rk)
     per_class = ovr_mcc(s.tensor, undefined=undefined)
@@ -299,7 +303,7 @@ def accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> float(accuracy(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
     0.75
     """
@@ -312,7 +316,7 @@ def recall(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> recall(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).values.tolist()
     [0.75, 0.75]
     """
@@ -326,7 +330,7 @@ def precision(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> precision(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).round(4).values.tolist()
     [0.8571, 0.6]
     """
@@ -340,7 +344,7 @@ def f1(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> f1(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).round(4).values.tolist()
     [0.8, 0.6667]
     """
@@ -359,7 +363,7 @@ def balanced_accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> float(balanced_accuracy(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
     0.75
     """
@@ -375,7 +379,7 @@ def macro_f1(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> round(float(macro_f1(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))), 4)
     0.7333
     """
@@ -391,7 +395,7 @@ def macro_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [1, 0, 5]], ["a", "b", "c"])
     >>> round(float(macro_mcc(t)), 4)
     0.6938
@@ -407,7 +411,7 @@ def cohen_kappa(t, *, undefined: str = "zero") -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> round(float(cohen_kappa(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))), 6)
     0.470588
     """
@@ -422,7 +426,7 @@ def support(t) -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> support(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).values.tolist()
     [8, 4]
     """
@@ -436,7 +440,7 @@ def predicted_count(t) -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> predicted_count(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).values.tolist()
     [7, 5]
     """
@@ -458,7 +462,7 @@ def top_confusion(t) -> xr.Dataset:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [0, 0, 5]], ["a", "b", "c"])
     >>> top = top_confusion(t)
     >>> top.top_confusion.values[:2].tolist(), top.top_confusion_count.values.tolist()

@@ -17,7 +17,7 @@ import pandas as pd
 import xarray as xr
 
 from foldcorr.errors import InvalidInputError
-from foldcorr.tally import ACTUAL, FOLD, PREDICTED, confusion_tensor, tally_frame
+from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, confusion_tensor, tally_frame
 
 __all__ = ["TableSpec", "read_table", "read_matrix", "load_tensor", "TABLE_SUFFIXES"]
 

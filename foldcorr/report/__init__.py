@@ -15,7 +15,7 @@ def render_score(ev, fmt: str, *, top: int | None = 20) -> str:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> render_score(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])), "json")[:32]
     '{\\n  "schema": "foldcorr.score/1"'

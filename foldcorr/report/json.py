@@ -52,7 +52,7 @@ def score_dict(ev: Evaluation) -> dict:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> doc = score_dict(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
     >>> doc["schema"], doc["n"], round(doc["pooled"]["rk"], 6), doc["folds"]

@@ -38,7 +38,7 @@ def render_markdown(report: Report) -> str:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> from foldcorr.report.tables import score_report
     >>> md = render_markdown(score_report(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))))

@@ -37,7 +37,7 @@ def hooks(ev, name: str) -> list:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> hooks(evaluate(confusion_tensor([[1, 0], [0, 1]], [0, 1])), "tables")
     []

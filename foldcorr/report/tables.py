@@ -170,7 +170,7 @@ def score_report(ev: Evaluation, *, top: int | None = 20, source: str | None = N
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> r = score_report(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
     >>> [t.title for t in r.tables]

@@ -39,8 +39,7 @@ def correlation_style(value) -> str:
 
 
 def _rich_table(table: Table) -> RichTable:
-    out = RichTable(title=table.title, title_justify="left", box=box.SIMPLE_HEAD,
-                    pad_edge=False, title_style="bold")
+    out = RichTable(box=box.SIMPLE_HEAD, pad_edge=False, show_edge=False)
     for col in table.columns:
         out.add_column(col.title, justify="right" if col.numeric else "left",
                        no_wrap=col.kind != "text", overflow="fold")
@@ -59,7 +58,7 @@ def render_rich(source, *, top: int | None = 20) -> Group:
     Examples
     --------
     >>> from rich.console import Console
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> console = Console(file=io.StringIO(), width=100, color_system=None)
     >>> console.print(render_rich(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))))
@@ -74,7 +73,7 @@ def render_rich(source, *, top: int | None = 20) -> Group:
         facts.append(value)
     parts = [facts]
     for table in report.tables:
-        parts.extend([Text(""), _rich_table(table)])
+        parts.extend([Text(""), Text(table.title, style="bold"), _rich_table(table)])
         if table.note:
             parts.append(Text(table.note, style="dim"))
     if report.warnings:
@@ -89,7 +88,7 @@ def render_text(report: Report, *, width: int = PLAIN_WIDTH) -> str:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> text = render_text(score_report(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))))
     >>> "\\x1b[" in text, "Classes by drag" in text

@@ -106,7 +106,8 @@ def validate_tensor(t) -> xr.DataArray:
     Returns
     -------
     xarray.DataArray
-        The normalised tensor (a new object; the input is not changed).
+        The normalised tensor: a new object, which may share its counts
+        with the input (neither is changed).
 
     Raises
     ------
@@ -161,9 +162,8 @@ def validate_tensor(t) -> xr.DataArray:
         raise InvalidTensorError(
             f"counts must be non-negative; found {_py(values[neg][0])!r} at {_where(t, neg)}"
         )
-    out = t.copy(data=values)
-    out.name = COUNT
-    return out
+    # A new object sharing the counts (no copy of a possibly large array).
+    return xr.DataArray(values, coords=t.coords, dims=t.dims, name=COUNT, attrs=dict(t.attrs))
 
 
 def _with_class_coords(t: xr.DataArray) -> xr.DataArray:
@@ -344,13 +344,15 @@ def _tally_columns(columns, leading, weights, classes, *, attrs) -> xr.DataArray
     n = len(truth)
     _check_lengths(n, {p_name: pred, **leading, "weights": weights})
     codes_t, codes_p, labels, fixed = _encode_pair(truth, pred, classes, t_name, p_name)
-    group_codes, group_coords = [], {}
+    group_codes, group_coords, group_seen = [], {}, []
     for dim, values in leading.items():
-        codes, uniques = _encode_one(_as_1d(values, dim), dim)
+        codes, uniques, direct = _encode_one(_as_1d(values, dim), dim)
         group_codes.append((codes, len(uniques)))
         group_coords[dim] = uniques
+        group_seen.append(direct)
     w = None if weights is None else _check_weights(weights)
     counts = _bincount(codes_t, codes_p, len(labels), group_codes, w)
+    counts, group_coords = _drop_unseen_groups(counts, group_coords, group_seen, group_codes, w)
     if not fixed:
         seen = None if w is None else _occurring(codes_t, codes_p, len(labels))
         counts, labels = _drop_unseen(counts, labels, seen)
@@ -384,7 +386,7 @@ def _check_weights(weights) -> np.ndarray:
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
         raise InvalidInputError(
-            f"weights must be finite and non-negative; got {w[row]!r} at row {row + 1}"
+            f"weights must be finite and non-negative; got {float(w[row])!r} at row {row + 1}"
         )
     return w
 
@@ -435,7 +437,7 @@ def _raise_unknown(name, values, codes, labels) -> None:
     bad = np.flatnonzero(codes < 0)
     if bad.size:
         row = int(bad[0])
-        value = np.asarray(values)[row]
+        value = _py(np.asarray(values)[row])
         shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
         raise InvalidInputError(
             f"column {name!r} row {row + 1}: label {value!r} is not among the classes "
@@ -515,12 +517,35 @@ def _sorted_codes(codes: np.ndarray, uniques: np.ndarray):
 
 
 def _encode_one(values, name: str):
+    """Codes, sorted unique values, and whether the codes are the values themselves."""
+    direct = _direct_codes(values, values)
+    if direct is not None:
+        codes, _, labels = direct
+        return codes, [_py(v) for v in labels], True
     codes, uniques = pd.factorize(_plain(values), use_na_sentinel=True)
     bad = np.flatnonzero(codes < 0)
     if bad.size:
         raise InvalidInputError(f"column {name!r} row {int(bad[0]) + 1}: missing value")
     codes, uniques = _sorted_codes(codes, np.asarray(uniques, dtype=object))
-    return codes, [_py(u) for u in uniques]
+    return codes, [_py(u) for u in uniques], False
+
+
+def _drop_unseen_groups(counts, coords: dict, direct: list, group_codes: list, weights):
+    """Drop leading-dim entries that no sample had (only the direct path makes them)."""
+    coords = dict(coords)
+    for axis, (dim, is_direct, (codes, size)) in enumerate(zip(list(coords), direct, group_codes)):
+        if not is_direct:
+            continue
+        if weights is None:
+            other = tuple(i for i in range(counts.ndim) if i != axis)
+            seen = counts.sum(axis=other) > 0
+        else:
+            seen = np.bincount(codes, minlength=size) > 0
+        if not seen.all():
+            keep = np.flatnonzero(seen)
+            counts = np.take(counts, keep, axis=axis)
+            coords[dim] = [coords[dim][i] for i in keep]
+    return counts, coords
 
 
 def _py(value):

@@ -1,0 +1,9 @@
+import os
+
+from hypothesis import HealthCheck, settings
+
+settings.register_profile(
+    "default", max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow]
+)
+settings.register_profile("thorough", max_examples=500, deadline=None)
+settings.load_profile(os.environ.get("FOLDCORR_HYPOTHESIS", "default"))
