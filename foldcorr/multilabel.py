@@ -20,7 +20,7 @@ import xarray as xr
 
 from foldcorr import metrics as m
 from foldcorr.errors import InvalidInputError, UndefinedMetricWarning, check_choice
-from foldcorr.tally import ACTUAL, COUNT, FOLD, LABEL, PREDICTED, validate_tensor
+from foldcorr.tensor import ACTUAL, COUNT, FOLD, LABEL, PREDICTED, validate_tensor
 
 __all__ = [
     "multilabel_tally",

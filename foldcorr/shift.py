@@ -20,7 +20,7 @@ import xarray as xr
 
 from foldcorr import metrics as m
 from foldcorr.errors import InvalidInputError, UndefinedMetricWarning, check_choice
-from foldcorr.tally import ACTUAL, CLASS, FOLD, PREDICTED, validate_tensor
+from foldcorr.tensor import ACTUAL, CLASS, FOLD, PREDICTED, validate_tensor
 
 __all__ = ["shift_prevalence", "target_prevalence", "ShiftResult", "shifted_figures"]
 
@@ -54,7 +54,7 @@ def target_prevalence(t, prevalence) -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[8, 2], [1, 9]], ["cod", "hake"])
     >>> target_prevalence(t, {"cod": 0.9, "hake": 0.1}).values.tolist()
     [0.9, 0.1]
@@ -149,7 +149,7 @@ def shift_prevalence(t, prevalence) -> xr.DataArray:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[8, 2], [1, 9]], ["cod", "hake"])
     >>> shift_prevalence(t, {"cod": 0.75, "hake": 0.25}).values.tolist()
     [[12.0, 3.0], [0.5, 4.5]]
@@ -252,7 +252,7 @@ def shifted_figures(t, prevalence, *, undefined: str = "zero") -> ShiftResult:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[80, 20], [1, 9]], ["cod", "hake"])
     >>> r = shifted_figures(t, "uniform")
     >>> round(r.rk, 4), r.observed.round(3).values.tolist()

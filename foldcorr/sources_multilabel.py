@@ -20,7 +20,7 @@ import xarray as xr
 from foldcorr.errors import InvalidInputError, OptionError
 from foldcorr.multilabel import indicators_from_sets, multilabel_tally
 from foldcorr.sources import read_table
-from foldcorr.tally import FOLD
+from foldcorr.tensor import FOLD
 
 __all__ = ["MultilabelSpec", "ScoreSpec", "load_multilabel", "load_scores", "ScoreTable",
            "read_prevalence"]

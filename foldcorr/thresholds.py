@@ -22,7 +22,7 @@ import xarray as xr
 
 from foldcorr import metrics as m
 from foldcorr.errors import InvalidInputError, UndefinedMetricWarning, check_choice
-from foldcorr.tally import ACTUAL, CLASS, COUNT, FOLD, PREDICTED
+from foldcorr.tensor import ACTUAL, CLASS, COUNT, FOLD, PREDICTED
 
 __all__ = ["threshold_curve", "sweep", "LabelSweep", "SweepResult", "THRESHOLD"]
 

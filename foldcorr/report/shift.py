@@ -24,7 +24,7 @@ def tables(ev, top):
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> from foldcorr.shift import shifted_figures
     >>> t = confusion_tensor([[80, 20], [1, 9]], ["cod", "hake"])
@@ -70,7 +70,7 @@ def json(ev, doc) -> None:
 
     Examples
     --------
-    >>> from foldcorr.tally import confusion_tensor
+    >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> from foldcorr.shift import shifted_figures
     >>> t = confusion_tensor([[80, 20], [1, 9]], ["cod", "hake"])
