@@ -142,7 +142,7 @@ def _indicator_block(path, df: pd.DataFrame, cols: list) -> np.ndarray:
             values = v
         if bad.any():
             row = int(np.flatnonzero(bad)[0])
-            raise _fail(path, f"column {col!r} row {row + 1}: indicator {s.iloc[row]!r} is not "
+            raise _fail(path, f"column {col!r} row {row + 1}: indicator {_py(s.iloc[row])!r} is not "
                               "0/1 or true/false")
         out[:, j] = np.asarray(values, dtype=bool)
     return out
@@ -323,7 +323,7 @@ def _score_column(path, s: pd.Series, col: str) -> np.ndarray:
     bad = ~np.isfinite(values)
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
-        raw = s.iloc[row]
+        raw = _py(s.iloc[row])
         what = "missing" if pd.isna(raw) else f"{raw!r} is not a finite number"
         raise _fail(path, f"column {col!r} row {row + 1}: score {what} "
                           f"({int(bad.sum())} bad scores in all); scores must be finite numbers")
@@ -433,3 +433,7 @@ def read_prevalence(value: str):
             raise InvalidInputError(
                 f"--prevalence: share of class {name!r} must be a number; got {share!r}") from None
     return out
+
+
+def _py(value):
+    return value.item() if isinstance(value, np.generic) else value
