@@ -22,6 +22,11 @@ _EXPORTS = {
         "support", "predicted_count", "top_confusion",
     ],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
+    "foldcorr.multilabel": [
+        "multilabel_tally", "indicators_from_sets", "evaluate_multilabel", "MultilabelEvaluation",
+    ],
+    "foldcorr.thresholds": ["sweep", "threshold_curve", "SweepResult", "LabelSweep"],
+    "foldcorr.shift": ["shift_prevalence", "target_prevalence", "shifted_figures", "ShiftResult"],
     "foldcorr.errors": [
         "FoldcorrError", "InvalidTensorError", "InvalidInputError", "OptionError",
         "MissingDependencyError", "UndefinedMetricWarning",

@@ -121,3 +121,13 @@ def test_fast_curve_mcc_equals_metrics_mcc():
                                atol=1e-12)
     full = fast.figures()
     np.testing.assert_allclose(full["precision"].values, threshold_curve(y, s)["precision"].values)
+
+
+def test_blocked_search_equals_searchsorted():
+    # numpy.searchsorted is the reference for the blocked search used on long arrays
+    from foldcorr.thresholds import _locate
+
+    rng = np.random.default_rng(12)
+    values = np.sort(np.round(rng.random(50_000), 3))
+    keys = np.sort(rng.choice(values, 9_000))
+    np.testing.assert_array_equal(_locate(values, keys), np.searchsorted(values, keys, "left"))
