@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import warnings
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -264,6 +264,25 @@ class MultilabelEvaluation:
     def labels(self) -> list:
         """Labels in tensor order."""
         return self.tensor.coords[LABEL].values.tolist()
+
+    def with_extra(self, name: str, value) -> MultilabelEvaluation:
+        """A copy with one more section in :attr:`extras` (and its warnings, if it has any).
+
+        Examples
+        --------
+        >>> ev = evaluate_multilabel(multilabel_tally([[1, 0], [0, 1]], [[1, 0], [0, 1]]))
+        >>> sorted(ev.with_extra("note", 1).extras)
+        ['note']
+        """
+        more = tuple(getattr(value, "warnings", ()) or ())
+        return replace(self, extras={**self.extras, name: value},
+                       warnings=tuple(dict.fromkeys(self.warnings + more)))
+
+    def __rich__(self):
+        from foldcorr.report.multilabel import multilabel_report  # rendering is the report layer
+        from foldcorr.report.text import render_rich
+
+        return render_rich(multilabel_report(self))
 
 
 def _positive(da: xr.DataArray) -> xr.DataArray:

@@ -364,6 +364,12 @@ class SweepResult:
     warnings: tuple[str, ...]
     undefined: str = "zero"
 
+    def __rich__(self):
+        from foldcorr.report.sweep import sweep_report  # rendering is the report layer
+        from foldcorr.report.text import render_rich
+
+        return render_rich(sweep_report(self))
+
 
 def sweep(truth, scores, *, labels: Sequence | None = None, folds=None,
           at: float | None = None, undefined: str = "zero") -> SweepResult:

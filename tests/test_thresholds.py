@@ -2,6 +2,8 @@
 
 import numpy as np
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 from sklearn.metrics import (
     accuracy_score, confusion_matrix, f1_score, matthews_corrcoef, precision_score, recall_score,
 )
@@ -131,3 +133,25 @@ def test_blocked_search_equals_searchsorted():
     values = np.sort(np.round(rng.random(50_000), 3))
     keys = np.sort(rng.choice(values, 9_000))
     np.testing.assert_array_equal(_locate(values, keys), np.searchsorted(values, keys, "left"))
+
+
+@given(st.lists(st.tuples(st.booleans(), st.integers(0, 6)), min_size=1, max_size=40))
+def test_counts_equal_a_direct_count_at_every_distinct_score(pairs):
+    # property: TP/FP at threshold t are the numbers of positives/negatives with score >= t
+    # (the threshold convention itself; common practice), ties and constant scores included
+    y = np.array([p[0] for p in pairs])
+    s = np.array([p[1] for p in pairs], dtype=float) / 2
+    c = sweep(y, s).labels[0].curve
+    for th, tp, fp in zip(c["threshold"].values, c["tp"].values, c["fp"].values):
+        assert tp == np.count_nonzero(y & (s >= th)) and fp == np.count_nonzero(~y & (s >= th))
+    assert c["threshold"].values.tolist() == np.unique(s).tolist()
+
+
+def test_rich_rendering():
+    import io
+
+    from rich.console import Console
+
+    console = Console(file=io.StringIO(), width=120, color_system=None)
+    console.print(sweep([0, 1, 1, 0], [0.1, 0.8, 0.6, 0.3]))
+    assert "best MCC" in console.file.getvalue()

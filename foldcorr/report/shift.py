@@ -30,7 +30,7 @@ def tables(ev, top):
     >>> t = confusion_tensor([[80, 20], [1, 9]], ["cod", "hake"])
     >>> ev = evaluate(t).with_extra("shifted", shifted_figures(t, "uniform"))
     >>> [x.title for x in tables(ev, 20)]
-    ['At the target prevalence (label shift)', 'Classes at the target prevalence']
+    ['At the target prevalence (label shift)', 'Classes at the target prevalence (largest change in MCC first)']
     """
     r = ev.extras["shifted"]
     pooled = Table(
@@ -43,10 +43,12 @@ def tables(ev, top):
     )
     p = r.per_class
     classes = p.coords["class"].values.tolist()
-    order = sorted(range(len(classes)), key=lambda i: -float(r.prevalence.values[i]))
-    shown = order if top is None else order[:top]
     observed_mcc = dict(zip(ev.per_class.coords["class"].values.tolist(),
                             ev.per_class["mcc"].values.tolist()))
+    change = [abs(float(p["mcc"].values[i]) - (observed_mcc.get(c) or 0.0))
+              for i, c in enumerate(classes)]
+    order = sorted(range(len(classes)), key=lambda i: (-change[i], i))
+    shown = order if top is None else order[:top]
     observed_precision = dict(zip(ev.per_class.coords["class"].values.tolist(),
                                   ev.per_class["precision"].values.tolist()))
     rows = tuple((classes[i], float(r.observed.values[i]), float(r.prevalence.values[i]),
@@ -57,7 +59,7 @@ def tables(ev, top):
     note = "" if len(shown) == len(classes) else \
         f"{len(classes) - len(shown)} more classes not shown (use --top all)"
     per_class = Table(
-        "Classes at the target prevalence",
+        "Classes at the target prevalence (largest change in MCC first)",
         (Column("class", "label"), Column("share obs."), Column("share target"),
          Column("MCC obs.", "correlation"), Column("MCC target", "correlation"),
          Column("prec. obs."), Column("prec. target"), Column("recall")),
