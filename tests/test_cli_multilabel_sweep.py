@@ -219,3 +219,14 @@ def test_prevalence_text_and_bad_input(capsys, species):
     assert code == 2 and "'tuna'" in err
     code, _, err = run(capsys, "score", path, "--prevalence", "copepod:0.5")
     assert code == 2 and "CLASS=SHARE" in err
+
+
+def test_sweep_plot_without_matplotlib(capsys, tags, tmp_path, monkeypatch):
+    import importlib.util
+
+    real = importlib.util.find_spec
+    monkeypatch.setattr(importlib.util, "find_spec",
+                        lambda name, *a: None if name == "matplotlib" else real(name, *a))
+    code, _, err = run(capsys, "sweep", tags[0], "--truth", "bird", "--positive", "gull",
+                       "--plot", tmp_path / "figs")
+    assert code == 2 and "foldcorr[plot]" in err
