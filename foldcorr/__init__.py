@@ -21,7 +21,14 @@ _EXPORTS = {
         "cohen_kappa", "recall", "precision", "f1", "macro_f1", "macro_mcc",
         "support", "predicted_count", "top_confusion",
     ],
+    "foldcorr.repair": [
+        "pair_gains", "class_gains", "leave_class_out", "costliest_confusions",
+        "fold_stability", "repair_analysis", "RepairAnalysis",
+    ],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
+    "foldcorr.report.plots": [
+        "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
+    ],
     "foldcorr.multilabel": [
         "multilabel_tally", "indicators_from_sets", "evaluate_multilabel", "MultilabelEvaluation",
     ],

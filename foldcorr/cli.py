@@ -63,6 +63,9 @@ def _add_table_options(p: argparse.ArgumentParser) -> None:
 
 def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     """Options of the analyses in :data:`ANALYSES`, shared by ``score`` and ``demo``."""
+    p.add_argument("--plot", metavar="DIR",
+                   help="also draw the loss budget, confusion heatmap and fold plot "
+                        "into DIR as PNG and SVG (needs the 'plot' extra)")
     p.add_argument("--prevalence", metavar="uniform|A=0.2,B=0.8|FILE.csv",
                    help="also show every pooled figure at this target class prevalence, "
                         "assuming label shift (see docs/shift.md)")
@@ -229,9 +232,10 @@ def _run_score_multilabel(args) -> int:
     if args.matrix:
         raise OptionError("--matrix reads a multiclass counts matrix; it does not combine with "
                           "the multilabel flags")
-    if getattr(args, "prevalence", None) is not None:
-        raise OptionError("--prevalence applies to multiclass scoring; it does not combine with "
-                          "the multilabel flags")
+    for flag in ("prevalence", "plot"):
+        if getattr(args, flag, None) is not None:
+            raise OptionError(f"--{flag} applies to multiclass scoring; it does not combine with "
+                              "the multilabel flags")
     spec = MultilabelSpec(truth_cols=args.truth_cols, pred_cols=args.pred_cols,
                           truth_prefix=args.truth_prefix, pred_prefix=args.pred_prefix,
                           truth=args.truth, pred=args.pred, sep=args.sep, fold=args.fold,
@@ -292,6 +296,18 @@ ANALYSES: list = [_shift_step]
 MULTILABEL_ANALYSES: list = []
 
 
+def _repair_step(args, ev):
+    """Always on: repair gains, costliest confusions, leave-class-out, fold stability."""
+    from foldcorr.repair import repair_analysis
+
+    result = repair_analysis(ev.tensor, top=getattr(args, "top", 20),
+                             undefined=getattr(args, "undefined", "zero"))
+    return ev.with_extra("repair", result)
+
+
+ANALYSES.append(_repair_step)
+
+
 def _analyse(args, ev):
     for step in ANALYSES:
         ev = step(args, ev)
@@ -340,7 +356,12 @@ def _emit_report(args, report, make_json) -> None:
 
 
 def _emit(args, ev) -> None:
-    """Write an evaluation to --output or stdout in the chosen format."""
+    """Write an evaluation to --output or stdout in the chosen format (and --plot files)."""
+    if getattr(args, "plot", None):
+        from foldcorr.report.plots import save_plots
+
+        written = save_plots(ev, args.plot)
+        print(f"{len(written)} plot files written to {args.plot}", file=sys.stderr)
     if args.output:
         from foldcorr._files import write_text
         from foldcorr.report import render_score

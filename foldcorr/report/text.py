@@ -52,6 +52,45 @@ def _rich_table(table: Table) -> RichTable:
     return out
 
 
+class _Fitted:
+    """A report table laid out for the width at hand: columns that do not fit go into
+    continuation tables that repeat the first (label) column, instead of being squeezed."""
+
+    def __init__(self, table: Table):
+        self.table = table
+
+    def __rich_console__(self, console, options):
+        from rich.measure import Measurement
+
+        table = self.table
+        full = _rich_table(table)
+        wide = options.update(max_width=1 << 20)  # natural widths, not clamped to the console
+        if len(table.columns) <= 2 or Measurement.get(console, wide, full).maximum <= options.max_width:
+            yield Text(table.title, style="bold")
+            yield full
+            return
+        def width(keep) -> int:
+            piece = Table("", tuple(table.columns[i] for i in keep),
+                          tuple(tuple(row[i] for i in keep) for row in table.rows))
+            return Measurement.get(console, wide, _rich_table(piece)).maximum
+        parts, current = [], []
+        for i in range(1, len(table.columns)):
+            if current and width((0, *current, i)) > options.max_width:
+                parts.append(current)
+                current = []
+            current.append(i)
+        parts.append(current)
+        for n, part in enumerate(parts):
+            keep = (0, *part)
+            title = table.title if n == 0 else f"{table.title} (continued)"
+            piece = Table(title, tuple(table.columns[i] for i in keep),
+                          tuple(tuple(row[i] for i in keep) for row in table.rows))
+            if n:
+                yield Text("")
+            yield Text(title, style="bold")
+            yield _rich_table(piece)
+
+
 def render_rich(source, *, top: int | None = 20) -> Group:
     """A rich renderable for a :class:`Report` or an evaluation.
 
@@ -73,7 +112,7 @@ def render_rich(source, *, top: int | None = 20) -> Group:
         facts.append(value)
     parts = [facts]
     for table in report.tables:
-        parts.extend([Text(""), Text(table.title, style="bold"), _rich_table(table)])
+        parts.extend([Text(""), _Fitted(table)])
         if table.note:
             parts.append(Text(table.note, style="dim"))
     if report.warnings:
