@@ -1,7 +1,7 @@
 """Figures of a score sweep: MCC and its companions against the threshold.
 
-Needs the optional extra ``plot`` (matplotlib), drawn with the Agg backend so
-no display is needed. One PNG per label; the in-sample best threshold, the
+Needs the optional extra ``plot`` (matplotlib). Figures are drawn on the Agg
+canvas without pyplot, so no display is needed and no global state changes. One PNG per label; the in-sample best threshold, the
 user's threshold and the thresholds chosen on the other folds are marked.
 """
 
@@ -53,9 +53,10 @@ def plot_sweep(result: SweepResult, folder) -> list[Path]:
     from foldcorr._files import atomic_target
     from foldcorr.errors import InvalidInputError, require
 
-    matplotlib = require("matplotlib", extra="plot", purpose="--plot (sweep figures)")
-    matplotlib.use("Agg", force=True)
-    plt = require("matplotlib.pyplot", extra="plot", purpose="--plot (sweep figures)")
+    why = "--plot (sweep figures)"
+    require("matplotlib", extra="plot", purpose=why)
+    figure = require("matplotlib.figure", extra="plot", purpose=why)
+    agg = require("matplotlib.backends.backend_agg", extra="plot", purpose=why)
     folder = Path(folder)
     try:
         folder.mkdir(parents=True, exist_ok=True)
@@ -66,10 +67,12 @@ def plot_sweep(result: SweepResult, folder) -> list[Path]:
     for i, s in enumerate(result.labels):
         curve = s.figures(max_points=MAX_POINTS)
         x = curve[THRESHOLD].values
-        fig, ax = plt.subplots(figsize=(10, 4.8), dpi=110)
+        fig = figure.Figure(figsize=(10, 4.8), dpi=110)
+        agg.FigureCanvasAgg(fig)
+        ax = fig.add_subplot()
         for key, title, style, width, colour in COMPANIONS:
             ax.plot(x, curve[key].values, linestyle=style, linewidth=width, label=title,
-                    color=colour, drawstyle="steps-post")
+                    color=colour, drawstyle="steps-pre")  # a threshold in (a, b] acts as b
         ax.axvline(s.best_threshold, color="black", linewidth=1.0,
                    label=f"best in-sample {s.best_threshold:.3g} (MCC {s.best_mcc:.3f})")
         if s.at_threshold is not None:
@@ -91,6 +94,5 @@ def plot_sweep(result: SweepResult, folder) -> list[Path]:
         target = folder / _file_name(s.label, i)
         with atomic_target(target, suffix=".png") as tmp:
             fig.savefig(tmp, format="png")
-        plt.close(fig)
         paths.append(target)
     return paths
