@@ -188,7 +188,8 @@ def multilabel_tally(truth, pred, *, labels: Sequence | None = None, folds=None,
     if weights is not None:
         w = np.asarray(weights, dtype=np.float64)
         if w.shape != (n,):
-            raise InvalidInputError(f"`weights` must have one value per sample; got shape {w.shape!r}")
+            raise InvalidInputError(
+                f"`weights` must have one value per sample; got shape {w.shape!r}")
         if not np.isfinite(w).all() or (w < 0).any():
             bad = int(np.flatnonzero(~np.isfinite(w) | (w < 0))[0])
             raise InvalidInputError(f"`weights` row {bad + 1}: {w[bad].item()!r} is not a "

@@ -91,7 +91,8 @@ def target_prevalence(t, prevalence) -> xr.DataArray:
     total = float(values.sum())
     if abs(total - 1.0) > SUM_TOLERANCE:
         raise InvalidInputError(
-            f"`prevalence` must sum to 1; got {total!r} over {list(zip(classes, values.tolist()))!r}")
+            f"`prevalence` must sum to 1; got {total!r} over "
+            f"{list(zip(classes, values.tolist()))!r}")
     return xr.DataArray(values / total, dims=CLASS, coords={CLASS: classes}, name="prevalence")
 
 
@@ -267,7 +268,8 @@ def shifted_figures(t, prevalence, *, undefined: str = "zero") -> ShiftResult:
     notes: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", UndefinedMetricWarning)
-        pooled = xr.Dataset({k: fn(shifted, undefined=undefined) for k, fn in SHIFTED_FIGURES.items()})
+        pooled = xr.Dataset({k: fn(shifted, undefined=undefined)
+                             for k, fn in SHIFTED_FIGURES.items()})
         per_class = xr.Dataset({
             "mcc": m.ovr_mcc(shifted, undefined=undefined),
             "recall": m.recall(shifted, undefined=undefined),

@@ -142,8 +142,8 @@ def _indicator_block(path, df: pd.DataFrame, cols: list) -> np.ndarray:
             values = v
         if bad.any():
             row = int(np.flatnonzero(bad)[0])
-            raise _fail(path, f"column {col!r} row {row + 1}: indicator {_py(s.iloc[row])!r} is not "
-                              "0/1 or true/false")
+            raise _fail(path, f"column {col!r} row {row + 1}: indicator "
+                              f"{_py(s.iloc[row])!r} is not 0/1 or true/false")
         out[:, j] = np.asarray(values, dtype=bool)
     return out
 

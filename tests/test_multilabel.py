@@ -67,7 +67,8 @@ def test_sorted_by_cost():
     ev = evaluate_multilabel(multilabel_tally(truth, pred))
     cost = ev.per_label["cost"].values
     assert (np.diff(cost) <= 0).all()
-    np.testing.assert_allclose(cost, (1 - ev.per_label["mcc"].values) * ev.per_label["support"].values)
+    expected = (1 - ev.per_label["mcc"].values) * ev.per_label["support"].values
+    np.testing.assert_allclose(cost, expected)
 
 
 def test_label_without_positives_warns_and_follows_convention():
@@ -79,7 +80,8 @@ def test_label_without_positives_warns_and_follows_convention():
     assert any("wren" in w for w in ev.warnings)
     # the absent label does not enter the macro mean
     assert ev.macro_mcc == pytest.approx(float(ev.per_label["mcc"].sel(label="owl")))
-    nan = evaluate_multilabel(multilabel_tally(truth, pred, labels=["owl", "wren"]), undefined="nan")
+    t = multilabel_tally(truth, pred, labels=["owl", "wren"])
+    nan = evaluate_multilabel(t, undefined="nan")
     assert np.isnan(float(nan.per_label["mcc"].sel(label="wren")))
 
 

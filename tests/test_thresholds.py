@@ -89,7 +89,8 @@ def test_multilabel_sweep_per_column():
     r = sweep(y, s, labels=["a", "b", "c"])
     assert [x.label for x in r.labels] == ["a", "b", "c"]
     for j, x in enumerate(r.labels):
-        assert x.best_mcc == pytest.approx(_brute(y[:, j], s[:, j], full=False)[:, 5].max(), abs=1e-12)
+        best = _brute(y[:, j], s[:, j], full=False)[:, 5].max()
+        assert x.best_mcc == pytest.approx(best, abs=1e-12)
 
 
 def test_degenerate_labels_are_named_in_warnings():

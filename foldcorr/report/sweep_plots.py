@@ -1,8 +1,9 @@
 """Figures of a score sweep: MCC and its companions against the threshold.
 
 Needs the optional extra ``plot`` (matplotlib). Figures are drawn on the Agg
-canvas without pyplot, so no display is needed and no global state changes. One PNG per label; the in-sample best threshold, the
-user's threshold and the thresholds chosen on the other folds are marked.
+canvas without pyplot, so no display is needed and no global state changes.
+One PNG per label; the in-sample best threshold, the user's threshold and the
+thresholds chosen on the other folds are marked.
 """
 
 from __future__ import annotations
