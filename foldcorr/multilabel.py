@@ -165,6 +165,9 @@ def multilabel_tally(truth, pred, *, labels: Sequence | None = None, folds=None,
             f"truth and pred indicator matrices differ in shape: {yt.shape!r} and {yp.shape!r}"
         )
     n, n_labels = yt.shape
+    if n_labels == 0:
+        raise InvalidInputError("no labels to evaluate: the indicator matrices have no columns "
+                                "(every label set is empty?)")
     if labels is None:
         labels = names_t if names_t is not None else list(range(n_labels))
     labels = list(labels)

@@ -112,3 +112,8 @@ def test_bad_input():
         multilabel_tally([[0, 2]], [[0, 1]])
     with pytest.raises(InvalidInputError, match="names 1 labels but the indicators have 2"):
         multilabel_tally([[0, 1]], [[0, 1]], labels=["a"])
+
+
+def test_no_labels_at_all():
+    with pytest.raises(InvalidInputError, match="no labels to evaluate"):
+        multilabel_tally(np.zeros((3, 0), bool), np.zeros((3, 0), bool))
