@@ -12,6 +12,7 @@ held-out fold, which removes the optimism of the in-sample best.
 
 from __future__ import annotations
 
+import math
 import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -141,19 +142,23 @@ def _mcc_counts(tp, fp, total_pos, n, undefined: str) -> np.ndarray:
     tensor (checked in the tests), computed straight from the four counts so a
     curve of 10^7 thresholds costs a few array passes.
     """
-    # tp*tn - fp*fn = n*tp - (tp + fp)*n+, with n+ = total_pos; float64 throughout
+    # tp*tn - fp*fn = n*tp - pp*n+ with pp = tp + fp predicted positive and n+ = total_pos,
+    # in float64 (exact for counts below 2**53 / n). Where the denominator is 0 the numerator
+    # is exactly 0 too (pp = 0: tp = 0; pp = n: tp = n+; n+ = 0 or n: tp = 0 or pp), so the
+    # zero convention needs no mask.
     tp = np.atleast_1d(np.asarray(tp, dtype=np.float64))
-    pp = tp + np.atleast_1d(np.asarray(fp, dtype=np.float64))  # predicted positive
-    num = tp * float(n)
-    num -= pp * float(total_pos)
+    pp = np.array(fp, dtype=np.float64, ndmin=1)  # a copy: the caller's array is kept
+    pp += tp
+    out = tp * float(n)
+    out -= pp * float(total_pos)
     den = float(n) - pp
     den *= pp
     np.sqrt(den, out=den)
-    den *= np.sqrt(float(total_pos) * float(n - total_pos))
-    bad = den == 0
-    den[bad] = 1.0
-    out = np.divide(num, den, out=num)
-    out[bad] = 0.0 if undefined == "zero" else np.nan
+    den *= math.sqrt(float(total_pos) * float(n - total_pos))
+    defined = den != 0
+    np.divide(out, den, out=out, where=defined)
+    if undefined == "nan":
+        out[~defined] = np.nan
     return np.clip(out, -1.0, 1.0, out=out)
 
 
