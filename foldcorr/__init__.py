@@ -25,6 +25,12 @@ _EXPORTS = {
         "pair_gains", "class_gains", "leave_class_out", "costliest_confusions",
         "fold_stability", "repair_analysis", "RepairAnalysis",
     ],
+    "foldcorr.uncertainty": [
+        "resample_cells", "bootstrap", "bootstrap_difference", "fold_statistics",
+        "summarise_uncertainty", "drag", "BootstrapResult", "FoldStatistics", "Uncertainty",
+    ],
+    "foldcorr.compare": ["joint_tally", "model_tensors", "compare_models", "Comparison"],
+    "foldcorr.crossval": ["cross_tally", "rk_score", "rk_scorer"],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
     "foldcorr.report.plots": [
         "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",

@@ -66,6 +66,15 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--plot", metavar="DIR",
                    help="also draw the loss budget, confusion heatmap and fold plot "
                         "into DIR as PNG and SVG (needs the 'plot' extra)")
+    p.add_argument("--ci", type=float, metavar="LEVEL",
+                   help="add bootstrap intervals at this level, e.g. 0.95")
+    p.add_argument("--resamples", type=int, metavar="B",
+                   help="bootstrap resamples for --ci (default: 2000, at least 100)")
+    p.add_argument("--ci-method", choices=("percentile", "bca"),
+                   help="interval method for --ci: percentile (default) or bca")
+    if "--seed" not in p._option_string_actions:  # demo's --seed seeds its data and this too
+        p.add_argument("--seed", type=int, metavar="S",
+                       help="seed of the resamples, for reproducible intervals")
     p.add_argument("--prevalence", metavar="uniform|A=0.2,B=0.8|FILE.csv",
                    help="also show every pooled figure at this target class prevalence, "
                         "assuming label shift (see docs/shift.md)")
@@ -173,6 +182,36 @@ def get_parser() -> argparse.ArgumentParser:
     _add_report_options(demo)
     _add_analysis_options(demo)
     demo.set_defaults(func=_run_demo)
+
+    compare = verbs.add_parser(
+        "compare", help="compare two models scored on the same samples",
+        description="Paired comparison of two models on the same samples: either one table "
+                    "with two prediction columns (--pred-a COL --pred-b COL), or two tables, "
+                    "one per model, joined on an id column (--id COL).")
+    compare.add_argument("path", metavar="PATH", help="table with truth (and both predictions)")
+    compare.add_argument("path_b", metavar="PATH_B", nargs="?",
+                         help="second table with model B's predictions, joined on --id")
+    compare.add_argument("--truth", default="actual", metavar="COL",
+                         help="column of actual labels (default: actual)")
+    compare.add_argument("--pred-a", metavar="COL", help="prediction column of model A")
+    compare.add_argument("--pred-b", metavar="COL", help="prediction column of model B")
+    compare.add_argument("--pred", default="predicted", metavar="COL",
+                         help="prediction column of each of two tables (default: predicted)")
+    compare.add_argument("--id", metavar="COL", help="id column joining two tables")
+    compare.add_argument("--fold", default="auto", metavar="COL",
+                         help="column of fold labels (default: 'fold' when present)")
+    compare.add_argument("--classes", type=_class_list, metavar="A,B,...",
+                         help="fixed class order; labels outside it are an error")
+    compare.add_argument("--ci", type=float, default=0.95, metavar="LEVEL",
+                         help="level of the intervals (default: 0.95)")
+    compare.add_argument("--resamples", type=int, default=2000, metavar="B",
+                         help="paired bootstrap resamples (default: 2000, at least 100)")
+    compare.add_argument("--permutations", type=int, metavar="P",
+                         help="sign-flip permutations (default: as many as --resamples)")
+    compare.add_argument("--seed", type=int, metavar="S",
+                         help="seed of resamples and permutations")
+    _add_report_options(compare)
+    compare.set_defaults(func=_run_compare)
     return parser
 
 
@@ -306,6 +345,32 @@ def _repair_step(args, ev):
 
 
 ANALYSES.append(_repair_step)
+def _uncertainty_step(args, ev):
+    """Attach bootstrap intervals and fold statistics when ``--ci`` is given."""
+    level = getattr(args, "ci", None)
+    resamples = getattr(args, "resamples", None)
+    method = getattr(args, "ci_method", None)
+    if level is None:
+        for flag, value in (("--resamples", resamples), ("--ci-method", method)):
+            if value is not None:
+                from foldcorr.errors import OptionError
+
+                raise OptionError(f"`{flag}` needs `--ci LEVEL` (e.g. --ci 0.95); got {flag} "
+                                  f"{value!r} without it")
+        return ev
+    from foldcorr.uncertainty import check_level, check_resamples, summarise_uncertainty
+
+    check_level(level, name="--ci")
+    if resamples is not None:
+        check_resamples(resamples, name="--resamples")
+    result = summarise_uncertainty(
+        ev.tensor, level=level, n_resamples=2000 if resamples is None else resamples,
+        method=method or "percentile", seed=getattr(args, "seed", None),
+        undefined=ev.undefined)
+    return ev.with_extra("uncertainty", result)
+
+
+ANALYSES.append(_uncertainty_step)
 
 
 def _analyse(args, ev):
@@ -332,6 +397,59 @@ def _run_demo(args) -> int:
     return EXIT_OK
 
 
+def _run_compare(args) -> int:
+    from foldcorr.compare import compare_models
+    from foldcorr.paired import PairSpec, load_joint
+    from foldcorr.report.compare import compare_report, render_compare
+
+    spec = PairSpec(truth=args.truth, pred_a=args.pred_a, pred_b=args.pred_b, pred=args.pred,
+                    id=args.id, fold=args.fold, classes=args.classes)
+    from foldcorr.uncertainty import check_level, check_resamples
+
+    check_level(args.ci, name="--ci")
+    check_resamples(args.resamples, name="--resamples")
+    if args.permutations is not None:
+        check_resamples(args.permutations, name="--permutations")
+    joint = load_joint(args.path, spec, path_b=args.path_b)
+    result = compare_models(joint, n_resamples=args.resamples, level=args.ci, seed=args.seed,
+                            n_permutations=args.permutations, undefined=args.undefined)
+    if args.path_b is None:
+        names = (f"column {args.pred_a!r}", f"column {args.pred_b!r}")
+    else:
+        from pathlib import Path
+
+        names = (f"{Path(args.path).name}, column {args.pred_a or args.pred!r}",
+                 f"{Path(args.path_b).name}, column {args.pred_b or args.pred!r}")
+    source = joint.attrs.get("source")
+    if args.output or args.format != "text":
+        text = render_compare(result, args.format, names=names, top=args.top, source=source)
+        if args.output:
+            from foldcorr._files import write_text
+
+            write_text(args.output, text)
+        else:
+            sys.stdout.write(text)
+        return EXIT_OK
+    _console().print(_rich(compare_report(result, names=names, top=args.top, source=source)))
+    return EXIT_OK
+
+
+def _rich(report):
+    from foldcorr.report.text import render_rich
+
+    return render_rich(report)
+
+
+def _console():
+    from rich.console import Console
+
+    from foldcorr.report.text import PLAIN_WIDTH
+
+    terminal = sys.stdout.isatty()
+    return Console(file=sys.stdout, width=None if terminal else PLAIN_WIDTH,
+                   no_color="NO_COLOR" in os.environ or None, highlight=False)
+
+
 def _emit_report(args, report, make_json) -> None:
     """Write a Report (text, Markdown) or its JSON document to --output or stdout."""
     if args.output or args.format != "text":
@@ -345,14 +463,7 @@ def _emit_report(args, report, make_json) -> None:
         else:
             sys.stdout.write(text)
         return
-    from rich.console import Console
-
-    from foldcorr.report.text import PLAIN_WIDTH, render_rich
-
-    terminal = sys.stdout.isatty()
-    console = Console(file=sys.stdout, width=None if terminal else PLAIN_WIDTH,
-                      no_color="NO_COLOR" in os.environ or None, highlight=False)
-    console.print(render_rich(report))
+    _console().print(_rich(report))
 
 
 def _emit(args, ev) -> None:

@@ -27,6 +27,7 @@ __all__ = [
     "COUNT",
     "tally",
     "tally_frame",
+    "tally_columns",
     "confusion_tensor",
     "validate_tensor",
     "pool",
@@ -340,24 +341,70 @@ def tally_frame(
 
 def _tally_columns(columns, leading, weights, classes, *, attrs) -> xr.DataArray:
     (t_name, truth), (p_name, pred) = columns.items()
-    truth, pred = _as_1d(truth, t_name), _as_1d(pred, p_name)
-    n = len(truth)
-    _check_lengths(n, {p_name: pred, **leading, "weights": weights})
-    codes_t, codes_p, labels, fixed = _encode_pair(truth, pred, classes, t_name, p_name)
-    group_codes, group_coords, group_seen = [], {}, []
-    for dim, values in leading.items():
-        codes, uniques, direct = _encode_one(_as_1d(values, dim), dim)
-        group_codes.append((codes, len(uniques)))
-        group_coords[dim] = uniques
-        group_seen.append(direct)
+    counted = tally_columns({ACTUAL: (t_name, truth), PREDICTED: (p_name, pred)},
+                            leading=leading, weights=weights, classes=classes, attrs=attrs)
+    return validate_tensor(counted)
+
+
+def tally_columns(columns, *, leading=None, weights=None, classes=None, attrs=None) -> xr.DataArray:
+    """Count samples by several label columns that share one class coordinate.
+
+    The general form of :func:`tally`: a confusion tensor is the case of two
+    columns, ``actual`` and ``predicted``; a paired comparison of two models
+    counts three (``actual``, ``predicted_a``, ``predicted_b``).
+
+    Parameters
+    ----------
+    columns : mapping of str to (str, array_like)
+        Dim name -> (name used in messages, one label per sample). All columns
+        are coded over one class list.
+    leading : mapping of str to array_like, optional
+        Dims that lead, e.g. ``{"fold": folds}``; their labels are sorted.
+    weights : array_like, optional
+        Non-negative sample weights; the counts become float64.
+    classes : sequence, optional
+        Fixed class order; labels outside it are an error. Without it the
+        classes are every label seen in any column, sorted.
+    attrs : dict, optional
+        Provenance kept on the result (``n_rows`` and the version are added).
+
+    Returns
+    -------
+    xarray.DataArray
+        Named ``count``, dims ``(*leading, *columns)``, the class coordinate on
+        every column dim.
+
+    Raises
+    ------
+    InvalidInputError
+        On columns of different length, missing labels, labels outside
+        ``classes``, or bad weights.
+
+    Examples
+    --------
+    >>> j = tally_columns({"actual": ("truth", ["x", "y"]), "a": ("a", ["x", "x"]),
+    ...                    "b": ("b", ["y", "y"])})
+    >>> j.dims, int(j.sel(actual="y", a="x", b="y"))
+    (('actual', 'a', 'b'), 1)
+    """
+    dims = list(columns)
+    names = [columns[d][0] for d in dims]
+    arrays = [_as_1d(columns[d][1], name) for d, name in zip(dims, names)]
+    leading = dict(leading or {})
+    n = len(arrays[0])
+    _check_lengths(n, {**dict(zip(names[1:], arrays[1:])), **leading, "weights": weights})
+    codes, labels, fixed = _encode_labels(arrays, names, classes)
+    groups = [(dim, *_encode_one(_as_1d(values, dim), dim)) for dim, values in leading.items()]
     w = None if weights is None else _check_weights(weights)
-    counts = _bincount(codes_t, codes_p, len(labels), group_codes, w)
-    counts, group_coords = _drop_unseen_groups(counts, group_coords, group_seen, group_codes, w)
+    counts = _bincount(codes, len(labels), [(c, len(u)) for _, c, u, _ in groups], w)
+    counts, group_coords = _drop_unseen_groups(counts, groups, w)
     if not fixed:
-        seen = None if w is None else _occurring(codes_t, codes_p, len(labels))
-        counts, labels = _drop_unseen(counts, labels, seen)
-    attrs = {**attrs, "n_rows": n, "foldcorr_version": __version__}
-    return confusion_tensor(counts, labels, leading=group_coords, attrs=attrs)
+        seen = None if w is None else _occurring(codes, len(labels))
+        counts, labels = _drop_unseen(counts, labels, len(dims), seen)
+    coords = {**group_coords, **{d: [_py(x) for x in labels] for d in dims}}
+    out = xr.DataArray(counts, dims=(*group_coords, *dims), coords=coords, name=COUNT)
+    out.attrs.update({**(attrs or {}), "n_rows": n, "foldcorr_version": __version__})
+    return out
 
 
 def _as_1d(values, name: str):
@@ -391,29 +438,34 @@ def _check_weights(weights) -> np.ndarray:
     return w
 
 
-def _encode_pair(truth, pred, classes, t_name, p_name):
-    """Integer codes for truth and pred over one shared class list.
+def _encode_labels(arrays, names, classes):
+    """Integer codes for several label arrays over one shared class list.
 
-    Returns codes, labels and whether the class list was fixed by the caller.
+    Returns the codes (one array per input), the labels, and whether the class
+    list was fixed by the caller.
     """
     if classes is not None:
         labels = _fixed_classes(classes)
         index = pd.Index(labels)
-        codes = [index.get_indexer(pd.Index(np.asarray(v))) for v in (truth, pred)]
-        for name, values, c in zip((t_name, p_name), (truth, pred), codes):
+        codes = [index.get_indexer(pd.Index(_plain(v))) for v in arrays]
+        for name, values, c in zip(names, arrays, codes):
             _raise_unknown(name, values, c, labels)
-        return codes[0], codes[1], labels, True
-    direct = _direct_codes(truth, pred)
-    if direct is not None:
-        return (*direct, False)
-    cat = _categorical_codes(truth, pred, t_name, p_name)
-    if cat is not None:
-        return (*cat, False)
-    both = np.concatenate([_plain(truth), _plain(pred)])
-    codes, uniques = pd.factorize(both, use_na_sentinel=True)
-    _raise_missing(codes, len(truth), t_name, p_name)
+        return codes, labels, True
+    for special in (_direct_codes, _categorical_codes):
+        found = special(arrays, names)
+        if found is not None:
+            return (*found, False)
+    plain = [_plain(v) for v in arrays]
+    if len({p.dtype.kind for p in plain}) > 1:  # keep 1 and "1" apart
+        plain = [p.astype(object) for p in plain]
+    codes, uniques = pd.factorize(np.concatenate(plain), use_na_sentinel=True)
+    _raise_missing(codes, [len(p) for p in plain], names)
     codes, uniques = _sorted_codes(codes, np.asarray(uniques, dtype=object))
-    return codes[: len(truth)], codes[len(truth) :], list(uniques), False
+    return _split(codes, [len(p) for p in plain]), list(uniques), False
+
+
+def _split(codes: np.ndarray, lengths) -> list:
+    return np.split(codes, np.cumsum(lengths)[:-1])
 
 
 def _plain(values) -> np.ndarray:
@@ -445,20 +497,22 @@ def _raise_unknown(name, values, codes, labels) -> None:
         )
 
 
-def _raise_missing(codes, n_truth, t_name, p_name) -> None:
+def _raise_missing(codes, lengths, names) -> None:
     bad = np.flatnonzero(codes < 0)
     if bad.size:
         i = int(bad[0])
-        name, row = (t_name, i) if i < n_truth else (p_name, i - n_truth)
+        ends = np.cumsum(lengths)
+        which = int(np.searchsorted(ends, i, side="right"))
+        row = i - (int(ends[which - 1]) if which else 0)
         raise InvalidInputError(
-            f"column {name!r} row {row + 1}: missing label ({bad.size} missing in all)"
+            f"column {names[which]!r} row {row + 1}: missing label ({bad.size} missing in all)"
         )
 
 
-def _direct_codes(truth, pred):
+def _direct_codes(arrays, names=None):
     """Codes for small non-negative integer (or boolean) labels, no hashing."""
-    arrays = []
-    for values in (truth, pred):
+    out = []
+    for values in arrays:
         if isinstance(values, (pd.Series, pd.Index)):
             if not (pd.api.types.is_integer_dtype(values.dtype) or values.dtype == bool):
                 return None
@@ -471,31 +525,31 @@ def _direct_codes(truth, pred):
             values = values.view(np.uint8)
         elif not np.issubdtype(values.dtype, np.integer):
             return None
-        arrays.append(values)
-    if arrays[0].size == 0:
+        out.append(values)
+    if out[0].size == 0:
         return None
-    lo = min(int(a.min()) for a in arrays)
-    hi = max(int(a.max()) for a in arrays)
+    lo = min(int(a.min()) for a in out)
+    hi = max(int(a.max()) for a in out)
     if lo < 0 or hi >= _DIRECT_MAX:
         return None
     labels = np.arange(hi + 1)
-    if all(getattr(v, "dtype", None) == bool for v in (truth, pred)):
+    if all(getattr(v, "dtype", None) == bool for v in arrays):
         labels = labels.astype(bool)
-    return arrays[0], arrays[1], list(labels)
+    return out, list(labels)
 
 
-def _categorical_codes(truth, pred, t_name, p_name):
-    cats = [_categorical(v) for v in (truth, pred)]
+def _categorical_codes(arrays, names):
+    cats = [_categorical(v) for v in arrays]
     if any(c is None for c in cats):
         return None
-    ct, cp = cats
-    if not ct.categories.equals(cp.categories):
-        union = ct.categories.union(cp.categories, sort=False)
-        ct = ct.set_categories(union)
-        cp = cp.set_categories(union)
-    codes_t, codes_p = ct.codes.astype(np.int64), cp.codes.astype(np.int64)
-    _raise_missing(np.concatenate([codes_t, codes_p]), len(codes_t), t_name, p_name)
-    return codes_t, codes_p, list(ct.categories)
+    union = cats[0].categories
+    for c in cats[1:]:
+        if not c.categories.equals(union):
+            union = union.union(c.categories, sort=False)
+    cats = [c if c.categories.equals(union) else c.set_categories(union) for c in cats]
+    codes = [c.codes.astype(np.int64) for c in cats]
+    _raise_missing(np.concatenate(codes), [len(c) for c in codes], names)
+    return codes, list(union)
 
 
 def _categorical(values):
@@ -518,9 +572,9 @@ def _sorted_codes(codes: np.ndarray, uniques: np.ndarray):
 
 def _encode_one(values, name: str):
     """Codes, sorted unique values, and whether the codes are the values themselves."""
-    direct = _direct_codes(values, values)
+    direct = _direct_codes([values])
     if direct is not None:
-        codes, _, labels = direct
+        (codes,), labels = direct
         return codes, [_py(v) for v in labels], True
     codes, uniques = pd.factorize(_plain(values), use_na_sentinel=True)
     bad = np.flatnonzero(codes < 0)
@@ -530,21 +584,21 @@ def _encode_one(values, name: str):
     return codes, [_py(u) for u in uniques], False
 
 
-def _drop_unseen_groups(counts, coords: dict, direct: list, group_codes: list, weights):
-    """Drop leading-dim entries that no sample had (only the direct path makes them)."""
-    coords = dict(coords)
-    for axis, (dim, is_direct, (codes, size)) in enumerate(zip(list(coords), direct, group_codes)):
-        if not is_direct:
+def _drop_unseen_groups(counts, groups: list, weights):
+    """Leading coordinates, without entries no sample had (only the direct path makes them)."""
+    coords = {}
+    for axis, (dim, codes, labels, direct) in enumerate(groups):
+        coords[dim] = labels
+        if not direct:
             continue
         if weights is None:
-            other = tuple(i for i in range(counts.ndim) if i != axis)
-            seen = counts.sum(axis=other) > 0
+            seen = counts.sum(axis=tuple(i for i in range(counts.ndim) if i != axis)) > 0
         else:
-            seen = np.bincount(codes, minlength=size) > 0
+            seen = np.bincount(codes, minlength=len(labels)) > 0
         if not seen.all():
             keep = np.flatnonzero(seen)
             counts = np.take(counts, keep, axis=axis)
-            coords[dim] = [coords[dim][i] for i in keep]
+            coords[dim] = [labels[i] for i in keep]
     return counts, coords
 
 
@@ -552,34 +606,38 @@ def _py(value):
     return value.item() if isinstance(value, np.generic) else value
 
 
-def _bincount(codes_t, codes_p, k, groups, weights) -> np.ndarray:
-    index = np.zeros(len(codes_t), dtype=np.int64)
+def _bincount(class_codes: list, k: int, groups: list, weights) -> np.ndarray:
+    """One bincount over the mixed-radix index of the group codes, then the class codes."""
+    index = np.zeros(len(class_codes[0]), dtype=np.int64)
     shape = []
     for codes, size in groups:
         index *= size
         index += codes
         shape.append(size)
-    index *= k
-    index += codes_t
-    index *= k
-    index += codes_p
-    total = int(np.prod(shape, dtype=np.int64)) * k * k
-    counts = np.bincount(index, weights=weights, minlength=total)
+    for codes in class_codes:
+        index *= k
+        index += codes
+    shape += [k] * len(class_codes)
+    counts = np.bincount(index, weights=weights, minlength=int(np.prod(shape, dtype=np.int64)))
     if weights is None:
         counts = counts.astype(np.int64, copy=False)
-    return counts.reshape(*shape, k, k)
+    return counts.reshape(shape)
 
 
-def _occurring(codes_t, codes_p, k) -> np.ndarray:
-    return (np.bincount(codes_t, minlength=k) + np.bincount(codes_p, minlength=k)) > 0
+def _occurring(class_codes: list, k: int) -> np.ndarray:
+    return sum(np.bincount(c, minlength=k) for c in class_codes) > 0
 
 
-def _drop_unseen(counts: np.ndarray, labels: list, seen=None):
-    """Drop classes that occur in neither truth nor predictions."""
+def _drop_unseen(counts: np.ndarray, labels: list, n_axes: int, seen=None):
+    """Drop classes that occur in none of the last ``n_axes`` (class) axes."""
+    class_axes = range(counts.ndim - n_axes, counts.ndim)
     if seen is None:
-        seen = (counts.sum(axis=-1) + counts.sum(axis=-2)).reshape(-1, len(labels)).sum(axis=0) > 0
+        seen = np.zeros(len(labels), dtype=bool)
+        for axis in class_axes:
+            seen |= counts.sum(axis=tuple(i for i in range(counts.ndim) if i != axis)) > 0
     if seen.all():
-        return counts, [_py(x) for x in labels]
+        return counts, list(labels)
     keep = np.flatnonzero(seen)
-    counts = counts[..., keep, :][..., keep]
-    return counts, [_py(labels[i]) for i in keep]
+    for axis in class_axes:
+        counts = np.take(counts, keep, axis=axis)
+    return counts, [labels[i] for i in keep]

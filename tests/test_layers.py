@@ -11,7 +11,8 @@ PACKAGE = pathlib.Path(foldcorr.__file__).parent
 ORDER = ["errors", "tensor", "metrics", "analysis", "evaluation", "sources", "report", "cli"]
 LAYER = {"errors": "errors", "_files": "errors", "_version": "errors", "tensor": "tensor",
          "testing": "tensor", "metrics": "metrics", "evaluation": "evaluation",
-         "sources": "sources", "demo": "sources", "report": "report", "cli": "cli",
+         "sources": "sources", "demo": "sources", "paired": "sources", "streaming": "sources",
+         "distributed": "sources", "saved": "sources", "report": "report", "cli": "cli",
          "__main__": "cli", "__init__": "cli"}
 
 

@@ -28,6 +28,7 @@ __all__ = ["SECTIONS", "hooks"]
 
 #: Extras key -> report module that renders it, in report order.
 SECTIONS: dict[str, str] = {
+    "uncertainty": "foldcorr.report.uncertainty",
     "repair": "foldcorr.report.repair",
     "shifted": "foldcorr.report.shift",
 }

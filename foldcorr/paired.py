@@ -1,0 +1,179 @@
+"""The sources layer for comparisons: two models' predictions of the same samples.
+
+Either one table holds both predictions (two prediction columns), or two
+tables, one per model, are joined on an id column. Every problem is an
+:class:`~foldcorr.errors.InvalidInputError` naming the file and column; ids
+that repeat or that are not in both tables are refused with counts.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+import xarray as xr
+
+from foldcorr.compare import joint_tally
+from foldcorr.errors import InvalidInputError
+from foldcorr.sources import _as_text, _coerce_classes, _fail, read_table
+from foldcorr.tensor import ACTUAL, FOLD, PREDICTED
+
+__all__ = ["PairSpec", "load_joint"]
+
+
+@dataclass(frozen=True)
+class PairSpec:
+    """Which columns hold what when comparing two models.
+
+    Attributes
+    ----------
+    truth : str
+        Column of actual labels (read from the first table).
+    pred_a, pred_b : str or None
+        Prediction columns of model A and model B. With one table both are
+        needed; with two tables they default to ``pred`` in each.
+    pred : str
+        Prediction column of each table when joining two tables.
+    id : str or None
+        Id column joining two tables.
+    fold : str or None
+        Fold column (of the first table); ``"auto"`` uses ``fold`` when present.
+    classes : tuple or None
+        Fixed class order.
+    """
+
+    truth: str = ACTUAL
+    pred_a: str | None = None
+    pred_b: str | None = None
+    pred: str = PREDICTED
+    id: str | None = None
+    fold: str | None = "auto"
+    classes: tuple | None = None
+
+
+def _need(path, df, names) -> None:
+    for name in names:
+        if name is not None and name not in df.columns:
+            raise _fail(path, f"column {name!r} not found; the table has {list(df.columns)!r}")
+
+
+def _fold_of(df, spec) -> str | None:
+    if spec.fold == "auto":
+        return FOLD if FOLD in df.columns else None
+    return spec.fold
+
+
+def _first(values) -> str:
+    return repr(values.iloc[0].item() if hasattr(values.iloc[0], "item") else values.iloc[0])
+
+
+def _same_kind(*columns: pd.Series) -> list[pd.Series]:
+    numeric = {pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s)
+               for s in columns}
+    return [_as_text(s) for s in columns] if len(numeric) > 1 else list(columns)
+
+
+def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArray:
+    """Read two models' predictions of the same samples into a joint tensor.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The table with truth (and both predictions, without ``path_b``).
+    spec : PairSpec
+        Column roles.
+    path_b : str or path-like, optional
+        A second table with model B's predictions, joined on ``spec.id``.
+
+    Returns
+    -------
+    xarray.DataArray
+        The joint tensor ``([fold,] actual, predicted_a, predicted_b)``, with
+        ``source`` in ``attrs``.
+
+    Raises
+    ------
+    InvalidInputError
+        On a missing column, a missing ``--id`` with two tables, ids that
+        repeat or differ between the tables (with counts), truth that differs
+        between the tables, or labels as :func:`foldcorr.compare.joint_tally`.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (d / "a.csv").write_text("id,actual,predicted\\n1,x,x\\n2,y,x\\n")
+    >>> _ = (d / "b.csv").write_text("id,predicted\\n2,y\\n1,x\\n")
+    >>> j = load_joint(d / "a.csv", PairSpec(id="id"), path_b=d / "b.csv")
+    >>> int(j.sel(actual="y", predicted_a="x", predicted_b="y"))
+    1
+    """
+    path = Path(path)
+    df = read_table(path)
+    fold = _fold_of(df, spec)
+    if path_b is None:
+        if spec.pred_a is None or spec.pred_b is None:
+            raise InvalidInputError(
+                "with one table, name both prediction columns (--pred-a COL --pred-b COL); "
+                f"got pred_a={spec.pred_a!r}, pred_b={spec.pred_b!r}")
+        if spec.pred_a == spec.pred_b:
+            raise InvalidInputError(f"--pred-a and --pred-b name the same column {spec.pred_a!r}")
+        _need(path, df, [spec.truth, spec.pred_a, spec.pred_b, fold])
+        truth, a, b = df[spec.truth], df[spec.pred_a], df[spec.pred_b]
+        source = path.name
+    else:
+        path_b = Path(path_b)
+        if spec.id is None:
+            raise InvalidInputError(
+                "with two tables, name the id column that joins them (--id COL)")
+        col_a, col_b = spec.pred_a or spec.pred, spec.pred_b or spec.pred
+        _need(path, df, [spec.id, spec.truth, col_a, fold])
+        other = read_table(path_b)
+        _need(path_b, other, [spec.id, col_b])
+        ids_a, ids_b = _same_kind(df[spec.id], other[spec.id])
+        _check_ids(path, path_b, ids_a, ids_b, spec.id)
+        position = pd.Index(ids_b).get_indexer(ids_a)
+        other = other.iloc[position].reset_index(drop=True)
+        df = df.reset_index(drop=True)
+        if spec.truth in other.columns:
+            t_a, t_b = _same_kind(df[spec.truth], other[spec.truth])
+            differ = (t_a.astype(object) != t_b.astype(object)).to_numpy()
+            if differ.any():
+                first = ids_a.iloc[int(differ.nonzero()[0][0])]
+                raise InvalidInputError(
+                    f"{path.name} and {path_b.name} disagree on column {spec.truth!r} for "
+                    f"{int(differ.sum())} of {len(df)} ids (first id {first!r}); both tables "
+                    "must describe the same samples")
+        truth, a, b = df[spec.truth], df[col_a], other[col_b]
+        source = f"{path.name} + {path_b.name}"
+    truth, a, b = _same_kind(truth, a, b)
+    classes = None if spec.classes is None else _coerce_classes(spec.classes, truth)
+    try:
+        j = joint_tally(truth, a, b, folds=None if fold is None else df[fold], classes=classes)
+    except InvalidInputError as exc:
+        raise _fail(path, str(exc)) from None
+    j.attrs["source"] = source
+    return j
+
+
+def _check_ids(path_a, path_b, ids_a: pd.Series, ids_b: pd.Series, name: str) -> None:
+    for path, ids in ((path_a, ids_a), (path_b, ids_b)):
+        if ids.isna().any():
+            raise _fail(path, f"id column {name!r} has {int(ids.isna().sum())} missing ids")
+        dup = ids.duplicated()
+        if dup.any():
+            raise _fail(path, f"id column {name!r} repeats {int(dup.sum())} ids (first "
+                              f"{_first(ids[dup])}); ids must be unique")
+    only_a = ~ids_a.isin(ids_b)
+    only_b = ~ids_b.isin(ids_a)
+    if only_a.any() or only_b.any():
+        parts = []
+        if only_a.any():
+            parts.append(f"{int(only_a.sum())} ids of {Path(path_a).name} are not in "
+                         f"{Path(path_b).name} (first {_first(ids_a[only_a])})")
+        if only_b.any():
+            parts.append(f"{int(only_b.sum())} ids of {Path(path_b).name} are not in "
+                         f"{Path(path_a).name} (first {_first(ids_b[only_b])})")
+        raise InvalidInputError(f"the tables must hold the same ids in column {name!r}: "
+                                + "; ".join(parts))
