@@ -331,8 +331,34 @@ def _shift_step(args, ev):
 #: evaluation unchanged when its options are not set.
 ANALYSES: list = [_shift_step]
 
+def _multilabel_intervals_step(args, ev):
+    """Bootstrap intervals per label and of micro/macro/weighted MCC when ``--ci`` is given."""
+    level = getattr(args, "ci", None)
+    resamples = getattr(args, "resamples", None)
+    method = getattr(args, "ci_method", None)
+    if level is None:
+        for flag, value in (("--resamples", resamples), ("--ci-method", method)):
+            if value is not None:
+                from foldcorr.errors import OptionError
+
+                raise OptionError(f"`{flag}` needs `--ci LEVEL` (e.g. --ci 0.95); got {flag} "
+                                  f"{value!r} without it")
+        return ev
+    from foldcorr.multilabel import multilabel_intervals
+    from foldcorr.uncertainty import check_level, check_resamples
+
+    check_level(level, name="--ci")
+    if resamples is not None:
+        check_resamples(resamples, name="--resamples")
+    result = multilabel_intervals(ev.tensor, level=level,
+                                  n_resamples=2000 if resamples is None else resamples,
+                                  method=method or "percentile", seed=getattr(args, "seed", None),
+                                  undefined=ev.undefined)
+    return ev.with_extra("intervals", result)
+
+
 #: The same for multilabel evaluations (``score`` with the multilabel flags).
-MULTILABEL_ANALYSES: list = []
+MULTILABEL_ANALYSES: list = [_multilabel_intervals_step]
 
 
 def _repair_step(args, ev):

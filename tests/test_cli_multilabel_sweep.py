@@ -230,3 +230,26 @@ def test_sweep_plot_without_matplotlib(capsys, tags, tmp_path, monkeypatch):
     code, _, err = run(capsys, "sweep", tags[0], "--truth", "bird", "--positive", "gull",
                        "--plot", tmp_path / "figs")
     assert code == 2 and "foldcorr[plot]" in err
+
+
+def test_multilabel_intervals_on_the_command_line(capsys, tags):
+    path = tags[0]
+    argv = ("score", path, "--truth-prefix", "y_", "--pred-prefix", "p_", "--ci", "0.9",
+            "--resamples", "300", "--seed", "4", "--format", "json")
+    code, out, err = run(capsys, *argv)
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["ci"] == {"level": 0.9, "method": "percentile", "resamples": 300, "seed": 4}
+    for key in ("micro_mcc", "macro_mcc", "weighted_mcc"):
+        low, high = doc[f"{key}_ci"]
+        assert low < doc[key] < high
+    for row in doc["per_label"]:
+        assert row["mcc_ci"][0] < row["mcc"] < row["mcc_ci"][1]
+    code, again, _ = run(capsys, *argv)
+    assert again == out  # same seed, same intervals
+    code, _, err = run(capsys, "score", path, "--truth-prefix", "y_", "--pred-prefix", "p_",
+                       "--resamples", "300")
+    assert code == 2 and "needs `--ci LEVEL`" in err
+    code, _, err = run(capsys, "score", path, "--truth-prefix", "y_", "--pred-prefix", "p_",
+                       "--ci", "1.5")
+    assert code == 2 and "--ci" in err

@@ -117,3 +117,54 @@ def test_bad_input():
 def test_no_labels_at_all():
     with pytest.raises(InvalidInputError, match="no labels to evaluate"):
         multilabel_tally(np.zeros((3, 0), bool), np.zeros((3, 0), bool))
+
+
+def _mcc_along(y, p, axis=-1):
+    # binary MCC of paired 0/1 arrays along an axis (Matthews 1975), for scipy's bootstrap
+    y, p = np.asarray(y, float), np.asarray(p, float)
+    n = y.shape[axis]
+    tp = (y * p).sum(axis)
+    pos, pp = y.sum(axis), p.sum(axis)
+    den = np.sqrt(pp * (n - pp) * pos * (n - pos))
+    return np.where(den > 0, (n * tp - pos * pp) / np.where(den > 0, den, 1), 0.0)
+
+
+def test_intervals_match_per_sample_bootstrap():
+    # scipy.stats.bootstrap resampling samples (rows) with replacement, percentile method; our
+    # intervals come from resampling cells: equal within Monte Carlo error (DESIGN.md, Efron &
+    # Tibshirani 1993). Labels are drawn independently here, so micro MCC matches too.
+    from scipy.stats import bootstrap as scipy_bootstrap
+
+    from foldcorr.multilabel import multilabel_intervals
+
+    rng = np.random.default_rng(21)
+    n = 400
+    truth = rng.random((n, 3)) < [0.2, 0.4, 0.6]
+    pred = truth ^ (rng.random((n, 3)) < 0.2)
+    ci = multilabel_intervals(multilabel_tally(truth, pred, labels=list("abc")),
+                              n_resamples=4000, seed=5)
+    for j, label in enumerate("abc"):
+        ref = scipy_bootstrap((truth[:, j], pred[:, j]), _mcc_along, paired=True,
+                              vectorized=True, n_resamples=4000, method="percentile",
+                              random_state=np.random.default_rng(j)).confidence_interval
+        low, high = ci.label_interval(label)
+        assert low == pytest.approx(ref.low, abs=0.025)
+        assert high == pytest.approx(ref.high, abs=0.025)
+    rows = np.arange(n)
+    ref = scipy_bootstrap((rows,), lambda r, axis=-1: _mcc_along(
+        truth[r].reshape(*r.shape[:-1], -1), pred[r].reshape(*r.shape[:-1], -1)),
+        vectorized=True, n_resamples=2000, method="percentile",
+        random_state=np.random.default_rng(9)).confidence_interval
+    assert ci.micro_mcc[0] == pytest.approx(ref.low, abs=0.025)
+    assert ci.micro_mcc[1] == pytest.approx(ref.high, abs=0.025)
+    macro = evaluate_multilabel(multilabel_tally(truth, pred)).macro_mcc
+    assert ci.macro_mcc[0] < macro < ci.macro_mcc[1]
+
+
+def test_intervals_refuse_weighted_tensors():
+    from foldcorr.errors import FoldcorrError
+    from foldcorr.multilabel import multilabel_intervals
+
+    t = multilabel_tally([[1, 0], [0, 1]], [[1, 0], [0, 1]], weights=[0.5, 1.5])
+    with pytest.raises(FoldcorrError, match="weight"):
+        multilabel_intervals(t, n_resamples=100, seed=1)

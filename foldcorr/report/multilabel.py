@@ -2,8 +2,9 @@
 
 ``foldcorr.multilabel/1`` keys: ``schema``, ``source``, ``undefined``,
 ``labels``, ``n``, ``micro_mcc``, ``macro_mcc``, ``weighted_mcc``,
-``per_label`` (sorted by cost, largest first), ``folds`` and ``warnings``
-(see ``docs/json.md``).
+``per_label`` (sorted by cost, largest first), ``folds`` and ``warnings``;
+with intervals also ``ci``, ``micro_mcc_ci``, ``macro_mcc_ci``,
+``weighted_mcc_ci`` and ``per_label[].mcc_ci`` (see ``docs/json.md``).
 """
 
 from __future__ import annotations
@@ -23,11 +24,7 @@ def _py(value):
     return value.item() if hasattr(value, "item") else value
 
 
-def _interval_note(ev: MultilabelEvaluation, key: str) -> str:
-    ci = ev.extras.get("intervals")
-    if ci is None or key not in ci:
-        return ""
-    low, high = ci[key]
+def _pair(low, high) -> str:
     return f"[{format_value(low, 'metric')}, {format_value(high, 'metric')}]"
 
 
@@ -49,15 +46,14 @@ def multilabel_report(ev: MultilabelEvaluation, *, top: int | None = 20,
              ("labels", str(len(ev.labels))), ("folds", folds),
              ("micro MCC", format_value(ev.micro_mcc, "metric")),
              ("macro MCC", format_value(ev.macro_mcc, "metric")))
-    with_ci = "intervals" in ev.extras
+    ci = ev.extras.get("intervals")
     columns = (Column("figure", "label"), Column("value", "correlation"))
-    rows = [("micro MCC (tensor summed over labels)", ev.micro_mcc, "micro_mcc"),
+    rows = (("micro MCC (tensor summed over labels)", ev.micro_mcc, "micro_mcc"),
             ("macro MCC (mean over labels present)", ev.macro_mcc, "macro_mcc"),
-            ("support-weighted MCC", ev.weighted_mcc, "weighted_mcc")]
-    if with_ci:
-        level = ev.extras["intervals"].get("level", 0.95)
-        columns += (Column(f"{level:.0%} interval", "text"),)
-        rows = tuple((a, b, _interval_note(ev, k)) for a, b, k in rows)
+            ("support-weighted MCC", ev.weighted_mcc, "weighted_mcc"))
+    if ci is not None:
+        columns += (Column(f"{ci.level:.0%} interval", "text"),)
+        rows = tuple((a, b, _pair(*getattr(ci, k))) for a, b, k in rows)
     else:
         rows = tuple((a, b) for a, b, _ in rows)
     tables = [Table("Averages over labels", columns, rows)]
@@ -77,8 +73,7 @@ def multilabel_report(ev: MultilabelEvaluation, *, top: int | None = 20,
     columns = (Column("label", "label"), Column("support", "count"), Column("predicted", "count"),
                Column("prevalence"), Column("MCC", "correlation"), Column("recall"),
                Column("precision"), Column("cost", "count"))
-    per_label_ci = ev.extras.get("intervals", {}).get("per_label") if with_ci else None
-    if per_label_ci is not None:
+    if ci is not None:
         columns = (*columns[:5], Column("MCC interval", "text"), *columns[5:])
     rows = []
     for i in range(shown):
@@ -87,11 +82,13 @@ def multilabel_report(ev: MultilabelEvaluation, *, top: int | None = 20,
                float(p["prevalence"].values[i]), float(p["mcc"].values[i]),
                float(p["recall"].values[i]), float(p["precision"].values[i]),
                round(float(p["cost"].values[i]), 1)]
-        if per_label_ci is not None:
-            low, high = per_label_ci.get(label, (None, None))
-            row.insert(5, f"[{format_value(low, 'metric')}, {format_value(high, 'metric')}]")
+        if ci is not None:
+            row.insert(5, _pair(*ci.label_interval(label)))
         rows.append(tuple(row))
     note = "cost = (1 - MCC) x support: the labels that cost the most come first"
+    if ci is not None:
+        note += (f"; {ci.method} bootstrap intervals from {ci.n_resamples} resamples, each label "
+                 "resampled on its own (see docs/multilabel.md)")
     if shown < k:
         note += f"; {k - shown} more labels not shown (use --top all)"
     tables.append(Table(f"Labels by cost (top {shown} of {k})", columns, tuple(rows), note))
@@ -136,13 +133,12 @@ def multilabel_dict(ev: MultilabelEvaluation) -> dict:
     }
     ci = ev.extras.get("intervals")
     if ci is not None:
-        doc["intervals"] = {
-            "level": ci["level"], "method": ci["method"], "n_resamples": ci["n_resamples"],
-            **{k: {"low": ci[k][0], "high": ci[k][1]} for k in ("micro_mcc", "macro_mcc",
-                                                                   "weighted_mcc") if k in ci}}
+        doc["ci"] = {"level": ci.level, "method": ci.method, "resamples": ci.n_resamples,
+                     "seed": ci.seed}
+        for key in ("micro_mcc", "macro_mcc", "weighted_mcc"):
+            doc[f"{key}_ci"] = list(getattr(ci, key))
         for row in per_label:
-            low, high = ci["per_label"].get(row["label"], (None, None))
-            row["mcc_interval"] = {"low": low, "high": high}
+            row["mcc_ci"] = list(ci.label_interval(row["label"]))
     return plain(doc)
 
 
