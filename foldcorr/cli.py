@@ -248,6 +248,8 @@ def _repair_step(args, ev):
 
 
 ANALYSES.append(_repair_step)
+
+
 def _uncertainty_step(args, ev):
     """Attach bootstrap intervals and fold statistics when ``--ci`` is given."""
     level = getattr(args, "ci", None)
