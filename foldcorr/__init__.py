@@ -35,6 +35,7 @@ _EXPORTS = {
     "foldcorr.report.plots": [
         "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
     ],
+    "foldcorr.streaming": ["tally_dataset", "stream_tensor", "parse_where", "StreamResult"],
     "foldcorr.multilabel": [
         "multilabel_tally", "indicators_from_sets", "evaluate_multilabel", "MultilabelEvaluation",
     ],
@@ -42,7 +43,7 @@ _EXPORTS = {
     "foldcorr.shift": ["shift_prevalence", "target_prevalence", "shifted_figures", "ShiftResult"],
     "foldcorr.errors": [
         "FoldcorrError", "InvalidTensorError", "InvalidInputError", "OptionError",
-        "MissingDependencyError", "UndefinedMetricWarning",
+        "MissingDependencyError", "EngineError", "UndefinedMetricWarning",
     ],
 }
 _WHERE = {name: module for module, names in _EXPORTS.items() for name in names}

@@ -61,6 +61,21 @@ def _add_table_options(p: argparse.ArgumentParser) -> None:
                    help="fixed class order; labels outside it are an error")
 
 
+def _add_source_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--where", metavar="EXPR",
+                   help='row filter, e.g. \'split == "test" and fold != 3\' '
+                        "(comparisons joined by and/or/not; see docs/streaming.md)")
+    p.add_argument("--engine", choices=("local", "dask"), default="local",
+                   help="local: stream in this process (default); dask: tally on a Dask cluster")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="Dask scheduler to use, e.g. tcp://10.0.0.5:8786 (default: a local "
+                        "cluster on 127.0.0.1, one worker per core)")
+    p.add_argument("--skip-bad-files", action="store_true",
+                   help="skip unreadable files of a dataset and report them, instead of stopping")
+    p.add_argument("--quiet", action="store_true",
+                   help="no progress bar (it is shown only when stderr is a terminal)")
+
+
 def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     """Options of the analyses in :data:`ANALYSES`, shared by ``score`` and ``demo``."""
     p.add_argument("--plot", metavar="DIR",
@@ -128,10 +143,13 @@ def get_parser() -> argparse.ArgumentParser:
     score = verbs.add_parser("score", help="score a prediction table or a counts matrix",
                              description="Score a prediction table (CSV, Parquet, JSON Lines) "
                                          "or a counts matrix CSV (--matrix).")
-    score.add_argument("path", metavar="PATH", help="prediction table or counts matrix")
+    score.add_argument("path", metavar="PATH",
+                       help="prediction table, a folder or a quoted glob of them, "
+                            "or a counts matrix")
     _add_table_options(score)
     score.add_argument("--matrix", action="store_true",
                        help="PATH is a counts matrix: actual labels down, predicted across")
+    _add_source_options(score)
     _add_report_options(score)
     _add_analysis_options(score)
     _add_multilabel_options(score)
@@ -258,8 +276,27 @@ def _run_score(args) -> int:
     if _multilabel_requested(args):
         return _run_score_multilabel(args)
 
-    tensor = load_tensor(args.path, _spec(args), matrix=args.matrix)
-    _emit(args, _analyse(args, evaluate(tensor, undefined=args.undefined)))
+    if args.scheduler and args.engine != "dask":
+        from foldcorr.errors import OptionError
+
+        raise OptionError(f"`--scheduler` needs `--engine dask`; got --engine {args.engine!r}")
+    if args.matrix and (args.where or args.engine != "local"):
+        from foldcorr.errors import OptionError
+
+        raise OptionError("`--where` and `--engine` apply to prediction tables, not to --matrix")
+    tensor = load_tensor(args.path, _spec(args), matrix=args.matrix, where=args.where,
+                         skip_bad_files=args.skip_bad_files,
+                         progress=False if args.quiet else None,
+                         engine=args.engine, scheduler=args.scheduler)
+    ev = evaluate(tensor, undefined=args.undefined)
+    if tensor.attrs.get("skipped_files"):
+        from foldcorr.streaming import SkippedFiles
+
+        skipped = SkippedFiles.of(tensor)
+        for line in skipped.warnings:
+            print(f"foldcorr: {line}", file=sys.stderr)
+        ev = ev.with_extra("skipped_files", skipped)
+    _emit(args, _analyse(args, ev))
     return EXIT_OK
 
 
@@ -271,10 +308,13 @@ def _run_score_multilabel(args) -> int:
     if args.matrix:
         raise OptionError("--matrix reads a multiclass counts matrix; it does not combine with "
                           "the multilabel flags")
-    for flag in ("prevalence", "plot"):
+    for flag in ("prevalence", "plot", "where", "scheduler"):
         if getattr(args, flag, None) is not None:
             raise OptionError(f"--{flag} applies to multiclass scoring; it does not combine with "
                               "the multilabel flags")
+    if getattr(args, "engine", "local") != "local" or getattr(args, "skip_bad_files", False):
+        raise OptionError("--engine and --skip-bad-files apply to multiclass scoring; multilabel "
+                          "tables are read whole, in this process")
     spec = MultilabelSpec(truth_cols=args.truth_cols, pred_cols=args.pred_cols,
                           truth_prefix=args.truth_prefix, pred_prefix=args.pred_prefix,
                           truth=args.truth, pred=args.pred, sep=args.sep, fold=args.fold,
@@ -371,6 +411,8 @@ def _repair_step(args, ev):
 
 
 ANALYSES.append(_repair_step)
+
+
 def _uncertainty_step(args, ev):
     """Attach bootstrap intervals and fold statistics when ``--ci`` is given."""
     level = getattr(args, "ci", None)

@@ -16,6 +16,7 @@ __all__ = [
     "InvalidInputError",
     "OptionError",
     "MissingDependencyError",
+    "EngineError",
     "UndefinedMetricWarning",
     "require",
 ]
@@ -39,6 +40,10 @@ class OptionError(FoldcorrError, ValueError):
 
 class MissingDependencyError(FoldcorrError, ImportError):
     """An optional dependency is needed for the requested feature."""
+
+
+class EngineError(FoldcorrError, RuntimeError):
+    """A distributed run failed (a worker lost, a scheduler unreachable); nothing was produced."""
 
 
 class UndefinedMetricWarning(RuntimeWarning):

@@ -21,8 +21,7 @@ from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, confusion_tensor, tally_fra
 
 __all__ = ["TableSpec", "read_table", "read_matrix", "load_tensor", "TABLE_SUFFIXES"]
 
-TABLE_SUFFIXES = {".csv": "csv", ".tsv": "tsv", ".parquet": "parquet", ".pq": "parquet",
-                  ".jsonl": "jsonl", ".ndjson": "jsonl"}
+from foldcorr.streaming import TABLE_SUFFIXES  # noqa: E402  (one list for both paths)
 
 
 @dataclass(frozen=True)
@@ -127,17 +126,36 @@ def _read(path: Path, fmt: str, columns) -> pd.DataFrame:
     return df if columns is None else df[[c for c in columns if c in df.columns]]
 
 
-def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False) -> xr.DataArray:
-    """Read a prediction table or a counts matrix into a confusion tensor.
+def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, where=None,
+                skip_bad_files: bool = False, progress: bool | None = False,
+                engine: str = "local", scheduler=None) -> xr.DataArray:
+    """Read a prediction table (or a dataset of them) or a counts matrix into a tensor.
+
+    Prediction tables are streamed batch by batch (see
+    :func:`foldcorr.streaming.stream_tensor`): memory is bounded by the batch
+    size and the tensor, not by the number of rows, and the result is the
+    tensor :func:`foldcorr.tensor.tally_frame` gives on the whole table.
 
     Parameters
     ----------
     path : str or path-like
-        Prediction table, or counts matrix CSV when ``matrix`` is true.
+        Prediction table, a folder or a glob of them, or a counts matrix CSV
+        when ``matrix`` is true.
     spec : TableSpec
         Column roles (ignored for a matrix, except ``classes``).
     matrix : bool, default False
         Read ``path`` as a counts matrix.
+    where : str, optional
+        Row filter, e.g. ``'split == "test"'`` (see
+        :func:`foldcorr.streaming.parse_where`).
+    skip_bad_files : bool, default False
+        Skip unreadable files of a dataset (listed in ``attrs["skipped_files"]``).
+    progress : bool or None, default False
+        Progress bar on stderr; None shows it when stderr is a terminal.
+    engine : {"local", "dask"}
+        Where the tally runs (see :func:`foldcorr.streaming.tally_dataset`).
+    scheduler : str, optional
+        Address of a Dask scheduler (engine "dask").
 
     Returns
     -------
@@ -162,6 +180,20 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False) ->
         if spec.classes is not None:
             t = _reorder_matrix(path, t, spec.classes)
         return t
+    from foldcorr.streaming import tally_dataset
+
+    return tally_dataset(path, truth=spec.truth, pred=spec.pred, fold=spec.fold,
+                         weight=spec.weight, classes=spec.classes, where=where,
+                         skip_bad_files=skip_bad_files, progress=progress,
+                         engine=engine, scheduler=scheduler).tensor
+
+
+def _load_in_memory(path, spec: TableSpec = TableSpec()) -> xr.DataArray:
+    """The whole table in memory, then :func:`~foldcorr.tensor.tally_frame`.
+
+    The reference the streaming path must agree with (kept for the tests and
+    for comparison in the benchmarks); :func:`load_tensor` does not use it.
+    """
     path = Path(path)
     df = read_table(path, columns=_wanted(spec))
     fold = _fold_column(path, df, spec)

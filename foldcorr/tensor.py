@@ -32,6 +32,10 @@ __all__ = [
     "validate_tensor",
     "pool",
     "class_dims",
+    "count_codes",
+    "unknown_label_message",
+    "missing_label_message",
+    "bad_weight_message",
 ]
 
 ACTUAL = "actual"
@@ -432,9 +436,7 @@ def _check_weights(weights) -> np.ndarray:
     bad = ~np.isfinite(w) | (w < 0)
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
-        raise InvalidInputError(
-            f"weights must be finite and non-negative; got {float(w[row])!r} at row {row + 1}"
-        )
+        raise InvalidInputError(bad_weight_message(row, w[row]))
     return w
 
 
@@ -490,11 +492,63 @@ def _raise_unknown(name, values, codes, labels) -> None:
     if bad.size:
         row = int(bad[0])
         value = _py(np.asarray(values)[row])
-        shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
-        raise InvalidInputError(
-            f"column {name!r} row {row + 1}: label {value!r} is not among the classes "
-            f"[{shown}] ({bad.size} rows outside them)"
-        )
+        raise InvalidInputError(unknown_label_message(name, row, value, bad.size, labels))
+
+
+def unknown_label_message(name: str, row: int, value, n_bad: int, labels) -> str:
+    """The message for a label outside a fixed class list.
+
+    Shared by the in-memory tally and the streaming sources, so both word it
+    the same way.
+
+    Parameters
+    ----------
+    name : str
+        Column name.
+    row : int
+        Zero-based row of the first offending label.
+    value : object
+        That label.
+    n_bad : int
+        Number of rows outside the classes.
+    labels : sequence
+        The fixed classes.
+
+    Returns
+    -------
+    str
+
+    Examples
+    --------
+    >>> unknown_label_message("actual", 2, "owl", 1, ["cat", "dog"])
+    "column 'actual' row 3: label 'owl' is not among the classes ['cat', 'dog'] (1 rows outside them)"
+    """
+    labels = list(labels)
+    shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
+    return (f"column {name!r} row {row + 1}: label {value!r} is not among the classes "
+            f"[{shown}] ({n_bad} rows outside them)")
+
+
+def bad_weight_message(row: int, value) -> str:
+    """The message for a negative or non-finite weight at zero-based ``row``.
+
+    Examples
+    --------
+    >>> bad_weight_message(1, -2.0)
+    'weights must be finite and non-negative; got -2.0 at row 2'
+    """
+    return f"weights must be finite and non-negative; got {float(value)!r} at row {row + 1}"
+
+
+def missing_label_message(name: str, row: int, n_missing: int) -> str:
+    """The message for a missing truth or predicted label (see :func:`unknown_label_message`).
+
+    Examples
+    --------
+    >>> missing_label_message("predicted", 0, 2)
+    "column 'predicted' row 1: missing label (2 missing in all)"
+    """
+    return f"column {name!r} row {row + 1}: missing label ({n_missing} missing in all)"
 
 
 def _raise_missing(codes, lengths, names) -> None:
@@ -504,9 +558,7 @@ def _raise_missing(codes, lengths, names) -> None:
         ends = np.cumsum(lengths)
         which = int(np.searchsorted(ends, i, side="right"))
         row = i - (int(ends[which - 1]) if which else 0)
-        raise InvalidInputError(
-            f"column {names[which]!r} row {row + 1}: missing label ({bad.size} missing in all)"
-        )
+        raise InvalidInputError(missing_label_message(names[which], row, bad.size))
 
 
 def _direct_codes(arrays, names=None):
@@ -607,21 +659,70 @@ def _py(value):
 
 
 def _bincount(class_codes: list, k: int, groups: list, weights) -> np.ndarray:
-    """One bincount over the mixed-radix index of the group codes, then the class codes."""
-    index = np.zeros(len(class_codes[0]), dtype=np.int64)
-    shape = []
-    for codes, size in groups:
+    """Count the group codes, then the class codes, into one dense array."""
+    codes = [c for c, _ in groups] + list(class_codes)
+    shape = [size for _, size in groups] + [k] * len(class_codes)
+    return count_codes(codes, shape, weights=weights)
+
+
+def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=None,
+                out: np.ndarray | None = None) -> np.ndarray:
+    """Count rows of integer codes into a dense array.
+
+    Row ``i`` adds one (or ``weights[i]``) to the cell
+    ``(codes[0][i], codes[1][i], ...)`` of an array of shape ``shape``. This
+    is the one counting step of the tensor layer; the streaming sources call
+    it batch by batch.
+
+    Parameters
+    ----------
+    codes : sequence of numpy.ndarray
+        One integer array per dim, all of the same length, with
+        ``0 <= codes[d] < shape[d]``.
+    shape : sequence of int
+        Size of each dim.
+    weights : numpy.ndarray, optional
+        One float weight per row.
+    out : numpy.ndarray, optional
+        A C-contiguous array of shape ``shape`` to add the counts into, in
+        place (int64 for counts, float64 for weights); no array of the
+        size of ``shape`` is allocated then, which suits many small batches.
+
+    Returns
+    -------
+    numpy.ndarray
+        int64 counts, or float64 sums of weights, of shape ``shape``
+        (``out`` itself when given).
+
+    Notes
+    -----
+    The cell is found by the mixed-radix index
+    ``((c_0 * n_1 + c_1) * n_2 + c_2) ...`` and counted with one
+    ``numpy.bincount``, so the cost is O(rows + cells); with ``out`` it is
+    added in place with ``numpy.add.at``, O(rows).
+
+    Examples
+    --------
+    >>> count_codes([np.array([0, 1, 1]), np.array([1, 1, 0])], [2, 2]).tolist()
+    [[0, 1], [1, 1]]
+    >>> acc = np.zeros((2, 2), dtype=np.int64)
+    >>> count_codes([np.array([1]), np.array([0])], [2, 2], out=acc).tolist()
+    [[0, 0], [1, 0]]
+    """
+    if not codes:
+        raise ValueError("count_codes needs at least one array of codes")
+    index = np.asarray(codes[0]).astype(np.int64)
+    for c, size in zip(codes[1:], shape[1:]):
         index *= size
-        index += codes
-        shape.append(size)
-    for codes in class_codes:
-        index *= k
-        index += codes
-    shape += [k] * len(class_codes)
-    counts = np.bincount(index, weights=weights, minlength=int(np.prod(shape, dtype=np.int64)))
+        index += c
+    if out is not None:
+        np.add.at(out.reshape(-1), index, 1 if weights is None else weights)
+        return out
+    total = int(np.prod(shape, dtype=np.int64))
+    counts = np.bincount(index, weights=weights, minlength=total)
     if weights is None:
         counts = counts.astype(np.int64, copy=False)
-    return counts.reshape(shape)
+    return counts.reshape(*shape)
 
 
 def _occurring(class_codes: list, k: int) -> np.ndarray:

@@ -1,0 +1,332 @@
+"""The Dask engine: partial tallies on the workers of a cluster, summed in a tree.
+
+Each piece of the dataset (a file, or a partition of a Dask DataFrame) is
+tallied on a worker into a small count array over its own label codes (folds x
+K x K, a :class:`foldcorr.streaming.StreamTally`); partial tallies are merged
+pairwise up a tree (fan-in :data:`FAN_IN`), and the labels are settled once on
+the last worker with the same code as the local engine. Only the tensor comes
+back to the client, so the result equals the local one.
+
+Needs the ``dask`` extra (``pip install 'foldcorr[dask]'``): ``dask[dataframe]``
+and ``distributed``, imported only through :func:`foldcorr.errors.require`.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+from foldcorr.errors import EngineError, FoldcorrError, InvalidInputError, require
+from foldcorr.streaming import (
+    ACTUAL,
+    PREDICTED,
+    StreamResult,
+    _FileCheck,
+    _finish,
+    _plan,
+    _Progress,
+    _raise_checks,
+    _tally_files,
+    BATCH_ROWS,
+    parse_where,
+    resolve_paths,
+)
+
+__all__ = ["dask_tally", "FAN_IN"]
+
+#: Partial tallies merged per task in the reduction tree.
+FAN_IN = 8
+
+#: Pieces of work per worker: each is a run of consecutive files, so that few
+#: partial tallies (folds x K x K each) travel between workers.
+PIECES_PER_WORKER = 2
+
+#: How long to wait for a scheduler given by address.
+CONNECT_TIMEOUT = 10.0
+
+_PURPOSE = "the Dask engine (--engine dask)"
+
+
+def dask_tally(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
+               weight: str | None = None, classes=None, where=None,
+               skip_bad_files: bool = False, progress: bool | None = None,
+               scheduler=None, batch_rows: int = BATCH_ROWS) -> StreamResult:
+    """Tally a dataset, or a Dask DataFrame, on a Dask cluster.
+
+    Parameters
+    ----------
+    data : str, path-like or dask.dataframe.DataFrame
+        A file, folder or glob of prediction tables (the paths must be
+        readable by every worker, e.g. on a shared file system), or a Dask
+        DataFrame with the named columns.
+    truth, pred, fold, weight, classes, where, skip_bad_files, progress, batch_rows
+        As in :func:`foldcorr.streaming.stream_tensor`.
+    scheduler : str or distributed.Client, optional
+        Address of a running scheduler (``"tcp://host:8786"``) or a client.
+        Without it, a ``distributed.LocalCluster`` on 127.0.0.1 with one
+        single-threaded worker process per core runs for this call only.
+
+    Returns
+    -------
+    StreamResult
+
+    Raises
+    ------
+    InvalidInputError
+        As the local engine; for a Dask DataFrame, rows are counted within
+        the partition, which the message names.
+    EngineError
+        When the run fails (a worker lost more often than the scheduler
+        retries, the scheduler unreachable); no tensor is returned then.
+    MissingDependencyError
+        Without the ``dask`` extra.
+
+    Notes
+    -----
+    The scheduler retries a task whose worker died (``distributed``'s
+    ``scheduler.allowed-failures``, 3 by default); a task that kills its
+    workers more often fails the run. Partial tallies are never reported:
+    the result exists only when every piece was counted.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (d / "a.csv").write_text("actual,predicted\\nx,x\\ny,x\\n")
+    >>> from distributed import Client, LocalCluster               # doctest: +SKIP
+    >>> with LocalCluster(n_workers=1, host="127.0.0.1") as c, Client(c) as client:  # doctest: +SKIP
+    ...     dask_tally(d, scheduler=client).tensor.values.tolist()
+    [[1, 0], [1, 0]]
+    """
+    distributed = require("distributed", extra="dask", purpose=_PURPOSE)
+    if isinstance(where, str):
+        where = parse_where(where)
+    client, cluster = _connect(distributed, scheduler)
+    owned = not isinstance(scheduler, distributed.Client)
+    try:
+        if _is_dask_frame(data):
+            return _run_frame(client, data, truth, pred, fold, weight, classes, where, progress)
+        return _run_files(client, data, truth, pred, fold, weight, classes, where,
+                          skip_bad_files, progress, batch_rows)
+    except FoldcorrError:
+        raise
+    except Exception as exc:  # a lost worker, a closed connection, a cancelled task
+        raise EngineError(f"the Dask run failed and produced no tensor: "
+                          f"{type(exc).__name__}: {_first_line(exc)}") from None
+    finally:
+        if owned:
+            client.close()
+        if cluster is not None:
+            cluster.close()
+
+
+def _first_line(exc: BaseException) -> str:
+    lines = str(exc).strip().splitlines()
+    return lines[0] if lines else "no message"
+
+
+def _connect(distributed, scheduler):
+    if isinstance(scheduler, distributed.Client):
+        return scheduler, None
+    if scheduler is not None:
+        try:
+            _probe(str(scheduler))
+            return distributed.Client(scheduler, timeout=CONNECT_TIMEOUT), None
+        except (OSError, TimeoutError) as exc:
+            raise EngineError(f"cannot reach the Dask scheduler at {scheduler!r}: "
+                              f"{_first_line(exc) or type(exc).__name__}") from None
+    cluster = distributed.LocalCluster(n_workers=os.cpu_count() or 1, threads_per_worker=1,
+                                       processes=True, host="127.0.0.1",
+                                       dashboard_address="127.0.0.1:0",
+                                       scheduler_kwargs={"dashboard": False})
+    return distributed.Client(cluster), cluster
+
+
+def _probe(address: str) -> None:
+    """Open and close a TCP connection to a ``tcp://host:port`` scheduler (fails fast)."""
+    import socket
+    from urllib.parse import urlsplit
+
+    if not address.startswith("tcp://"):
+        return
+    parts = urlsplit(address)
+    with socket.create_connection((parts.hostname, parts.port or 8786), timeout=CONNECT_TIMEOUT):
+        pass
+
+
+def _is_dask_frame(data) -> bool:
+    return type(data).__module__.startswith("dask") and hasattr(data, "to_delayed")
+
+
+def _run_files(client, path, truth, pred, fold, weight, classes, where, skip_bad_files,
+               progress, batch_rows) -> StreamResult:
+    import sys
+
+    from distributed import as_completed
+
+    if truth == pred:
+        raise InvalidInputError(f"truth and pred name the same column {truth!r}")
+    files = resolve_paths(path)
+    plan = _plan(path, files, truth, pred, fold, weight, where, skip_bad_files)
+    workers = max(1, len(client.scheduler_info().get("workers", {})))
+    groups = _groups(plan.files, PIECES_PER_WORKER * workers)
+    leaves = client.map(_files_piece, groups, plan=plan, classes=classes,
+                        batch_rows=batch_rows, skip=skip_bad_files, pure=False)
+    show = sys.stderr.isatty() if progress is None else progress
+    if show:
+        bar = _Progress(len(files))
+        bar.advance(len(plan.skipped))
+        root = _tree(client, leaves)          # the reduction starts while we watch
+        try:
+            for future in as_completed(client.map(_summary, leaves, pure=False)):
+                rows, n_files = future.result()  # two numbers, not the partial tally
+                bar.rows(rows)
+                bar.advance(n_files)
+        finally:
+            bar.close()
+    else:
+        root = _tree(client, leaves)
+    done = client.submit(_finish_piece, root, plan=plan, classes=classes,
+                         batch_rows=batch_rows, pure=False)
+    return done.result()
+
+
+class _Piece:
+    """A partial tally and the files it covers (what travels between workers)."""
+
+    def __init__(self, tally, used, skipped):
+        self.tally, self.used, self.skipped = tally, list(used), list(skipped)
+
+    @property
+    def rows(self) -> int:
+        return 0 if self.tally is None else self.tally.rows
+
+
+def _groups(files, n: int) -> list[list]:
+    """Split (file, format) pairs, in order, into at most ``n`` runs of about equal bytes."""
+    n = max(1, min(n, len(files)))
+    sizes = [max(Path(f).stat().st_size, 1) for f, _ in files]
+    total, target = sum(sizes), sum(sizes) / n
+    groups, current, filled = [], [], 0.0
+    for pair, size in zip(files, sizes):
+        current.append(pair)
+        filled += size
+        if filled >= target * (len(groups) + 1) and len(groups) < n - 1:
+            groups.append(current)
+            current = []
+    if current:
+        groups.append(current)
+    assert sum(map(len, groups)) == len(files) and filled == total
+    return groups
+
+
+def _files_piece(files, *, plan, classes, batch_rows, skip) -> _Piece:
+    acc, used, skipped = _tally_files(plan, files, classes, skip, batch_rows)
+    return _Piece(acc, used, skipped)
+
+
+def _summary(piece: _Piece) -> tuple[int, int]:
+    return piece.rows, len(piece.used) + len(piece.skipped)
+
+
+def _merge(*pieces: _Piece) -> _Piece:
+    acc, used, skipped = None, [], []
+    for p in pieces:
+        used += p.used
+        skipped += p.skipped
+        if p.tally is not None:
+            acc = p.tally if acc is None else acc.merge(p.tally)
+    return _Piece(acc, used, skipped)
+
+
+def _tree(client, futures):
+    while len(futures) > 1:
+        futures = [client.submit(_merge, *futures[i:i + FAN_IN], pure=False)
+                   for i in range(0, len(futures), FAN_IN)]
+    return futures[0]
+
+
+def _finish_piece(piece: _Piece, *, plan, classes, batch_rows) -> StreamResult:
+    if piece.tally is None:
+        first = piece.skipped[0]
+        raise InvalidInputError(f"no readable file among {len(piece.skipped)}; first problem: "
+                                f"{first[0]}: {first[1]}")
+    order = {f: i for i, (f, _) in enumerate(plan.files)}
+    used = sorted(piece.used, key=order.__getitem__)
+    skipped = list(plan.skipped) + sorted(piece.skipped)
+    return _finish(plan, piece.tally, used, skipped, classes, batch_rows)
+
+
+def _run_frame(client, frame, truth, pred, fold, weight, classes, where, progress
+               ) -> StreamResult:
+    from foldcorr.streaming import _Plan
+
+    names = list(frame.columns)
+    for name in (truth, pred, weight, None if fold == "auto" else fold):
+        if name is not None and name not in names:
+            raise InvalidInputError(f"column {name!r} not found; the frame has {names!r}")
+    fold_col = ("fold" if "fold" in names else None) if fold == "auto" else fold
+    plan = _Plan(files=(), skipped=(), truth=truth, pred=pred, fold=fold_col, weight=weight,
+                 text=False, where=where, source="dask dataframe", single=False)
+    parts = frame.to_delayed()
+    leaves = client.compute([_delayed_partition(p, i, plan, classes) for i, p in enumerate(parts)])
+    root = _tree(client, leaves)
+    done = client.submit(_finish_frame, root, plan=plan, classes=classes,
+                         n=len(parts), pure=False)
+    return done.result()
+
+
+def _delayed_partition(part, i, plan, classes):
+    from dask import delayed
+
+    return delayed(_partition_piece, pure=False)(part, i, plan, classes)
+
+
+def _partition_piece(df, i: int, plan, classes) -> _Piece:
+    import pyarrow as pa
+
+    table = pa.Table.from_pandas(df[plan.columns()], preserve_index=False)
+    if plan.where is not None:
+        table = table.filter(plan.where.expression(table.schema))
+    acc = plan.new_tally()
+    check = _FileCheck()
+    name = Path(f"partition {i}")
+    try:
+        for batch in table.to_batches():
+            acc.add(batch, check)
+    except InvalidInputError as exc:
+        raise InvalidInputError(f"{name}: {exc}") from None
+    _raise_checks(name, check, acc, classes)
+    return _Piece(acc, [], [])
+
+
+def _finish_frame(piece: _Piece, *, plan, classes, n) -> StreamResult:
+    acc = piece.tally
+
+    def unknown(role, bad_codes, labels):
+        lab = acc.labels()[role]
+        shown = dict(zip(map(int, lab[0]), lab[2]))
+        value = shown.get(int(bad_codes[0]), float("nan")) if len(bad_codes) else float("nan")
+        column = plan.truth if role == "truth" else plan.pred
+        raise InvalidInputError(f"column {column!r}: label {value!r} is not among the classes "
+                                f"{list(labels)!r}")
+
+    attrs = {"truth_column": plan.truth, "pred_column": plan.pred}
+    if plan.fold:
+        attrs["by_columns"] = f"fold={plan.fold}"
+    if plan.weight:
+        attrs["weight_column"] = plan.weight
+    from foldcorr._version import __version__
+
+    attrs.update({"n_rows": int(acc.rows), "foldcorr_version": __version__,
+                  "source": plan.source, "n_partitions": n})
+    if plan.fold:
+        attrs["fold_column"] = plan.fold
+    if plan.where is not None:
+        attrs["where"] = plan.where.text
+    if acc.rows == 0:
+        raise InvalidInputError("the dask dataframe has no rows"
+                                + (" that pass the filter" if plan.where is not None else ""))
+    tensor = acc.tensor(classes=classes, attrs=attrs, unknown=unknown)
+    return StreamResult(tensor=tensor, files=(), skipped=(), rows=int(acc.rows))
+
