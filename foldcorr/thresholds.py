@@ -254,14 +254,13 @@ def _figures(t: xr.DataArray, undefined: str) -> xr.Dataset:
 
 def _argbest(mcc: np.ndarray, allowed: np.ndarray | None = None) -> int:
     """Index of the largest MCC (ties go to the highest threshold); -1 if none."""
+    if mcc.size == 0:
+        return -1
     score = mcc if allowed is None else np.where(allowed, mcc, -np.inf)
-    if score.size == 0:
-        return -1
-    if np.isnan(score).any():
+    if np.isnan(score.max()):  # max propagates NaN: one pass tells whether any is NaN
         score = np.where(np.isnan(score), -np.inf, score)
-    if not np.isfinite(score).any():
-        return -1
-    return score.size - 1 - int(np.argmax(score[::-1]))
+    i = score.size - 1 - int(np.argmax(score[::-1]))
+    return -1 if score[i] == -np.inf else i
 
 
 def _mcc_at(grid: _Grid, tp, fp, total_pos, n, at: float, undefined: str) -> float:

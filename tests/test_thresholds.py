@@ -156,3 +156,11 @@ def test_rich_rendering():
     console = Console(file=io.StringIO(), width=120, color_system=None)
     console.print(sweep([0, 1, 1, 0], [0.1, 0.8, 0.6, 0.3]))
     assert "best MCC" in console.file.getvalue()
+
+
+def test_nan_convention_in_sweeps():
+    # under undefined="nan" the all-positive threshold is NaN and the best threshold skips it
+    r = sweep([0, 1, 1, 0], [0.1, 0.8, 0.6, 0.3], undefined="nan").labels[0]
+    assert np.isnan(r.curve["mcc"].values[0]) and r.best_mcc == 1.0 and r.best_threshold == 0.6
+    flat = sweep([0, 1], [0.5, 0.5], undefined="nan").labels[0]
+    assert np.isnan(flat.best_threshold) and np.isnan(flat.best_mcc)
