@@ -39,6 +39,11 @@ _EXPORTS = {
         "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
     ],
     "foldcorr.streaming": ["tally_dataset", "stream_tensor", "parse_where", "StreamResult"],
+    "foldcorr.multilabel": [
+        "multilabel_tally", "indicators_from_sets", "evaluate_multilabel", "MultilabelEvaluation",
+    ],
+    "foldcorr.thresholds": ["sweep", "threshold_curve", "SweepResult", "LabelSweep"],
+    "foldcorr.shift": ["shift_prevalence", "target_prevalence", "shifted_figures", "ShiftResult"],
     "foldcorr.errors": [
         "FoldcorrError", "InvalidTensorError", "InvalidInputError", "OptionError",
         "MissingDependencyError", "EngineError", "UndefinedMetricWarning",

@@ -112,6 +112,37 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     if "--seed" not in p._option_string_actions:  # demo's --seed seeds its data and this too
         p.add_argument("--seed", type=int, metavar="S",
                        help="seed of the resamples, for reproducible intervals")
+    p.add_argument("--prevalence", metavar="uniform|A=0.2,B=0.8|FILE.csv",
+                   help="also show every pooled figure at this target class prevalence, "
+                        "assuming label shift (see docs/shift.md)")
+
+
+def _column_list(value: str) -> tuple:
+    names = tuple(v.strip() for v in value.split(","))
+    if not all(names):
+        raise argparse.ArgumentTypeError(f"expected comma-separated column names; got {value!r}")
+    return names
+
+
+def _add_multilabel_options(p: argparse.ArgumentParser) -> None:
+    group = p.add_argument_group(
+        "multilabel mode", "chosen only by these flags: indicator columns by name or by prefix, "
+                           "or --sep for delimited label sets in --truth and --pred")
+    group.add_argument("--truth-cols", type=_column_list, metavar="A,B,...",
+                       help="0/1 truth columns, one per label")
+    group.add_argument("--pred-cols", type=_column_list, metavar="A,B,...",
+                       help="0/1 prediction columns, paired in order with --truth-cols")
+    group.add_argument("--truth-prefix", metavar="PREFIX",
+                       help="0/1 truth columns named PREFIX + label")
+    group.add_argument("--pred-prefix", metavar="PREFIX",
+                       help="0/1 prediction columns named PREFIX + label, paired by label")
+    group.add_argument("--sep", metavar="CHAR",
+                       help="--truth and --pred hold label sets joined by CHAR (empty = no label)")
+
+
+def _multilabel_requested(args) -> bool:
+    return any(getattr(args, name, None) is not None
+               for name in ("truth_cols", "pred_cols", "truth_prefix", "pred_prefix", "sep"))
 
 
 def get_parser() -> argparse.ArgumentParser:
@@ -144,6 +175,7 @@ def get_parser() -> argparse.ArgumentParser:
     _add_report_options(score)
     _add_save_options(score)
     _add_analysis_options(score)
+    _add_multilabel_options(score)
     score.set_defaults(func=_run_score)
 
     show = verbs.add_parser("show", help="render a saved evaluation as score showed it",
@@ -203,6 +235,39 @@ def get_parser() -> argparse.ArgumentParser:
     gate.add_argument("--markdown", metavar="FILE",
                       help="also write a Markdown summary (job summary, pull-request comment)")
     gate.set_defaults(func=_run_gate)
+
+    sweep = verbs.add_parser(
+        "sweep", help="MCC at every threshold of a score, with a cross-fold threshold choice",
+        description="Sweep the threshold of a score (higher means positive): MCC, accuracy, F1, "
+                    "recall and precision at every distinct threshold; the best threshold "
+                    "in-sample and, with folds, the threshold chosen on the other folds and "
+                    "scored on each held-out fold.")
+    sweep.add_argument("path", metavar="PATH", help="table of truth and scores")
+    sweep.add_argument("--truth", default="actual", metavar="COL",
+                       help="binary truth column (default: actual)")
+    sweep.add_argument("--score", default="score", metavar="COL",
+                       help="score column (default: score)")
+    sweep.add_argument("--fold", default="auto", metavar="COL",
+                       help="column of fold labels (default: 'fold' when present)")
+    sweep.add_argument("--positive", metavar="VALUE",
+                       help="truth value meaning positive (needed unless truth is 0/1 or "
+                            "true/false)")
+    sweep.add_argument("--at", type=float, metavar="THRESHOLD",
+                       help="also report the MCC at this threshold")
+    sweep.add_argument("--truth-cols", type=_column_list, metavar="A,B,...",
+                       help="multilabel: 0/1 truth columns, one per label")
+    sweep.add_argument("--score-cols", type=_column_list, metavar="A,B,...",
+                       help="multilabel: score columns, paired in order with --truth-cols")
+    sweep.add_argument("--truth-prefix", metavar="PREFIX",
+                       help="multilabel: truth columns named PREFIX + label")
+    sweep.add_argument("--score-prefix", metavar="PREFIX",
+                       help="multilabel: score columns named PREFIX + label, paired by label")
+    sweep.add_argument("--curve", metavar="FILE",
+                       help="write the full curve of every label to FILE (.csv or .parquet)")
+    sweep.add_argument("--plot", metavar="DIR",
+                       help="draw one PNG per label into DIR (needs the extra 'plot')")
+    _add_report_options(sweep)
+    sweep.set_defaults(func=_run_sweep)
 
     demo = verbs.add_parser("demo", help="write the invented plankton demo and score it",
                             description="Write an invented plankton-imaging demo (36 taxa, "
@@ -289,6 +354,9 @@ def _spec(args):
 def _run_score(args) -> int:
     from foldcorr.evaluation import evaluate
     from foldcorr.sources import load_tensor
+
+    if _multilabel_requested(args):
+        return _run_score_multilabel(args)
 
     if args.scheduler and args.engine != "dask":
         from foldcorr.errors import OptionError
@@ -483,11 +551,105 @@ def _run_gate(args) -> int:
         _console().print(_rich(gate_report(result)))
     return EXIT_OK if result.passed else EXIT_FAILED
 
+def _run_score_multilabel(args) -> int:
+    from foldcorr.errors import OptionError
+    from foldcorr.multilabel import evaluate_multilabel
+    from foldcorr.sources_multilabel import MultilabelSpec, load_multilabel
+
+    if args.matrix:
+        raise OptionError("--matrix reads a multiclass counts matrix; it does not combine with "
+                          "the multilabel flags")
+    for flag in ("prevalence", "plot", "where", "scheduler", "save"):
+        if getattr(args, flag, None) is not None:
+            raise OptionError(f"--{flag} applies to multiclass scoring; it does not combine with "
+                              "the multilabel flags")
+    if getattr(args, "engine", "local") != "local" or getattr(args, "skip_bad_files", False):
+        raise OptionError("--engine and --skip-bad-files apply to multiclass scoring; multilabel "
+                          "tables are read whole, in this process")
+    spec = MultilabelSpec(truth_cols=args.truth_cols, pred_cols=args.pred_cols,
+                          truth_prefix=args.truth_prefix, pred_prefix=args.pred_prefix,
+                          truth=args.truth, pred=args.pred, sep=args.sep, fold=args.fold,
+                          weight=args.weight, labels=args.classes)
+    ev = evaluate_multilabel(load_multilabel(args.path, spec), undefined=args.undefined)
+    for step in MULTILABEL_ANALYSES:
+        ev = step(args, ev)
+
+    from foldcorr.report.multilabel import multilabel_dict, multilabel_report
+
+    _emit_report(args, multilabel_report(ev, top=args.top), lambda: multilabel_dict(ev))
+    return EXIT_OK
+
+
+def _run_sweep(args) -> int:
+    from foldcorr.sources_multilabel import ScoreSpec, load_scores
+    from foldcorr.thresholds import sweep
+
+    spec = ScoreSpec(truth=args.truth, score=args.score, truth_cols=args.truth_cols,
+                     score_cols=args.score_cols, truth_prefix=args.truth_prefix,
+                     score_prefix=args.score_prefix, fold=args.fold, positive=args.positive)
+    table = load_scores(args.path, spec)
+    result = sweep(table.truth, table.scores, labels=table.labels, folds=table.folds,
+                   at=args.at, undefined=args.undefined)
+    if args.curve:
+        from foldcorr.report.sweep import write_curve
+
+        write_curve(result, args.curve)
+    if args.plot:
+        from foldcorr.report.sweep_plots import plot_sweep
+
+        paths = plot_sweep(result, args.plot)
+        print(f"{len(paths)} figure(s) written to {args.plot}", file=sys.stderr)
+    from foldcorr.report.sweep import sweep_dict, sweep_report
+
+    _emit_report(args, sweep_report(result, top=args.top, source=table.source),
+                 lambda: sweep_dict(result, source=table.source))
+    return EXIT_OK
+
+
+def _shift_step(args, ev):
+    value = getattr(args, "prevalence", None)
+    if value is None:
+        return ev
+    from foldcorr.shift import shifted_figures
+    from foldcorr.sources_multilabel import read_prevalence
+
+    return ev.with_extra("shifted", shifted_figures(ev.tensor, read_prevalence(value),
+                                                    undefined=ev.undefined))
+
 
 #: Steps that attach analysis sections to an evaluation, from the parsed
 #: arguments: each is ``(args, evaluation) -> evaluation`` and returns the
 #: evaluation unchanged when its options are not set.
-ANALYSES: list = []
+ANALYSES: list = [_shift_step]
+
+def _multilabel_intervals_step(args, ev):
+    """Bootstrap intervals per label and of micro/macro/weighted MCC when ``--ci`` is given."""
+    level = getattr(args, "ci", None)
+    resamples = getattr(args, "resamples", None)
+    method = getattr(args, "ci_method", None)
+    if level is None:
+        for flag, value in (("--resamples", resamples), ("--ci-method", method)):
+            if value is not None:
+                from foldcorr.errors import OptionError
+
+                raise OptionError(f"`{flag}` needs `--ci LEVEL` (e.g. --ci 0.95); got {flag} "
+                                  f"{value!r} without it")
+        return ev
+    from foldcorr.multilabel import multilabel_intervals
+    from foldcorr.uncertainty import check_level, check_resamples
+
+    check_level(level, name="--ci")
+    if resamples is not None:
+        check_resamples(resamples, name="--resamples")
+    result = multilabel_intervals(ev.tensor, level=level,
+                                  n_resamples=2000 if resamples is None else resamples,
+                                  method=method or "percentile", seed=getattr(args, "seed", None),
+                                  undefined=ev.undefined)
+    return ev.with_extra("intervals", result)
+
+
+#: The same for multilabel evaluations (``score`` with the multilabel flags).
+MULTILABEL_ANALYSES: list = [_multilabel_intervals_step]
 
 
 def _repair_step(args, ev):
@@ -500,6 +662,8 @@ def _repair_step(args, ev):
 
 
 ANALYSES.append(_repair_step)
+
+
 def _uncertainty_step(args, ev):
     """Attach bootstrap intervals and fold statistics when ``--ci`` is given."""
     level = getattr(args, "ci", None)
@@ -605,6 +769,22 @@ def _console():
     terminal = sys.stdout.isatty()
     return Console(file=sys.stdout, width=None if terminal else PLAIN_WIDTH,
                    no_color="NO_COLOR" in os.environ or None, highlight=False)
+
+
+def _emit_report(args, report, make_json) -> None:
+    """Write a Report (text, Markdown) or its JSON document to --output or stdout."""
+    if args.output or args.format != "text":
+        from foldcorr.report.documents import render_report
+
+        text = render_report(report, make_json, args.format)
+        if args.output:
+            from foldcorr._files import write_text
+
+            write_text(args.output, text)
+        else:
+            sys.stdout.write(text)
+        return
+    _console().print(_rich(report))
 
 
 def _emit(args, ev) -> None:

@@ -30,6 +30,7 @@ __all__ = ["SECTIONS", "hooks"]
 SECTIONS: dict[str, str] = {
     "uncertainty": "foldcorr.report.uncertainty",
     "repair": "foldcorr.report.repair",
+    "shifted": "foldcorr.report.shift",
 }
 
 

@@ -1,0 +1,289 @@
+r"""Figures at a deployment prevalence, under the label-shift assumption.
+
+Under label shift the class-conditional behaviour of the classifier,
+:math:`P(\text{predicted} = j \mid \text{actual} = i)`, is the same in
+deployment as in evaluation; only the class prevalence changes. Rescaling row
+:math:`i` of the confusion matrix to a target prevalence :math:`\pi_i` then
+gives the matrix expected in deployment, and every figure can be recomputed
+from it. Nothing here reads files or prints.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from collections.abc import Mapping
+from dataclasses import dataclass
+
+import numpy as np
+import xarray as xr
+
+from foldcorr import metrics as m
+from foldcorr.errors import InvalidInputError, UndefinedMetricWarning, check_choice
+from foldcorr.tensor import ACTUAL, CLASS, FOLD, PREDICTED, validate_tensor
+
+__all__ = ["shift_prevalence", "target_prevalence", "ShiftResult", "shifted_figures"]
+
+#: Tolerance on the sum of a target prevalence.
+SUM_TOLERANCE = 1e-6
+
+
+def target_prevalence(t, prevalence) -> xr.DataArray:
+    """Normalise a target prevalence against the classes of a tensor.
+
+    Parameters
+    ----------
+    t : xarray.DataArray
+        Confusion tensor whose class coordinate the target refers to.
+    prevalence : "uniform", mapping of class to float, or array_like
+        ``"uniform"`` gives every class 1/K; a mapping names classes (by
+        label, or by the label's text, so ``{"3": 0.5}`` finds class ``3``);
+        classes it leaves out get 0; an array gives one value per class in
+        tensor order.
+
+    Returns
+    -------
+    xarray.DataArray
+        Dim ``class``, float64, summing to 1.
+
+    Raises
+    ------
+    InvalidInputError
+        On an unknown class name, a negative or non-finite value, a sum other
+        than 1 (tolerance 1e-6), or an array of the wrong length.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> t = confusion_tensor([[8, 2], [1, 9]], ["cod", "hake"])
+    >>> target_prevalence(t, {"cod": 0.9, "hake": 0.1}).values.tolist()
+    [0.9, 0.1]
+    >>> target_prevalence(t, "uniform").values.tolist()
+    [0.5, 0.5]
+    """
+    t = validate_tensor(t)
+    classes = t.coords[ACTUAL].values.tolist()
+    k = len(classes)
+    if isinstance(prevalence, str):
+        if prevalence != "uniform":
+            raise InvalidInputError(
+                f"`prevalence` must be 'uniform', a mapping of class to share, or one share "
+                f"per class; got {prevalence!r}")
+        values = np.full(k, 1.0 / k)
+    elif isinstance(prevalence, Mapping):
+        by_text = {str(c): i for i, c in enumerate(classes)}
+        values = np.zeros(k)
+        for name, share in prevalence.items():
+            i = classes.index(name) if name in classes else by_text.get(str(name))
+            if i is None:
+                shown = ", ".join(repr(c) for c in classes[:10]) + (", ..." if k > 10 else "")
+                raise InvalidInputError(
+                    f"`prevalence` names the class {name!r}, which is not among the classes "
+                    f"[{shown}]")
+            values[i] = _share(name, share)
+    else:
+        values = np.asarray(prevalence, dtype=np.float64).ravel()
+        if values.size != k:
+            raise InvalidInputError(
+                f"`prevalence` has {values.size} values for {k} classes {classes!r}")
+        for c, v in zip(classes, values):
+            _share(c, v)
+    total = float(values.sum())
+    if abs(total - 1.0) > SUM_TOLERANCE:
+        raise InvalidInputError(
+            f"`prevalence` must sum to 1; got {total!r} over "
+            f"{list(zip(classes, values.tolist()))!r}")
+    return xr.DataArray(values / total, dims=CLASS, coords={CLASS: classes}, name="prevalence")
+
+
+def _share(name, value) -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InvalidInputError(
+            f"`prevalence` of class {name!r} must be a number; got {value!r}") from None
+    if not math.isfinite(v) or v < 0:
+        raise InvalidInputError(
+            f"`prevalence` of class {name!r} must be a finite share >= 0; got {value!r}")
+    return v
+
+
+def shift_prevalence(t, prevalence) -> xr.DataArray:
+    r"""Reweight the rows of a confusion tensor to a target class prevalence.
+
+    Parameters
+    ----------
+    t : xarray.DataArray
+        Confusion tensor, dims ``(..., "actual", "predicted")``; every leading
+        slice (e.g. each fold) is reweighted on its own.
+    prevalence : "uniform", mapping or array_like
+        Target prevalence (see :func:`target_prevalence`).
+
+    Returns
+    -------
+    xarray.DataArray
+        Float64 tensor with the same total per slice and row sums
+        :math:`\pi_i s`.
+
+    Raises
+    ------
+    InvalidInputError
+        On a bad target, or when a class with a positive target share has no
+        samples in a slice (its row cannot be rescaled).
+
+    Notes
+    -----
+    With :math:`s` the slice total and :math:`t_i` the row sums,
+
+    .. math:: C'_{ij} = C_{ij}\, \frac{\pi_i\, s}{t_i}
+
+    This keeps every row's distribution over predictions, the label-shift
+    assumption [1]_: the classifier behaves on each class as it did in
+    evaluation. It does not hold when the classes themselves change (new
+    sub-populations, a different instrument or season), only their mix.
+
+    References
+    ----------
+    .. [1] M. Saerens, P. Latinne, C. Decaestecker, "Adjusting the outputs of a
+       classifier to new a priori probabilities: a simple procedure",
+       Neural Computation 14 (2002) 21-41.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> t = confusion_tensor([[8, 2], [1, 9]], ["cod", "hake"])
+    >>> shift_prevalence(t, {"cod": 0.75, "hake": 0.25}).values.tolist()
+    [[12.0, 3.0], [0.5, 4.5]]
+    """
+    t = validate_tensor(t)
+    pi = target_prevalence(t, prevalence).values
+    cells = t.values.astype(np.float64)
+    rows = cells.sum(axis=-1)
+    total = rows.sum(axis=-1, keepdims=True)
+    missing = (rows == 0) & (pi > 0)
+    if missing.any():
+        index = np.argwhere(missing)[0]
+        cls = t.coords[ACTUAL].values.tolist()[index[-1]]
+        lead = [d for d in t.dims if d not in (ACTUAL, PREDICTED)]
+        where = "".join(f" in {d}={t.coords[d].values.tolist()[i]!r}" if d in t.coords
+                        else f" in {d} {i}"
+                        for d, i in zip(lead, index[:-1]))
+        raise InvalidInputError(
+            f"class {cls!r} has no samples{where}, so it cannot be rescaled to the target "
+            f"share {float(pi[index[-1]])!r}; give it share 0 or pool the folds first")
+    with np.errstate(divide="ignore", invalid="ignore"):
+        scale = np.where(rows > 0, pi * total / np.where(rows > 0, rows, 1.0), 0.0)
+    out = t.copy(data=cells * scale[..., None])
+    out.attrs["prevalence_shift"] = ",".join(f"{c}={p:.6g}" for c, p in
+                                             zip(t.coords[ACTUAL].values.tolist(), pi))
+    return out
+
+
+#: Pooled figures recomputed at the target, with the metric that computes each.
+SHIFTED_FIGURES = {
+    "rk": m.rk,
+    "accuracy": m.accuracy,
+    "balanced_accuracy": m.balanced_accuracy,
+    "kappa": m.cohen_kappa,
+    "macro_f1": m.macro_f1,
+    "macro_mcc": m.macro_mcc,
+}
+
+
+@dataclass(frozen=True)
+class ShiftResult:
+    """Figures at a target prevalence, beside the observed prevalence.
+
+    Attributes
+    ----------
+    prevalence : xarray.DataArray
+        Target prevalence, dim ``class``.
+    observed : xarray.DataArray
+        Observed prevalence (pooled over folds), dim ``class``.
+    tensor : xarray.DataArray
+        The pooled tensor reweighted to the target (float64).
+    pooled : xarray.Dataset
+        Scalars ``rk``, ``accuracy``, ``balanced_accuracy``, ``kappa``,
+        ``macro_f1`` and ``macro_mcc`` at the target.
+    per_class : xarray.Dataset
+        Dim ``class``: ``mcc``, ``recall``, ``precision`` and ``f1`` at the
+        target (recall is unchanged by construction).
+    warnings : tuple of str
+        Undefined values at the target, prefixed ``at target prevalence``.
+    """
+
+    prevalence: xr.DataArray
+    observed: xr.DataArray
+    tensor: xr.DataArray
+    pooled: xr.Dataset
+    per_class: xr.Dataset
+    warnings: tuple[str, ...]
+
+    @property
+    def rk(self) -> float:
+        """R_K at the target prevalence."""
+        return float(self.pooled["rk"])
+
+
+def shifted_figures(t, prevalence, *, undefined: str = "zero") -> ShiftResult:
+    """Recompute the pooled and per-class figures at a target prevalence.
+
+    Parameters
+    ----------
+    t : xarray.DataArray
+        Confusion tensor, dims ``([fold,] actual, predicted)``.
+    prevalence : "uniform", mapping or array_like
+        Target prevalence (see :func:`target_prevalence`).
+    undefined : {"zero", "nan"}, default "zero"
+        Convention for undefined values.
+
+    Returns
+    -------
+    ShiftResult
+
+    Raises
+    ------
+    InvalidInputError
+        As :func:`shift_prevalence`.
+
+    Notes
+    -----
+    Folds are pooled before the reweighting, so a class missing from one
+    fold does not block the shift; per-fold figures are not recomputed.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> t = confusion_tensor([[80, 20], [1, 9]], ["cod", "hake"])
+    >>> r = shifted_figures(t, "uniform")
+    >>> round(r.rk, 4), r.observed.round(3).values.tolist()
+    (0.7035, [0.909, 0.091])
+    """
+    check_choice("undefined", undefined, m.UNDEFINED_CHOICES)
+    t = validate_tensor(t)
+    pooled_t = t.sum(FOLD, keep_attrs=True) if FOLD in t.dims else t
+    rows = pooled_t.sum(PREDICTED).rename({ACTUAL: CLASS}).astype(np.float64)
+    observed = (rows / float(rows.sum())).rename("observed_prevalence")
+    shifted = shift_prevalence(pooled_t, prevalence)
+    notes: list[str] = []
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", UndefinedMetricWarning)
+        pooled = xr.Dataset({k: fn(shifted, undefined=undefined)
+                             for k, fn in SHIFTED_FIGURES.items()})
+        per_class = xr.Dataset({
+            "mcc": m.ovr_mcc(shifted, undefined=undefined),
+            "recall": m.recall(shifted, undefined=undefined),
+            "precision": m.precision(shifted, undefined=undefined),
+            "f1": m.f1(shifted, undefined=undefined),
+        })
+    for w in caught:
+        if issubclass(w.category, UndefinedMetricWarning):
+            notes.append(f"at target prevalence: {w.message}")
+    return ShiftResult(
+        prevalence=target_prevalence(pooled_t, prevalence),
+        observed=observed,
+        tensor=shifted,
+        pooled=pooled,
+        per_class=per_class,
+        warnings=tuple(dict.fromkeys(notes)),
+    )
