@@ -181,3 +181,16 @@ def test_plots_need_the_plot_extra(tmp_path, monkeypatch):
     page = _page(tmp_path)
     assert "The plots need matplotlib, from the plot extra" in page
     assert "<svg" not in page
+
+
+def test_every_report_renders_as_html(tmp_path):
+    # Reports other than score (multilabel, sweep) go through the same renderer.
+    path = tmp_path / "tags.csv"
+    path.write_text("gull,tern,p_gull,p_tern\n1,0,1,0\n0,1,0,1\n1,1,1,0\n0,0,0,0\n1,0,0,0\n")
+    out = tmp_path / "tags.html"
+    assert main(["score", str(path), "--truth-cols", "gull,tern", "--pred-cols",
+                 "p_gull,p_tern", "--format", "html", "--output", str(out)]) == 0
+    parser = Resources()
+    parser.feed(out.read_text())
+    assert parser.external == [] and parser.tags.count("table") >= 1
+    assert "gull" in " ".join(parser.text)
