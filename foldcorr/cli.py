@@ -90,7 +90,7 @@ def _add_source_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--engine", choices=("local", "dask"), default="local",
                    help="local: stream in this process (default); dask: tally on a Dask cluster")
     p.add_argument("--scheduler", metavar="ADDRESS",
-                   help="Dask scheduler to use, e.g. tcp://10.0.0.5:8786 (default: a local "
+                   help="Dask scheduler to use, e.g. tcp://scheduler.example:8786 (default: a local "
                         "cluster on 127.0.0.1, one worker per core)")
     p.add_argument("--skip-bad-files", action="store_true",
                    help="skip unreadable files of a dataset and report them, instead of stopping")

@@ -1332,7 +1332,7 @@ def tally_dataset(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
         on the workers of a Dask cluster and sums the partial tallies in a
         tree (see :func:`foldcorr.distributed.dask_tally`).
     scheduler : str, optional
-        Address of a running Dask scheduler, e.g. ``"tcp://10.0.0.5:8786"``.
+        Address of a running Dask scheduler, e.g. ``"tcp://scheduler.example:8786"``.
         Without it a ``distributed.LocalCluster`` on 127.0.0.1 with one
         worker per core is started for the run and shut down after.
 
