@@ -32,6 +32,9 @@ _EXPORTS = {
     "foldcorr.compare": ["joint_tally", "model_tensors", "compare_models", "Comparison"],
     "foldcorr.crossval": ["cross_tally", "rk_score", "rk_scorer"],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
+    "foldcorr.samples": ["Samples"],
+    "foldcorr.gate": ["GateRules", "GateResult", "check_gate"],
+    "foldcorr.saved": ["SavedEvaluation", "save_evaluation", "load_saved"],
     "foldcorr.report.plots": [
         "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
     ],

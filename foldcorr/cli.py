@@ -16,7 +16,8 @@ from foldcorr._version import __version__
 __all__ = ["main", "get_parser", "run"]
 
 EXIT_OK, EXIT_FAILED, EXIT_USAGE = 0, 1, 2
-FORMATS = ("text", "json", "markdown")
+FORMATS = ("text", "json", "markdown", "html")
+GATE_FORMATS = ("text", "json", "markdown")
 
 
 def _top(value: str):
@@ -28,6 +29,18 @@ def _top(value: str):
         number = -1
     if number < 1:
         raise argparse.ArgumentTypeError(f"expected a positive whole number or 'all'; got {value!r}")
+    return number
+
+
+def _number(value: str) -> float:
+    import math
+
+    try:
+        number = float(value)
+    except ValueError:
+        number = math.nan
+    if not math.isfinite(number):
+        raise argparse.ArgumentTypeError(f"expected a number; got {value!r}")
     return number
 
 
@@ -59,6 +72,15 @@ def _add_table_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--weight", metavar="COL", help="column of sample weights")
     p.add_argument("--classes", type=_class_list, metavar="A,B,...",
                    help="fixed class order; labels outside it are an error")
+
+
+def _add_save_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--save", metavar="FILE.nc",
+                   help="also save the confusion tensor with provenance as NetCDF-4 "
+                        "(read back by show, score and gate)")
+    p.add_argument("--id", metavar="COL", dest="id_column",
+                   help="with --save: column of unique sample ids; per-sample labels are "
+                        "saved too, so that a later gate can pair the samples")
 
 
 def _add_source_options(p: argparse.ArgumentParser) -> None:
@@ -151,9 +173,68 @@ def get_parser() -> argparse.ArgumentParser:
                        help="PATH is a counts matrix: actual labels down, predicted across")
     _add_source_options(score)
     _add_report_options(score)
+    _add_save_options(score)
     _add_analysis_options(score)
     _add_multilabel_options(score)
     score.set_defaults(func=_run_score)
+
+    show = verbs.add_parser("show", help="render a saved evaluation as score showed it",
+                            description="Render a saved evaluation (.nc, written by --save) "
+                                        "with the options it was saved with.")
+    show.add_argument("path", metavar="FILE.nc", help="saved evaluation")
+    show.add_argument("--format", choices=FORMATS, default="text",
+                      help="output format (default: text)")
+    show.add_argument("--output", metavar="FILE",
+                      help="write the report to FILE (replaced whole, never half-written)")
+    show.add_argument("--top", type=_top, default=argparse.SUPPRESS, metavar="N|all",
+                      help="per-class rows shown (default: as saved)")
+    show.set_defaults(func=_run_show)
+
+    gate = verbs.add_parser(
+        "gate", help="fail (exit 1) when an evaluation breaks a rule",
+        description="Check a prediction table or saved evaluation against rules; exit 0 "
+                    "when all hold, 1 when any fails, 2 on bad input.")
+    gate.add_argument("path", metavar="SOURCE", help="prediction table, counts matrix or .nc")
+    _add_table_options(gate)
+    gate.add_argument("--matrix", action="store_true", help="SOURCE is a counts matrix CSV")
+    gate.add_argument("--id", metavar="COL", dest="id_column",
+                      help="column of unique sample ids in prediction tables (for a paired "
+                           "baseline comparison)")
+    rules = gate.add_argument_group("rules")
+    rules.add_argument("--min-rk", type=_number, metavar="X", help="pooled R_K must be >= X")
+    rules.add_argument("--min-fold-rk", type=_number, metavar="X",
+                       help="R_K of every fold must be >= X")
+    rules.add_argument("--min-class-mcc", type=_number, metavar="X",
+                       help="one-vs-rest MCC of every class must be >= X")
+    rules.add_argument("--class-floors", metavar="FILE",
+                       help="CSV class,floor: each listed class's MCC must be >= its floor")
+    rules.add_argument("--max-marginal-mismatch", type=_number, metavar="X",
+                       help="marginal mismatch term must be <= X")
+    rules.add_argument("--baseline", metavar="FILE",
+                       help="baseline to compare with (a saved .nc, or a prediction table)")
+    rules.add_argument("--max-drop", type=_number, metavar="D",
+                       help="pooled R_K may fall below the baseline's by at most D "
+                            "(default with --baseline: 0)")
+    rules.add_argument("--allow-new-classes", action="store_true",
+                       help="compare with a baseline of other classes on the shared ones")
+    rules.add_argument("--confidence", type=_number, metavar="LEVEL",
+                       help="with --baseline: a drop counts as a regression only when the whole "
+                            "bootstrap interval of the drop at this level (e.g. 0.95) lies "
+                            "above D; paired when both sides carry the same sample ids")
+    gate.add_argument("--resamples", type=int, default=2000, metavar="B",
+                      help="bootstrap resamples for --confidence (default: 2000)")
+    gate.add_argument("--seed", type=int, default=None, metavar="S",
+                      help="seed of the bootstrap for --confidence")
+    gate.add_argument("--undefined", choices=("zero", "nan"), default=None,
+                      help="value of 0/0 metrics (default: as saved, else zero); "
+                           "an undefined figure fails its rule")
+    gate.add_argument("--format", choices=GATE_FORMATS, default="text",
+                      help="output format (default: text)")
+    gate.add_argument("--output", metavar="FILE", help="write the result to FILE")
+    gate.add_argument("--junit", metavar="FILE", help="also write a JUnit XML report")
+    gate.add_argument("--markdown", metavar="FILE",
+                      help="also write a Markdown summary (job summary, pull-request comment)")
+    gate.set_defaults(func=_run_gate)
 
     sweep = verbs.add_parser(
         "sweep", help="MCC at every threshold of a score, with a cross-fold threshold choice",
@@ -198,6 +279,7 @@ def get_parser() -> argparse.ArgumentParser:
     demo.add_argument("--seed", type=int, default=20261201, metavar="S",
                       help="seed of the generator (default gives the bundled demo)")
     _add_report_options(demo)
+    _add_save_options(demo)
     _add_analysis_options(demo)
     demo.set_defaults(func=_run_demo)
 
@@ -284,10 +366,12 @@ def _run_score(args) -> int:
         from foldcorr.errors import OptionError
 
         raise OptionError("`--where` and `--engine` apply to prediction tables, not to --matrix")
+    _check_targets(args.output, getattr(args, "save", None))
     tensor = load_tensor(args.path, _spec(args), matrix=args.matrix, where=args.where,
                          skip_bad_files=args.skip_bad_files,
                          progress=False if args.quiet else None,
                          engine=args.engine, scheduler=args.scheduler)
+    _save(args, tensor, args.path)
     ev = evaluate(tensor, undefined=args.undefined)
     if tensor.attrs.get("skipped_files"):
         from foldcorr.streaming import SkippedFiles
@@ -300,6 +384,173 @@ def _run_score(args) -> int:
     return EXIT_OK
 
 
+def _check_targets(*paths) -> None:
+    """Refuse unwritable output paths before any work or any output is done."""
+    from pathlib import Path
+
+    from foldcorr.errors import InvalidInputError
+
+    for path in paths:
+        if not path:
+            continue
+        target = Path(path)
+        folder = target.parent if str(target.parent) else Path(".")
+        if target.is_dir():
+            raise InvalidInputError(f"cannot write {path!r}: it is a folder")
+        if not folder.is_dir():
+            raise InvalidInputError(f"cannot write {path!r}: folder {str(folder)!r} does not exist")
+        if not os.access(folder, os.W_OK | os.X_OK) or (target.exists()
+                                                        and not os.access(target, os.W_OK)):
+            raise InvalidInputError(f"cannot write {path!r}: permission denied")
+
+
+def _analysis_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(add_help=False)
+    _add_analysis_options(p)
+    return p
+
+
+def _report_options(args) -> dict:
+    """The options that shaped a report, to store with a saved evaluation."""
+    names = [a.dest for a in _analysis_parser()._actions if a.dest != "help"]
+    options = {"undefined": args.undefined, "top": args.top}
+    options.update({name: getattr(args, name, None) for name in names})
+    return options
+
+
+def _analysis_args(options: dict):
+    """A namespace for :data:`ANALYSES` from stored options (defaults for the rest)."""
+    ns = _analysis_parser().parse_args([])
+    for name, value in options.items():
+        setattr(ns, name, value)
+    return ns
+
+
+def _save(args, tensor, source) -> None:
+    """Write ``--save`` (with per-sample labels under ``--id``)."""
+    from pathlib import Path
+
+    from foldcorr.errors import OptionError
+
+    target = getattr(args, "save", None)
+    id_column = getattr(args, "id_column", None)
+    if not target:
+        if id_column:
+            raise OptionError("`--id` stores sample ids with --save; give --save FILE.nc too")
+        return
+    from foldcorr.saved import (file_sha256, is_saved_path, load_saved, read_samples,
+                                save_evaluation)
+
+    samples = None
+    provenance = {"source": Path(source).name}
+    if is_saved_path(source):
+        saved = load_saved(source)
+        samples = saved.samples
+        provenance.update({k: v for k, v in saved.provenance.items()
+                           if k in ("source", "source_sha256")})
+    else:
+        if Path(source).is_file():  # a folder or glob of tables has no single hash
+            provenance["source_sha256"] = file_sha256(source)
+        if id_column:
+            if getattr(args, "where", None):
+                raise OptionError("`--id` cannot be combined with `--where`: the saved samples "
+                                  "would not be those counted")
+            if not Path(source).is_file():
+                raise OptionError(f"`--id` needs one prediction table file; got {source!r}")
+            if getattr(args, "matrix", False):
+                raise OptionError("`--id` needs a prediction table; a counts matrix has no "
+                                  "samples")
+            if getattr(args, "weight", None):
+                raise OptionError("`--id` cannot be combined with `--weight`: a paired "
+                                  "comparison counts each sample once")
+            samples = read_samples(source, tensor, id_column)
+    options = _report_options(args)
+    seed = options.get("seed", getattr(args, "seed", None))
+    if seed is not None:
+        provenance["seed"] = seed
+    save_evaluation(target, tensor, samples=samples, options=options, provenance=provenance)
+    print(f"evaluation saved to {target}", file=sys.stderr)
+
+
+def _run_show(args) -> int:
+    from foldcorr.evaluation import evaluate
+    from foldcorr.saved import load_saved
+
+    _check_targets(args.output)
+    saved = load_saved(args.path)
+    options = dict(saved.options)
+    undefined = options.get("undefined", "zero")
+    ev = _analyse(_analysis_args(options), evaluate(saved.tensor, undefined=undefined))
+    top = getattr(args, "top", options.get("top", 20))
+    _emit(argparse.Namespace(output=args.output, format=args.format, top=top), ev)
+    return EXIT_OK
+
+
+def _gate_source(path, args, undefined):
+    """Evaluation and samples (or None) of a gate source or baseline."""
+    from foldcorr.evaluation import evaluate
+    from foldcorr.saved import is_saved_path, load_saved, read_samples
+    from foldcorr.sources import load_tensor
+
+    if is_saved_path(path):
+        saved = load_saved(path)
+        chosen = undefined or saved.options.get("undefined", "zero")
+        return evaluate(saved.tensor, undefined=chosen), saved.samples
+    tensor = load_tensor(path, _spec(args), matrix=args.matrix)
+    samples = None
+    if args.id_column and not args.matrix:
+        samples = read_samples(path, tensor, args.id_column)
+    return evaluate(tensor, undefined=undefined or "zero"), samples
+
+
+def _run_gate(args) -> int:
+    from foldcorr.errors import OptionError
+    from foldcorr.floors import read_class_floors
+    from foldcorr.gate import GateRules, check_gate
+    from foldcorr.report.gate import gate_report, junit_xml, render_gate
+
+    _check_targets(args.output, args.junit, args.markdown)
+    if args.max_drop is not None and not args.baseline:
+        raise OptionError("`--max-drop` compares with a baseline; give --baseline FILE too")
+    if args.confidence is not None and not args.baseline:
+        raise OptionError("`--confidence` applies to a baseline; give --baseline FILE too")
+    if args.confidence is not None:
+        from foldcorr.uncertainty import check_level, check_resamples
+
+        check_level(args.confidence, name="--confidence")
+        check_resamples(args.resamples, name="--resamples")
+    if args.allow_new_classes and not args.baseline:
+        raise OptionError("`--allow-new-classes` applies to a baseline; give --baseline FILE too")
+    ev, samples = _gate_source(args.path, args, args.undefined)
+    baseline = base_samples = None
+    if args.baseline:
+        baseline, base_samples = _gate_source(args.baseline, args, args.undefined or ev.undefined)
+    floors = read_class_floors(args.class_floors, ev.classes) if args.class_floors else None
+    rules = GateRules(
+        min_rk=args.min_rk, min_fold_rk=args.min_fold_rk, min_class_mcc=args.min_class_mcc,
+        class_floors=floors, max_marginal_mismatch=args.max_marginal_mismatch,
+        max_drop=(args.max_drop if args.max_drop is not None else 0.0) if args.baseline else None,
+        allow_new_classes=args.allow_new_classes, confidence=args.confidence,
+        n_resamples=args.resamples, seed=args.seed,
+    )
+    result = check_gate(ev, rules, baseline=baseline, samples=samples,
+                        baseline_samples=base_samples)
+    from foldcorr._files import write_text
+
+    if args.junit:
+        write_text(args.junit, junit_xml(result))
+    if args.markdown:
+        write_text(args.markdown, render_gate(result, "markdown"))
+    if args.output or args.format != "text":
+        text = render_gate(result, args.format)
+        if args.output:
+            write_text(args.output, text)
+        else:
+            sys.stdout.write(text)
+    else:
+        _console().print(_rich(gate_report(result)))
+    return EXIT_OK if result.passed else EXIT_FAILED
+
 def _run_score_multilabel(args) -> int:
     from foldcorr.errors import OptionError
     from foldcorr.multilabel import evaluate_multilabel
@@ -308,7 +559,7 @@ def _run_score_multilabel(args) -> int:
     if args.matrix:
         raise OptionError("--matrix reads a multiclass counts matrix; it does not combine with "
                           "the multilabel flags")
-    for flag in ("prevalence", "plot", "where", "scheduler"):
+    for flag in ("prevalence", "plot", "where", "scheduler", "save"):
         if getattr(args, flag, None) is not None:
             raise OptionError(f"--{flag} applies to multiclass scoring; it does not combine with "
                               "the multilabel flags")
@@ -460,7 +711,9 @@ def _run_demo(args) -> int:
     folder = args.out or tempfile.mkdtemp(prefix="foldcorr-demo-")
     path = write_demo(folder, n=args.samples, seed=args.seed)
     print(f"demo data written to {path}", file=sys.stderr)
+    _check_targets(args.output, args.save)
     tensor = load_tensor(path, TableSpec())
+    _save(args, tensor, path)
     _emit(args, _analyse(args, evaluate(tensor, undefined=args.undefined)))
     return EXIT_OK
 
@@ -552,14 +805,9 @@ def _emit(args, ev) -> None:
 
         sys.stdout.write(render_score(ev, args.format, top=args.top))
         return
-    from rich.console import Console
+    from foldcorr.report.text import render_rich
 
-    from foldcorr.report.text import PLAIN_WIDTH, render_rich
-
-    terminal = sys.stdout.isatty()
-    console = Console(file=sys.stdout, width=None if terminal else PLAIN_WIDTH,
-                      no_color="NO_COLOR" in os.environ or None, highlight=False)
-    console.print(render_rich(ev, top=args.top))
+    _console().print(render_rich(ev, top=args.top))
 
 
 def run() -> None:

@@ -139,8 +139,9 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
     Parameters
     ----------
     path : str or path-like
-        Prediction table, a folder or a glob of them, or a counts matrix CSV
-        when ``matrix`` is true.
+        Prediction table, a folder or a glob of them, a counts matrix CSV
+        when ``matrix`` is true, or a saved evaluation (``.nc``, see
+        :mod:`foldcorr.saved`).
     spec : TableSpec
         Column roles (ignored for a matrix, except ``classes``).
     matrix : bool, default False
@@ -175,6 +176,10 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
     >>> load_tensor(p).dims
     ('fold', 'actual', 'predicted')
     """
+    from foldcorr.saved import is_saved_path, load_saved
+
+    if is_saved_path(path):  # a saved evaluation (NetCDF) stands wherever a table can
+        return load_saved(path).tensor
     if matrix:
         t = read_matrix(path)
         if spec.classes is not None:

@@ -12,8 +12,9 @@ ORDER = ["errors", "tensor", "metrics", "analysis", "evaluation", "sources", "re
 LAYER = {"errors": "errors", "_files": "errors", "_version": "errors", "tensor": "tensor",
          "testing": "tensor", "metrics": "metrics", "evaluation": "evaluation",
          "sources": "sources", "demo": "sources", "paired": "sources", "streaming": "sources",
-         "distributed": "sources", "saved": "sources", "report": "report", "cli": "cli",
-         "__main__": "cli", "__init__": "cli"}
+         "distributed": "sources", "saved": "sources", "floors": "sources", "report": "report",
+         "cli": "cli", "__main__": "cli", "__init__": "cli", "samples": "tensor",
+         "gate": "evaluation"}
 
 
 def layer_of(module: str) -> str:

@@ -1,4 +1,4 @@
-"""The report layer: an evaluation in, text out (terminal, plain, Markdown, JSON).
+"""The report layer: an evaluation in, text out (terminal, plain, Markdown, JSON, HTML).
 
 Renderers take result objects and never compute a metric.
 """
@@ -7,7 +7,7 @@ from __future__ import annotations
 
 __all__ = ["FORMATS", "render_score"]
 
-FORMATS = ("text", "json", "markdown")
+FORMATS = ("text", "json", "markdown", "html")
 
 
 def render_score(ev, fmt: str, *, top: int | None = 20) -> str:
@@ -34,6 +34,11 @@ def render_score(ev, fmt: str, *, top: int | None = 20) -> str:
         from foldcorr.report.markdown import render_markdown
 
         return render_markdown(report)
+    if fmt == "html":
+        from foldcorr.report.html import render_html, svg_figures
+
+        figures, note = svg_figures(ev)
+        return render_html(report, figures=figures, plots_note=note)
     from foldcorr.report.text import render_text
 
     return render_text(report)

@@ -31,6 +31,10 @@ def render_report(report: Report, make_json, fmt: str) -> str:
         from foldcorr.report.markdown import render_markdown
 
         return render_markdown(report)
+    if fmt == "html":
+        from foldcorr.report.html import render_html
+
+        return render_html(report)
     from foldcorr.report.text import render_text
 
     return render_text(report)

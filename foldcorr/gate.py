@@ -1,0 +1,469 @@
+r"""The CI gate: rules over an evaluation, each with its value, threshold and verdict.
+
+A gate holds when every rule given holds. The rules:
+
+``min_rk``
+    pooled R_K >= X.
+``min_fold_rk``
+    R_K of every fold >= X (the value shown is the lowest fold's).
+``min_class_mcc``
+    one-vs-rest MCC of every class >= X (the value shown is the lowest).
+``class_floors``
+    one-vs-rest MCC of each listed class >= its own floor; the value shown is
+    the smallest margin MCC - floor, held against 0.
+``max_marginal_mismatch``
+    the marginal mismatch term 1 - sum_k w_k of the decomposition <= X.
+``max_drop``
+    against a baseline, the drop R_K(baseline) - R_K(current) <= D. With a
+    confidence level the drop counts as a regression only when the whole
+    bootstrap interval of the drop lies above D.
+
+An undefined figure (NaN under ``undefined="nan"``) fails its rule: a gate
+cannot vouch for a value it could not compute.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+import xarray as xr
+
+from foldcorr import metrics as m
+from foldcorr.errors import InvalidInputError, OptionError, UndefinedMetricWarning
+from foldcorr.evaluation import Evaluation
+from foldcorr.samples import Samples, align_samples
+from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, pool
+
+__all__ = ["GateRules", "RuleResult", "ClassShortfall", "GateResult", "check_gate",
+           "RULE_TITLES"]
+
+#: Rule names (the JSON ``rule`` key) and their titles in the text table.
+RULE_TITLES = {
+    "min_rk": "pooled R_K",
+    "min_fold_rk": "R_K of every fold",
+    "min_class_mcc": "MCC of every class",
+    "class_floors": "MCC above class floors",
+    "max_marginal_mismatch": "marginal mismatch",
+    "max_drop": "drop in R_K from baseline",
+}
+
+
+@dataclass(frozen=True)
+class GateRules:
+    """The thresholds of a gate; rules left as None are not checked.
+
+    Attributes
+    ----------
+    min_rk, min_fold_rk, min_class_mcc : float or None
+        Lower bounds of pooled R_K, of every fold's R_K and of every class's
+        one-vs-rest MCC.
+    class_floors : mapping or None
+        Class label -> lower bound of that class's one-vs-rest MCC.
+    max_marginal_mismatch : float or None
+        Upper bound of the marginal mismatch term.
+    max_drop : float or None
+        Upper bound of R_K(baseline) - R_K(current); needs a baseline.
+    confidence : float or None
+        Level of the bootstrap interval of the drop (e.g. 0.95); without it
+        the drop is compared as it stands.
+    allow_new_classes : bool
+        Compare with a baseline that has other classes, on the shared ones.
+    n_resamples : int
+        Bootstrap resamples for the interval of the drop.
+    seed : int or None
+        Seed of the bootstrap.
+    """
+
+    min_rk: float | None = None
+    min_fold_rk: float | None = None
+    min_class_mcc: float | None = None
+    class_floors: Mapping | None = None
+    max_marginal_mismatch: float | None = None
+    max_drop: float | None = None
+    confidence: float | None = None
+    allow_new_classes: bool = False
+    n_resamples: int = 2000
+    seed: int | None = None
+
+    def __post_init__(self):
+        for name in ("min_rk", "min_fold_rk", "min_class_mcc", "max_marginal_mismatch",
+                     "max_drop"):
+            value = getattr(self, name)
+            if value is not None and not (isinstance(value, (int, float)) and math.isfinite(value)):
+                raise OptionError(f"`{name}` must be a finite number; got {value!r}")
+        if self.confidence is not None and not (0 < self.confidence < 1):
+            raise OptionError(f"`confidence` must lie strictly between 0 and 1; "
+                              f"got {self.confidence!r}")
+        if self.n_resamples < 1:
+            raise OptionError(f"`n_resamples` must be at least 1; got {self.n_resamples!r}")
+
+    @property
+    def empty(self) -> bool:
+        """Whether no rule is set."""
+        return all(getattr(self, n) is None for n in (
+            "min_rk", "min_fold_rk", "min_class_mcc", "class_floors", "max_marginal_mismatch",
+            "max_drop"))
+
+
+@dataclass(frozen=True)
+class RuleResult:
+    """One rule checked.
+
+    Attributes
+    ----------
+    rule : str
+        Rule name (see :data:`RULE_TITLES`).
+    value : float
+        The figure checked (NaN where undefined).
+    threshold : float
+        The bound it is held against.
+    op : str
+        ``">="`` or ``"<="``: how value and threshold must compare.
+    passed : bool
+        Whether the rule holds.
+    detail : str
+        A sentence with what the figure is and where it fell short.
+    """
+
+    rule: str
+    value: float
+    threshold: float
+    op: str
+    passed: bool
+    detail: str = ""
+
+    @property
+    def title(self) -> str:
+        """Human title of the rule."""
+        return RULE_TITLES.get(self.rule, self.rule)
+
+
+@dataclass(frozen=True)
+class ClassShortfall:
+    """A class whose one-vs-rest MCC fell below its floor.
+
+    Attributes
+    ----------
+    label : object
+        Class label.
+    mcc, floor : float
+        Its MCC and the floor it missed.
+    support : float
+        Its number of actual samples.
+    rule : str
+        The rule it failed (``min_class_mcc`` or ``class_floors``).
+    """
+
+    label: object
+    mcc: float
+    floor: float
+    support: float
+    rule: str
+
+
+@dataclass(frozen=True)
+class GateResult:
+    """The outcome of a gate.
+
+    Attributes
+    ----------
+    passed : bool
+        Whether every rule holds.
+    rules : tuple of RuleResult
+        Every rule checked, in a fixed order.
+    failing_classes : tuple of ClassShortfall
+        Classes below their floors.
+    evaluation : Evaluation
+        The evaluation gated.
+    baseline : Evaluation or None
+        The baseline compared against.
+    comparison : str
+        ``"paired"``, ``"unpaired"`` or ``"plain"`` (no interval), or "" without
+        a baseline.
+    warnings : tuple of str
+        The evaluation's warnings and notes on the comparison.
+    """
+
+    passed: bool
+    rules: tuple[RuleResult, ...]
+    failing_classes: tuple[ClassShortfall, ...]
+    evaluation: Evaluation
+    baseline: Evaluation | None = None
+    comparison: str = ""
+    warnings: tuple[str, ...] = field(default_factory=tuple)
+
+    @property
+    def failed(self) -> tuple[RuleResult, ...]:
+        """The rules that failed."""
+        return tuple(r for r in self.rules if not r.passed)
+
+
+def _holds(value: float, threshold: float, op: str) -> bool:
+    if value is None or not math.isfinite(value):
+        return False
+    return value >= threshold if op == ">=" else value <= threshold
+
+
+def _f(value) -> str:
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    text = f"{value:.3f}"
+    return "0.000" if text == "-0.000" else text
+
+
+def _listed(items: list[str], limit: int = 5) -> str:
+    shown = "; ".join(items[:limit])
+    return shown + (f"; and {len(items) - limit} more" if len(items) > limit else "")
+
+
+def check_gate(ev: Evaluation, rules: GateRules, *, baseline: Evaluation | None = None,
+               samples: Samples | None = None,
+               baseline_samples: Samples | None = None) -> GateResult:
+    r"""Check an evaluation against the rules of a gate.
+
+    Parameters
+    ----------
+    ev : Evaluation
+        The evaluation to gate.
+    rules : GateRules
+        The thresholds.
+    baseline : Evaluation, optional
+        The baseline, needed by ``max_drop``.
+    samples, baseline_samples : Samples, optional
+        Per-sample labels of both; when both are given and hold the same
+        samples, the interval of the drop is paired.
+
+    Returns
+    -------
+    GateResult
+
+    Raises
+    ------
+    OptionError
+        When no rule is given, ``max_drop`` lacks a baseline, or
+        ``min_fold_rk`` is asked of an evaluation without folds.
+    InvalidInputError
+        When the baseline has other classes and ``allow_new_classes`` is
+        false (the message says which were added and removed).
+
+    Notes
+    -----
+    The drop is :math:`\Delta = R_K(\text{baseline}) - R_K(\text{current})` on
+    the tensors pooled over folds. With a confidence level :math:`1-\alpha`
+    the rule fails only when the lower end of the bootstrap interval of
+    :math:`\Delta` exceeds D.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> from foldcorr.evaluation import evaluate
+    >>> ev = evaluate(confusion_tensor([[4, 1, 0], [0, 3, 1], [2, 0, 5]], ["a", "b", "c"]))
+    >>> result = check_gate(ev, GateRules(min_rk=0.6, min_class_mcc=0.6))
+    >>> [(r.rule, round(r.value, 3), r.passed) for r in result.rules]
+    [('min_rk', 0.623, True), ('min_class_mcc', 0.592, False)]
+    >>> result.passed, [c.label for c in result.failing_classes]
+    (False, ['a'])
+    """
+    if rules.empty:
+        raise OptionError("the gate has no rules; give at least one of --min-rk, "
+                          "--min-fold-rk, --min-class-mcc, --class-floors, "
+                          "--max-marginal-mismatch, --baseline")
+    if rules.max_drop is not None and baseline is None:
+        raise OptionError("`max_drop` needs a baseline to compare with")
+    out: list[RuleResult] = []
+    short: list[ClassShortfall] = []
+    notes: list[str] = list(ev.warnings)
+    comparison = ""
+    if rules.min_rk is not None:
+        out.append(RuleResult("min_rk", ev.rk, rules.min_rk, ">=",
+                              _holds(ev.rk, rules.min_rk, ">="),
+                              f"pooled over {_count(ev.n)} samples"))
+    if rules.min_fold_rk is not None:
+        out.append(_fold_rule(ev, rules.min_fold_rk))
+    if rules.min_class_mcc is not None:
+        floors = {label: rules.min_class_mcc for label in ev.classes}
+        rule, missed = _class_rule(ev, floors, "min_class_mcc")
+        out.append(rule)
+        short.extend(missed)
+    if rules.class_floors:
+        rule, missed = _class_rule(ev, dict(rules.class_floors), "class_floors")
+        out.append(rule)
+        short.extend(missed)
+    if rules.max_marginal_mismatch is not None:
+        value = ev.figure("marginal_mismatch")
+        out.append(RuleResult("max_marginal_mismatch", value, rules.max_marginal_mismatch, "<=",
+                              _holds(value, rules.max_marginal_mismatch, "<="),
+                              "zero when predicted and actual class frequencies agree"))
+    if rules.max_drop is not None:
+        rule, comparison, more = _drop_rule(ev, baseline, rules, samples, baseline_samples)
+        out.append(rule)
+        notes.extend(more)
+    return GateResult(passed=all(r.passed for r in out), rules=tuple(out),
+                      failing_classes=tuple(short), evaluation=ev, baseline=baseline,
+                      comparison=comparison, warnings=tuple(dict.fromkeys(notes)))
+
+
+def _count(n) -> str:
+    return f"{int(n)}" if float(n).is_integer() else f"{float(n):.1f}"
+
+
+def _fold_rule(ev: Evaluation, threshold: float) -> RuleResult:
+    if ev.folds is None:
+        raise OptionError("`min_fold_rk` needs folds, and this evaluation has none; use "
+                          "`min_rk` for the pooled R_K")
+    values = ev.folds["rk"].values.astype(float)
+    labels = ev.folds.coords[FOLD].values.tolist()
+    bad = [i for i, v in enumerate(values) if not _holds(v, threshold, ">=")]
+    finite = np.where(np.isfinite(values), values, np.inf)
+    worst = int(np.argmin(finite)) if np.isfinite(finite).any() else 0
+    value = float(values[worst]) if np.isfinite(finite).any() else math.nan
+    if bad:
+        detail = f"{len(bad)} of {len(values)} folds below: " + _listed(
+            [f"fold {labels[i]!s} {_f(values[i])}" for i in bad])
+    else:
+        detail = f"lowest is fold {labels[worst]!s} of {len(values)}"
+    return RuleResult("min_fold_rk", value, threshold, ">=", not bad, detail)
+
+
+def _class_rule(ev: Evaluation, floors: dict, name: str):
+    pc = ev.per_class
+    labels = pc.coords["class"].values.tolist()
+    index = {label: i for i, label in enumerate(labels)}
+    mcc = pc["mcc"].values.astype(float)
+    support = pc["support"].values
+    missed, margins = [], []
+    for label, floor in floors.items():
+        i = index[label]
+        margins.append(mcc[i] - floor if math.isfinite(mcc[i]) else math.nan)
+        if not _holds(mcc[i], floor, ">="):
+            missed.append(ClassShortfall(label, float(mcc[i]), float(floor),
+                                         float(support[i]), name))
+    missed.sort(key=lambda c: (c.mcc - c.floor) if math.isfinite(c.mcc) else -math.inf)
+    checked = len(floors)
+    if name == "min_class_mcc":
+        value = float(np.nanmin(mcc)) if np.isfinite(mcc).any() else math.nan
+        if any(not math.isfinite(v) for v in mcc):
+            value = math.nan
+        threshold = next(iter(floors.values()))
+        described = [f"{c.label!s} {_f(c.mcc)}" for c in missed]
+        head = "lowest of"
+    else:
+        value = math.nan if any(not math.isfinite(v) for v in margins) else float(min(margins))
+        threshold = 0.0
+        described = [f"{c.label!s} {_f(c.mcc)} < {c.floor:.3f}" for c in missed]
+        head = "smallest margin MCC - floor over"
+    if missed:
+        detail = f"{len(missed)} of {checked} classes below: " + _listed(described)
+    else:
+        detail = f"{head} {checked} classes"
+    return RuleResult(name, value, threshold, ">=", not missed, detail), missed
+
+
+def _shared_classes(ev: Evaluation, baseline: Evaluation, allow: bool):
+    now, base = ev.classes, baseline.classes
+    added = [c for c in now if c not in base]
+    removed = [c for c in base if c not in now]
+    if not added and not removed:
+        return now, []
+    if not allow:
+        raise InvalidInputError(
+            f"the baseline has other classes: added since the baseline {added!r}, removed "
+            f"{removed!r}; give --allow-new-classes to compare on the "
+            f"{len(now) - len(added)} shared classes only")
+    shared = [c for c in now if c in base]
+    if not shared:
+        raise InvalidInputError("the baseline shares no class with this evaluation")
+    return shared, [f"baseline comparison on the {len(shared)} shared classes only: added "
+                    f"{added!r}, removed {removed!r}"]
+
+
+def _restricted(t: xr.DataArray, shared: list) -> xr.DataArray:
+    return pool(t).sel({ACTUAL: shared, PREDICTED: shared})
+
+
+def _quiet_rk(t, undefined: str) -> float:
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UndefinedMetricWarning)
+        return float(m.rk(t, undefined=undefined))
+
+
+def _drop_rule(ev, baseline, rules: GateRules, samples, baseline_samples):
+    shared, notes = _shared_classes(ev, baseline, rules.allow_new_classes)
+    now_t, base_t = _restricted(ev.tensor, shared), _restricted(baseline.tensor, shared)
+    rk_now, rk_base = _quiet_rk(now_t, ev.undefined), _quiet_rk(base_t, ev.undefined)
+    drop = rk_base - rk_now
+    where = ""
+    if notes:
+        left_now = float(pool(ev.tensor).sum()) - float(now_t.sum())
+        left_base = float(pool(baseline.tensor).sum()) - float(base_t.sum())
+        where = (f" on the {len(shared)} shared classes ({_count(left_now)} current and "
+                 f"{_count(left_base)} baseline samples involve other classes and are left out)")
+    head = f"R_K {_f(rk_now)} against baseline {_f(rk_base)}{where}"
+    if rules.confidence is None:
+        passed = _holds(drop, rules.max_drop, "<=")
+        return RuleResult("max_drop", drop, rules.max_drop, "<=", passed,
+                          f"{head}; drop {_f(drop)}"), "plain", notes
+    low, high, how, more = _drop_interval(ev, baseline, shared, rules, samples,
+                                          baseline_samples)
+    passed = not (math.isfinite(low) and low > rules.max_drop)
+    if not (math.isfinite(low) and math.isfinite(high)):
+        passed = _holds(drop, rules.max_drop, "<=")
+    level = f"{rules.confidence * 100:g}%"
+    detail = (f"{head}; drop {_f(drop)}, {level} interval [{_f(low)}, {_f(high)}] "
+              f"({how}); a regression only when the whole interval lies above "
+              f"{rules.max_drop:g}")
+    return (RuleResult("max_drop", drop, rules.max_drop, "<=", passed, detail),
+            how.split()[0], notes + more)
+
+
+def _drop_interval(ev, baseline, shared, rules: GateRules, samples, baseline_samples):
+    """Bootstrap interval (low, high) of the drop, how it was made, and notes.
+
+    Paired (the joint tensor of both runs' predictions on the same samples,
+    resampled together) when both sides carry the same samples; otherwise
+    each tensor is resampled on its own.
+    """
+    notes: list[str] = []
+    if samples is not None and baseline_samples is not None:
+        order, reason = align_samples(baseline_samples, samples)
+        if order is None:
+            notes.append(f"unpaired comparison: {reason}")
+        else:
+            from foldcorr.compare import compare_models, joint_tally
+
+            truth = baseline_samples.actual
+            pred_a, pred_b = baseline_samples.predicted, samples.predicted[order]
+            known = set(shared)
+            keep = np.array([a in known and x in known and y in known
+                             for a, x, y in zip(truth.tolist(), pred_a.tolist(),
+                                                pred_b.tolist())], dtype=bool)
+            folds = None if baseline_samples.fold is None else baseline_samples.fold[keep]
+            joint = joint_tally(truth[keep], pred_a[keep], pred_b[keep], folds=folds,
+                                classes=shared)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", UndefinedMetricWarning)
+                comp = compare_models(joint, n_resamples=rules.n_resamples,
+                                      level=rules.confidence, seed=rules.seed)
+            low, high = -float(comp.ci[1]), -float(comp.ci[0])
+            how = (f"paired bootstrap on {int(keep.sum())} shared samples, "
+                   f"{rules.n_resamples} resamples")
+            return low, high, how, notes + list(comp.warnings)
+    elif samples is not None or baseline_samples is not None:
+        notes.append("unpaired comparison: only one side carries sample ids")
+    from foldcorr.uncertainty import bootstrap_difference
+
+    def cut(t):
+        return t.sel({ACTUAL: shared, PREDICTED: shared})
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UndefinedMetricWarning)
+        res = bootstrap_difference(cut(baseline.tensor), cut(ev.tensor), m.rk,
+                                   n_resamples=rules.n_resamples, level=rules.confidence,
+                                   seed=rules.seed)
+    low, high = -float(res.high), -float(res.low)
+    how = f"unpaired bootstrap of both tensors, {rules.n_resamples} resamples"
+    return low, high, how, notes + list(res.warnings)
