@@ -367,6 +367,7 @@ def _run_score(args) -> int:
 
         raise OptionError("`--where` and `--engine` apply to prediction tables, not to --matrix")
     _check_targets(args.output, getattr(args, "save", None))
+    _check_save(args, args.path)
     tensor = load_tensor(args.path, _spec(args), matrix=args.matrix, where=args.where,
                          skip_bad_files=args.skip_bad_files,
                          progress=False if args.quiet else None,
@@ -402,6 +403,14 @@ def _check_targets(*paths) -> None:
         if not os.access(folder, os.W_OK | os.X_OK) or (target.exists()
                                                         and not os.access(target, os.W_OK)):
             raise InvalidInputError(f"cannot write {path!r}: permission denied")
+
+
+def _check_save(args, source) -> None:
+    """Refuse a ``--save`` target that is not NetCDF or is the input."""
+    if getattr(args, "save", None):
+        from foldcorr.saved import check_save_target
+
+        check_save_target(args.save, source)
 
 
 def _analysis_parser() -> argparse.ArgumentParser:
@@ -708,10 +717,11 @@ def _run_demo(args) -> int:
 
     if args.samples < 100:
         raise OptionError(f"`--samples` must be at least 100; got {args.samples!r}")
+    _check_targets(args.output, args.save)
+    _check_save(args, None)
     folder = args.out or tempfile.mkdtemp(prefix="foldcorr-demo-")
     path = write_demo(folder, n=args.samples, seed=args.seed)
     print(f"demo data written to {path}", file=sys.stderr)
-    _check_targets(args.output, args.save)
     tensor = load_tensor(path, TableSpec())
     _save(args, tensor, path)
     _emit(args, _analyse(args, evaluate(tensor, undefined=args.undefined)))

@@ -36,7 +36,7 @@ import xarray as xr
 
 from foldcorr._files import atomic_target
 from foldcorr._version import __version__
-from foldcorr.errors import InvalidInputError
+from foldcorr.errors import InvalidInputError, OptionError
 from foldcorr.samples import Samples
 from foldcorr.tensor import ACTUAL, COUNT, FOLD, PREDICTED, validate_tensor
 
@@ -49,6 +49,7 @@ __all__ = [
     "is_saved_path",
     "read_samples",
     "file_sha256",
+    "check_save_target",
 ]
 
 #: Schema name and version written into every saved evaluation.
@@ -95,6 +96,62 @@ def is_saved_path(path) -> bool:
     (True, False)
     """
     return Path(path).suffix.lower() in SAVED_SUFFIXES
+
+
+def check_save_target(target, source=None, *, name: str = "--save") -> Path:
+    """Refuse a save target that is not a NetCDF path or that is the input itself.
+
+    A saved evaluation is NetCDF-4, so the target must end in one of
+    :data:`SAVED_SUFFIXES`; and it must not name the file the evaluation is
+    read from (by path, or by being the same file through a link), which the
+    write would replace.
+
+    Parameters
+    ----------
+    target : str or path-like
+        The file to save to.
+    source : str or path-like, optional
+        The input read (a table, a counts matrix, a saved evaluation, a
+        folder or a glob).
+    name : str, default "--save"
+        Option name used in messages.
+
+    Returns
+    -------
+    pathlib.Path
+        ``target`` as a path.
+
+    Raises
+    ------
+    OptionError
+        When ``target`` does not end in ``.nc`` or ``.nc4``, or is ``source``.
+
+    Examples
+    --------
+    >>> check_save_target("run.nc", "predictions.csv").name
+    'run.nc'
+    >>> check_save_target("run.csv", "predictions.csv")
+    Traceback (most recent call last):
+    ...
+    foldcorr.errors.OptionError: `--save` writes a NetCDF-4 file; expected a path ending in .nc or .nc4, got 'run.csv'
+    """
+    path = Path(target)
+    if not is_saved_path(path):
+        raise OptionError(f"`{name}` writes a NetCDF-4 file; expected a path ending in "
+                          f"{' or '.join(SAVED_SUFFIXES)}, got {str(target)!r}")
+    if source is not None and _same_file(path, Path(source)):
+        raise OptionError(f"`{name}` {str(target)!r} is the input file {str(source)!r}; "
+                          "saving there would replace it, choose another path")
+    return path
+
+
+def _same_file(a: Path, b: Path) -> bool:
+    try:
+        if a.exists() and b.exists():
+            return a.samefile(b)
+        return a.resolve() == b.resolve()
+    except OSError:
+        return False
 
 
 def file_sha256(path) -> str:

@@ -1,0 +1,74 @@
+"""--save targets, the moment of saving, and table options given with a saved file."""
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from foldcorr.cli import main
+from foldcorr.errors import OptionError
+from foldcorr.saved import check_save_target
+
+pytest.importorskip("h5netcdf")
+
+
+def run(capsys, *argv):
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+@pytest.fixture
+def table(tmp_path):
+    # An invented bird-call tagger: 120 calls in 3 folds.
+    rng = np.random.default_rng(3)
+    names = ["owl", "wren", "kite"]
+    y = rng.choice(names, 120)
+    p = np.where(rng.random(120) < 0.7, y, rng.choice(names, 120))
+    df = pd.DataFrame({"actual": y, "predicted": p, "fold": np.arange(120) % 3 + 1,
+                       "w": rng.uniform(0.5, 2.0, 120)})
+    path = tmp_path / "calls.csv"
+    df.to_csv(path, index=False)
+    return path, df
+
+
+def test_save_refuses_the_input_table(tmp_path, table, capsys):
+    path, _ = table
+    before = path.read_bytes()
+    code, out, err = run(capsys, "score", path, "--save", path)
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
+    assert "`--save` writes a NetCDF-4 file" in err and "'.nc'" not in err
+    assert path.read_bytes() == before
+
+
+def test_save_refuses_a_non_netcdf_path(tmp_path, table, capsys):
+    path, _ = table
+    code, out, err = run(capsys, "score", path, "--save", tmp_path / "s.csv")
+    assert code == 2 and len(err.strip().splitlines()) == 1 and "s.csv" in err
+    assert not (tmp_path / "s.csv").exists()
+    code, _, err = run(capsys, "demo", "--out", tmp_path / "demo", "--samples", 100,
+                       "--save", tmp_path / "d.parquet")
+    assert code == 2 and len(err.strip().splitlines()) == 1
+    assert not (tmp_path / "d.parquet").exists() and not (tmp_path / "demo").exists()
+
+
+def test_save_refuses_the_saved_input_itself(tmp_path, table, capsys):
+    path, _ = table
+    saved = tmp_path / "run.nc"
+    assert run(capsys, "score", path, "--save", saved)[0] == 0
+    before = saved.read_bytes()
+    link = tmp_path / "link.nc"
+    link.symlink_to(saved)
+    for target in (saved, tmp_path / "." / "run.nc", link):
+        code, out, err = run(capsys, "score", saved, "--save", target)
+        assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
+        assert "is the input file" in err
+    assert saved.read_bytes() == before
+
+
+def test_check_save_target():
+    assert check_save_target("a/run.NC4", "a/p.csv").name == "run.NC4"
+    with pytest.raises(OptionError, match=r"`--save` writes a NetCDF-4 file; expected a path "
+                                          r"ending in \.nc or \.nc4, got 'p\.csv'"):
+        check_save_target("p.csv", "p.csv")
+    with pytest.raises(OptionError, match=r"`--save` 'x/../run.nc' is the input file 'run.nc'"):
+        check_save_target("x/../run.nc", "run.nc")
