@@ -372,7 +372,7 @@ def _run_score(args) -> int:
                          skip_bad_files=args.skip_bad_files,
                          progress=False if args.quiet else None,
                          engine=args.engine, scheduler=args.scheduler)
-    _save(args, tensor, args.path)
+    request = _prepare_save(args, tensor, args.path)
     ev = evaluate(tensor, undefined=args.undefined)
     if tensor.attrs.get("skipped_files"):
         from foldcorr.streaming import SkippedFiles
@@ -382,6 +382,7 @@ def _run_score(args) -> int:
             print(f"foldcorr: {line}", file=sys.stderr)
         ev = ev.with_extra("skipped_files", skipped)
     _emit(args, _analyse(args, ev))
+    _write_save(request)
     return EXIT_OK
 
 
@@ -435,50 +436,21 @@ def _analysis_args(options: dict):
     return ns
 
 
-def _save(args, tensor, source) -> None:
-    """Write ``--save`` (with per-sample labels under ``--id``)."""
-    from pathlib import Path
+def _prepare_save(args, tensor, source):
+    """The ``--save`` request (None without it), checked; written by :func:`_write_save`."""
+    from foldcorr.saved import prepare_save
 
-    from foldcorr.errors import OptionError
+    return prepare_save(getattr(args, "save", None), tensor, source,
+                        id_column=getattr(args, "id_column", None),
+                        options=_report_options(args), where=getattr(args, "where", None),
+                        matrix=getattr(args, "matrix", False),
+                        weight=getattr(args, "weight", None))
 
-    target = getattr(args, "save", None)
-    id_column = getattr(args, "id_column", None)
-    if not target:
-        if id_column:
-            raise OptionError("`--id` stores sample ids with --save; give --save FILE.nc too")
-        return
-    from foldcorr.saved import (file_sha256, is_saved_path, load_saved, read_samples,
-                                save_evaluation)
 
-    samples = None
-    provenance = {"source": Path(source).name}
-    if is_saved_path(source):
-        saved = load_saved(source)
-        samples = saved.samples
-        provenance.update({k: v for k, v in saved.provenance.items()
-                           if k in ("source", "source_sha256")})
-    else:
-        if Path(source).is_file():  # a folder or glob of tables has no single hash
-            provenance["source_sha256"] = file_sha256(source)
-        if id_column:
-            if getattr(args, "where", None):
-                raise OptionError("`--id` cannot be combined with `--where`: the saved samples "
-                                  "would not be those counted")
-            if not Path(source).is_file():
-                raise OptionError(f"`--id` needs one prediction table file; got {source!r}")
-            if getattr(args, "matrix", False):
-                raise OptionError("`--id` needs a prediction table; a counts matrix has no "
-                                  "samples")
-            if getattr(args, "weight", None):
-                raise OptionError("`--id` cannot be combined with `--weight`: a paired "
-                                  "comparison counts each sample once")
-            samples = read_samples(source, tensor, id_column)
-    options = _report_options(args)
-    seed = options.get("seed", getattr(args, "seed", None))
-    if seed is not None:
-        provenance["seed"] = seed
-    save_evaluation(target, tensor, samples=samples, options=options, provenance=provenance)
-    print(f"evaluation saved to {target}", file=sys.stderr)
+def _write_save(request) -> None:
+    """Write a prepared ``--save`` once everything else succeeded."""
+    if request is not None:
+        print(f"evaluation saved to {request.write()}", file=sys.stderr)
 
 
 def _run_show(args) -> int:
@@ -723,8 +695,9 @@ def _run_demo(args) -> int:
     path = write_demo(folder, n=args.samples, seed=args.seed)
     print(f"demo data written to {path}", file=sys.stderr)
     tensor = load_tensor(path, TableSpec())
-    _save(args, tensor, path)
+    request = _prepare_save(args, tensor, path)
     _emit(args, _analyse(args, evaluate(tensor, undefined=args.undefined)))
+    _write_save(request)
     return EXIT_OK
 
 

@@ -72,3 +72,43 @@ def test_check_save_target():
         check_save_target("p.csv", "p.csv")
     with pytest.raises(OptionError, match=r"`--save` 'x/../run.nc' is the input file 'run.nc'"):
         check_save_target("x/../run.nc", "run.nc")
+
+
+@pytest.mark.parametrize("argv", [
+    ["--weight", "w", "--ci", "0.9"],          # intervals refuse weighted counts
+    ["--resamples", "500"],                     # --resamples without --ci
+    ["--prevalence", "owl=2"],                  # not a prevalence
+])
+def test_failing_score_leaves_no_saved_file(tmp_path, table, capsys, argv):
+    path, _ = table
+    out = tmp_path / "run.nc"
+    code, _, err = run(capsys, "score", path, *argv, "--save", out)
+    assert code == 2 and len(err.strip().splitlines()) == 1
+    assert not out.exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["calls.csv"]
+
+
+def test_failing_demo_leaves_no_saved_file(tmp_path, capsys):
+    out = tmp_path / "demo.nc"
+    code, _, err = run(capsys, "demo", "--out", tmp_path / "d", "--samples", 200,
+                       "--resamples", "500", "--save", out)
+    assert code == 2 and err.count("foldcorr: error:") == 1   # after the data-written note
+    assert not out.exists()
+
+
+def test_successful_save_matches_the_report(tmp_path, table, capsys):
+    # The saved counts are those of the table: sklearn.metrics.confusion_matrix as reference.
+    from sklearn.metrics import confusion_matrix
+
+    from foldcorr.saved import file_sha256, load_saved
+
+    path, df = table
+    out = tmp_path / "run.nc"
+    code, _, err = run(capsys, "score", path, "--save", out, "--seed", 4)
+    assert code == 0 and f"evaluation saved to {out}" in err
+    saved = load_saved(out)
+    pooled = saved.tensor.sum("fold")
+    labels = pooled.coords["actual"].values.tolist()
+    assert (pooled.values == confusion_matrix(df.actual, df.predicted, labels=labels)).all()
+    assert saved.provenance["source_sha256"] == file_sha256(path)
+    assert saved.provenance["seed"] == 4
