@@ -467,16 +467,26 @@ def _run_show(args) -> int:
     return EXIT_OK
 
 
-def _gate_source(path, args, undefined):
-    """Evaluation and samples (or None) of a gate source or baseline."""
+def _gate_source(path, args, undefined, *, baseline=False):
+    """Evaluation and samples (or None) of a gate source or baseline.
+
+    Table options describe the table among SOURCE and --baseline; they are
+    refused when both are saved, and --classes reorders a saved SOURCE.
+    """
     from foldcorr.evaluation import evaluate
     from foldcorr.saved import is_saved_path, load_saved, read_samples
-    from foldcorr.sources import load_tensor
+    from foldcorr.sources import TableSpec, check_saved_options, load_tensor
 
     if is_saved_path(path):
+        if not any(p and not is_saved_path(p) for p in (args.path, args.baseline)):
+            check_saved_options(path, _spec(args), matrix=args.matrix,
+                                id_column=args.id_column)
         saved = load_saved(path)
+        tensor = saved.tensor
+        if args.classes and not baseline:
+            tensor = load_tensor(path, TableSpec(classes=args.classes))
         chosen = undefined or saved.options.get("undefined", "zero")
-        return evaluate(saved.tensor, undefined=chosen), saved.samples
+        return evaluate(tensor, undefined=chosen), saved.samples
     tensor = load_tensor(path, _spec(args), matrix=args.matrix)
     samples = None
     if args.id_column and not args.matrix:
@@ -505,7 +515,8 @@ def _run_gate(args) -> int:
     ev, samples = _gate_source(args.path, args, args.undefined)
     baseline = base_samples = None
     if args.baseline:
-        baseline, base_samples = _gate_source(args.baseline, args, args.undefined or ev.undefined)
+        baseline, base_samples = _gate_source(args.baseline, args, args.undefined or ev.undefined,
+                                              baseline=True)
     floors = read_class_floors(args.class_floors, ev.classes) if args.class_floors else None
     rules = GateRules(
         min_rk=args.min_rk, min_fold_rk=args.min_fold_rk, min_class_mcc=args.min_class_mcc,

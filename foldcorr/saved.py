@@ -243,6 +243,10 @@ def prepare_save(target, tensor, source, *, id_column: str | None = None,
     samples = None
     provenance = {"source": source.name}
     if is_saved_path(source):
+        if id_column:
+            from foldcorr.sources import check_saved_options
+
+            check_saved_options(source, id_column=id_column)
         saved = load_saved(source)
         samples = saved.samples
         provenance.update({k: v for k, v in saved.provenance.items()

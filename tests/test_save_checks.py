@@ -112,3 +112,69 @@ def test_successful_save_matches_the_report(tmp_path, table, capsys):
     assert (pooled.values == confusion_matrix(df.actual, df.predicted, labels=labels)).all()
     assert saved.provenance["source_sha256"] == file_sha256(path)
     assert saved.provenance["seed"] == 4
+
+
+@pytest.fixture
+def saved(tmp_path, table, capsys):
+    path, df = table
+    out = tmp_path / "run.nc"
+    assert run(capsys, "score", path, "--save", out)[0] == 0
+    return out, df
+
+
+@pytest.mark.parametrize("argv, flag", [
+    (["--where", "fold == 1"], "--where"),
+    (["--weight", "w"], "--weight"),
+    (["--truth", "predicted", "--pred", "actual"], "--truth"),
+    (["--pred", "actual"], "--pred"),
+    (["--fold", "none"], "--fold"),
+    (["--engine", "dask"], "--engine"),
+    (["--skip-bad-files"], "--skip-bad-files"),
+    (["--matrix"], "--matrix"),
+])
+def test_table_options_are_refused_with_a_saved_file(saved, capsys, argv, flag):
+    out, _ = saved
+    code, printed, err = run(capsys, "score", out, *argv)
+    assert code == 2 and printed == "" and len(err.strip().splitlines()) == 1
+    assert f"run.nc is a saved evaluation" in err and f"({flag}) cannot apply" in err
+    code, _, err = run(capsys, "gate", out, "--min-rk", "0", *argv[:2])
+    if flag in ("--where", "--engine", "--skip-bad-files"):   # not gate options
+        assert code == 2
+    else:
+        assert code == 2 and f"({flag}) cannot apply" in err
+
+
+def test_id_with_a_saved_source_is_refused(saved, tmp_path, capsys):
+    out, _ = saved
+    code, _, err = run(capsys, "score", out, "--save", tmp_path / "b.nc", "--id", "frame")
+    assert code == 2 and "(--id) cannot apply" in err and not (tmp_path / "b.nc").exists()
+
+
+def test_classes_reorder_a_saved_file(saved, capsys):
+    # Reordering classes permutes rows and columns of the matrix alike; R_K is invariant
+    # under that (Gorodkin 2004), and the pooled counts match sklearn's confusion_matrix.
+    import json
+
+    from sklearn.metrics import confusion_matrix, matthews_corrcoef
+
+    out, df = saved
+    order = ["wren", "kite", "owl"]
+    code, printed, _ = run(capsys, "score", out, "--classes", ",".join(order), "--format", "json")
+    assert code == 0
+    doc = json.loads(printed)
+    assert doc["classes"] == order
+    assert abs(doc["pooled"]["rk"] - matthews_corrcoef(df.actual, df.predicted)) < 1e-12
+    from foldcorr.sources import TableSpec, load_tensor
+
+    t = load_tensor(out, TableSpec(classes=tuple(order))).sum("fold")
+    assert (t.values == confusion_matrix(df.actual, df.predicted, labels=order)).all()
+    code, _, err = run(capsys, "score", out, "--classes", "owl,wren")
+    assert code == 2 and "`classes` does not match" in err and "'kite'" in err
+
+
+def test_gate_table_options_apply_to_the_table_beside_a_saved_baseline(saved, table, capsys):
+    path, _ = table
+    out, _ = saved
+    code, _, err = run(capsys, "gate", path, "--baseline", out, "--truth", "actual",
+                       "--fold", "fold")
+    assert code == 0, err
