@@ -193,6 +193,22 @@ class Where:
         walk(self.tree)
         return out
 
+    def check_columns(self, names) -> None:
+        """Raise when the filter names a column not among ``names``.
+
+        Examples
+        --------
+        >>> parse_where('split == "test"').check_columns(["actual", "predicted"])
+        Traceback (most recent call last):
+        ...
+        foldcorr.errors.InvalidInputError: `where` names column 'split', which the table does not have; it has ['actual', 'predicted']
+        """
+        for column in self.columns:
+            if column not in names:
+                raise InvalidInputError(
+                    f"`where` names column {column!r}, which the table does not have; "
+                    f"it has {list(names)!r}")
+
     def expression(self, schema):
         """The filter as a ``pyarrow.compute.Expression`` for a table of ``schema``.
 
@@ -246,12 +262,10 @@ class Where:
                         f"with {value!r}") from None
             return value
 
+        self.check_columns(schema.names)
+
         def build(node):
             kind = node[0]
-            if kind in ("cmp", "in") and node[1] not in schema.names:
-                raise InvalidInputError(
-                    f"`where` names column {node[1]!r}, which the table does not have; "
-                    f"it has {list(schema.names)!r}")
             if kind == "cmp" and is_text(node[1]) and not isinstance(node[3], str):
                 _, col, op, value = node
                 if op in ("==", "!="):
@@ -1275,6 +1289,11 @@ def _checked_schema(f, fmt, truth, pred, fold, weight, first_types, where):
     if fold not in (None, "auto"):
         names.append(fold)
     _require(f, schema, names)
+    if where is not None:  # a filter naming a missing column is the caller's, never skipped
+        try:
+            where.check_columns(schema.names)
+        except InvalidInputError as exc:
+            raise _fail(f, str(exc)) from None
     if first_types:
         for col, kind in first_types.items():
             if col.startswith("__") or col not in schema.names:

@@ -111,3 +111,28 @@ def test_non_numeric_weight_is_a_data_error(tmp_path, capsys):
     code = main(["score", str(path), "--weight", "w", "--skip-bad-files"])
     _, err = capsys.readouterr()
     assert code == 2 and "weights must be numbers" in err and len(err.strip().splitlines()) == 1
+
+
+@pytest.mark.parametrize("suffix", [".csv", ".parquet", ".jsonl"])
+def test_where_naming_a_missing_column(tmp_path, capsys, suffix):
+    df = pd.DataFrame({"actual": ["a", "b", "b"], "predicted": ["a", "a", "b"]})
+    folder = tmp_path / "runs"
+    folder.mkdir()
+    for name in ("p1", "p2"):
+        path = folder / f"{name}{suffix}"
+        if suffix == ".csv":
+            df.to_csv(path, index=False)
+        elif suffix == ".parquet":
+            df.to_parquet(path)
+        else:
+            df.to_json(path, orient="records", lines=True)
+    expected = (rf"p1{suffix}: `where` names column 'split', which the table does not have; "
+                r"it has \['actual', 'predicted'\]")
+    with pytest.raises(InvalidInputError, match=expected):
+        tally_dataset(folder, where='split == "test"')
+    for extra in ([], ["--skip-bad-files"]):
+        code = main(["score", str(folder), "--where", 'split == "test"', *extra])
+        out, err = capsys.readouterr()
+        assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
+        assert "names column 'split'" in err and "unreadable" not in err
+        assert "readable file" not in err
