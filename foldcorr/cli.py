@@ -332,6 +332,7 @@ def main(argv=None) -> int:
     from foldcorr.errors import FoldcorrError
 
     try:
+        _check_targets(args)
         return args.func(args)
     except FoldcorrError as exc:
         print(f"foldcorr: error: {exc}", file=sys.stderr)
@@ -366,7 +367,6 @@ def _run_score(args) -> int:
         from foldcorr.errors import OptionError
 
         raise OptionError("`--where` and `--engine` apply to prediction tables, not to --matrix")
-    _check_targets(args.output, getattr(args, "save", None))
     _check_save(args, args.path)
     tensor = load_tensor(args.path, _spec(args), matrix=args.matrix, where=args.where,
                          skip_bad_files=args.skip_bad_files,
@@ -386,13 +386,28 @@ def _run_score(args) -> int:
     return EXIT_OK
 
 
-def _check_targets(*paths) -> None:
-    """Refuse unwritable output paths before any work or any output is done."""
+#: Options naming a file a verb writes (each verb has some of them).
+TARGET_OPTIONS = ("output", "save", "junit", "markdown", "curve")
+#: Options naming a file a verb reads.
+INPUT_OPTIONS = ("path", "path_b", "baseline", "class_floors")
+
+
+def _check_targets(args) -> None:
+    """Refuse unwritable output files before any work or any output is done.
+
+    One check for every verb: each file option of :data:`TARGET_OPTIONS` must
+    name a file (not a folder) in an existing, writable folder, differ from
+    the other targets and from the inputs of :data:`INPUT_OPTIONS`.
+    """
     from pathlib import Path
 
-    from foldcorr.errors import InvalidInputError
+    from foldcorr.errors import InvalidInputError, OptionError
 
-    for path in paths:
+    seen: dict = {}
+    inputs = [(name, getattr(args, name)) for name in INPUT_OPTIONS
+              if isinstance(getattr(args, name, None), str)]
+    for name in TARGET_OPTIONS:
+        path = getattr(args, name, None)
         if not path:
             continue
         target = Path(path)
@@ -404,6 +419,29 @@ def _check_targets(*paths) -> None:
         if not os.access(folder, os.W_OK | os.X_OK) or (target.exists()
                                                         and not os.access(target, os.W_OK)):
             raise InvalidInputError(f"cannot write {path!r}: permission denied")
+        for other, other_path in inputs:
+            if _same_path(target, Path(other_path)):
+                raise OptionError(f"`--{name}` {path!r} is the input file {other_path!r} "
+                                  f"({_flag(other)}); writing there would replace it, choose "
+                                  "another path")
+        for other, other_path in seen.items():
+            if _same_path(target, Path(other_path)):
+                raise OptionError(f"`--{name}` {path!r} is also given to `--{other}`; give "
+                                  "each output its own path")
+        seen[name] = path
+
+
+def _flag(name: str) -> str:
+    return {"path": "PATH", "path_b": "PATH_B"}.get(name, "--" + name.replace("_", "-"))
+
+
+def _same_path(a, b) -> bool:
+    try:
+        if a.exists() and b.exists():
+            return a.samefile(b)
+        return a.resolve() == b.resolve()
+    except OSError:
+        return False
 
 
 def _check_save(args, source) -> None:
@@ -457,7 +495,6 @@ def _run_show(args) -> int:
     from foldcorr.evaluation import evaluate
     from foldcorr.saved import load_saved
 
-    _check_targets(args.output)
     saved = load_saved(args.path)
     options = dict(saved.options)
     undefined = options.get("undefined", "zero")
@@ -500,7 +537,6 @@ def _run_gate(args) -> int:
     from foldcorr.gate import GateRules, check_gate
     from foldcorr.report.gate import gate_report, junit_xml, render_gate
 
-    _check_targets(args.output, args.junit, args.markdown)
     if args.max_drop is not None and not args.baseline:
         raise OptionError("`--max-drop` compares with a baseline; give --baseline FILE too")
     if args.confidence is not None and not args.baseline:
@@ -700,7 +736,6 @@ def _run_demo(args) -> int:
 
     if args.samples < 100:
         raise OptionError(f"`--samples` must be at least 100; got {args.samples!r}")
-    _check_targets(args.output, args.save)
     _check_save(args, None)
     folder = args.out or tempfile.mkdtemp(prefix="foldcorr-demo-")
     path = write_demo(folder, n=args.samples, seed=args.seed)
