@@ -187,7 +187,8 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
         check_saved_options(path, spec, matrix=matrix, where=where,
                             skip_bad_files=skip_bad_files, engine=engine, scheduler=scheduler)
         t = load_saved(path).tensor
-        return t if spec.classes is None else _reorder_matrix(path, t, spec.classes)
+        return t if spec.classes is None else _reorder_matrix(path, t, spec.classes,
+                                                              "saved evaluation")
     if matrix:
         t = read_matrix(path)
         if spec.classes is not None:
@@ -413,13 +414,13 @@ def _parse_counts(path, cells: np.ndarray, rows, cols) -> np.ndarray:
     return flat.astype(np.int64).to_numpy().reshape(cells.shape)
 
 
-def _reorder_matrix(path, t: xr.DataArray, classes) -> xr.DataArray:
+def _reorder_matrix(path, t: xr.DataArray, classes, what: str = "matrix") -> xr.DataArray:
     have = [str(c) for c in t.coords[ACTUAL].values]
     wanted = [str(c) for c in classes]
     unknown = [c for c in wanted if c not in have]
     missing = [c for c in have if c not in wanted]
     if unknown or missing:
-        raise _fail(path, f"`classes` does not match the labels of the counts: not among them "
+        raise _fail(path, f"`classes` does not match the {what} labels: not in the {what} "
                           f"{unknown!r}, not in `classes` {missing!r}")
     by_text = dict(zip(have, t.coords[ACTUAL].values.tolist()))
     order = [by_text[c] for c in wanted]
