@@ -356,7 +356,8 @@ def read_matrix(path) -> xr.DataArray:
     ------
     InvalidInputError
         When the matrix is not square, its row and column labels differ,
-        a label repeats, or a cell is empty, negative or not an integer.
+        a label repeats, or a cell is empty, negative, not an integer or
+        above the int64 range (naming its row and column), or the total is.
 
     Examples
     --------
@@ -411,7 +412,24 @@ def _parse_counts(path, cells: np.ndarray, rows, cols) -> np.ndarray:
         text = flat.iloc[i * cells.shape[1] + j]
         what = "is empty" if not text else f"{text!r} is not a non-negative integer"
         raise _fail(path, f"row {rows[i]!r} column {cols[j]!r} (line {i + 2}): cell {what}")
-    return flat.astype(np.int64).to_numpy().reshape(cells.shape)
+    digits = flat.str.lstrip("+").str.lstrip("0")
+    limit = str(_INT64_MAX)
+    big = ((digits.str.len() > len(limit))
+           | ((digits.str.len() == len(limit)) & (digits > limit))).to_numpy(dtype=bool)
+    if big.any():
+        i, j = np.unravel_index(int(np.flatnonzero(big)[0]), cells.shape)
+        raise _fail(path, f"row {rows[i]!r} column {cols[j]!r} (line {i + 2}): count "
+                          f"{flat.iloc[i * cells.shape[1] + j]!r} is above the largest count "
+                          f"held exactly, {_INT64_MAX} (int64)")
+    counts = flat.astype(np.int64).to_numpy().reshape(cells.shape)
+    total = sum(int(v) for v in counts.sum(axis=1, dtype=object))
+    if total > _INT64_MAX:
+        raise _fail(path, f"the counts add up to {total}, above the largest total held exactly, "
+                          f"{_INT64_MAX} (int64)")
+    return counts
+
+
+_INT64_MAX = int(np.iinfo(np.int64).max)
 
 
 def _reorder_matrix(path, t: xr.DataArray, classes, what: str = "matrix") -> xr.DataArray:

@@ -91,3 +91,24 @@ def test_sweep_curve_and_show_and_demo_targets(files, capsys, tmp_path):
     assert one_line_error(code, out, err) and "it is a folder" in err
     code, out, err = run(capsys, "score", path, "--save", nc, "--output", nc)
     assert one_line_error(code, out, err) and "also given to `--output`" in err
+
+
+@pytest.mark.parametrize("cell", ["9223372036854775808", "+00099999999999999999999"])
+def test_matrix_cell_above_int64(tmp_path, capsys, cell):
+    # int64 holds at most 2**63 - 1 = 9223372036854775807 (numpy.iinfo).
+    path = tmp_path / "m.csv"
+    path.write_text(f",frog,owl\nfrog,5,1\nowl,{cell},7\n")
+    code, out, err = run(capsys, "score", path, "--matrix")
+    assert one_line_error(code, out, err), err
+    assert f"m.csv: row 'owl' column 'frog' (line 3): count {cell!r} is above" in err
+    assert str(np.iinfo(np.int64).max) in err
+
+
+def test_matrix_total_above_int64(tmp_path, capsys):
+    big = np.iinfo(np.int64).max
+    path = tmp_path / "m.csv"
+    path.write_text(f",frog,owl\nfrog,{big},1\nowl,0,7\n")
+    code, out, err = run(capsys, "score", path, "--matrix")
+    assert one_line_error(code, out, err) and f"add up to {big + 8}" in err
+    path.write_text(f",frog,owl\nfrog,{big - 8},1\nowl,0,7\n")   # exactly the largest total
+    assert run(capsys, "score", path, "--matrix", "--format", "json")[0] == 0
