@@ -357,7 +357,8 @@ def read_matrix(path) -> xr.DataArray:
     InvalidInputError
         When the matrix is not square, its row and column labels differ,
         a label repeats, or a cell is empty, negative, not an integer or
-        above the int64 range (naming its row and column), or the total is.
+        above the int64 range (naming its row and column), or the total is;
+        or every cell is 0 (no samples, like a table without rows).
 
     Examples
     --------
@@ -382,6 +383,8 @@ def read_matrix(path) -> xr.DataArray:
     _check_matrix_labels(path, rows, cols)
     cells = raw.iloc[1:, 1:].to_numpy()
     counts = _parse_counts(path, cells, rows, cols)
+    if not counts.any():  # as a table without rows: nothing to score
+        raise _fail(path, "the counts matrix holds no samples: every cell is 0")
     order = [cols.index(r) for r in rows]
     t = confusion_tensor(counts[:, order], rows, attrs={"source": path.name, "n_rows": 0})
     t.attrs["n_rows"] = int(counts.sum())

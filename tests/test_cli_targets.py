@@ -112,3 +112,17 @@ def test_matrix_total_above_int64(tmp_path, capsys):
     assert one_line_error(code, out, err) and f"add up to {big + 8}" in err
     path.write_text(f",frog,owl\nfrog,{big - 8},1\nowl,0,7\n")   # exactly the largest total
     assert run(capsys, "score", path, "--matrix", "--format", "json")[0] == 0
+
+
+def test_all_zero_matrix_is_refused_like_an_empty_table(tmp_path, capsys):
+    matrix = tmp_path / "m.csv"
+    matrix.write_text(",frog,owl\nfrog,0,0\nowl,0,+0\n")
+    code, out, err = run(capsys, "score", matrix, "--matrix")
+    assert one_line_error(code, out, err)
+    assert "m.csv: the counts matrix holds no samples: every cell is 0" in err
+    empty = tmp_path / "t.csv"
+    empty.write_text("actual,predicted\n")
+    code, out, err = run(capsys, "score", empty)
+    assert one_line_error(code, out, err)
+    code, out, err = run(capsys, "gate", matrix, "--matrix", "--min-rk", 0)
+    assert one_line_error(code, out, err) and "holds no samples" in err
