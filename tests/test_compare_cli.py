@@ -54,3 +54,40 @@ def test_every_offered_format_renders(table, capsys, tmp_path, fmt):
         assert f"{rk_a:.3f}" in text and f"{rk_b:.3f}" in text
     if fmt == "html":
         assert text.startswith("<!DOCTYPE html>") and "foldcorr compare" in text
+
+
+def test_messages_name_the_real_columns_one_table(table, capsys, tmp_path):
+    path, df = table
+    df = df.copy()
+    df.loc[5, "new"] = None
+    bad = tmp_path / "gap.csv"
+    df.to_csv(bad, index=False)
+    code, out, err = run(capsys, "compare", bad, "--truth", "label", "--pred-a", "old",
+                         "--pred-b", "new", "--resamples", 100)
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
+    assert "gap.csv: column 'new' row 6: missing label (1 missing in all)" in err
+    code, _, err = run(capsys, "compare", path, "--truth", "label", "--pred-a", "old",
+                       "--pred-b", "new", "--classes", "frog,owl,bat", "--resamples", 100)
+    first = int(np.flatnonzero(df.label == "cricket")[0]) + 1
+    assert code == 2 and f"column 'label' row {first}: label 'cricket'" in err
+    assert "'truth'" not in err and "pred_" not in err
+
+
+def test_messages_name_the_second_table_and_its_own_rows(table, capsys, tmp_path):
+    path, df = table
+    a = df[["clip", "label", "old"]].rename(columns={"old": "guess"})
+    b = df[["clip", "new"]].rename(columns={"new": "guess"}).iloc[::-1].reset_index(drop=True)
+    b.loc[3, "guess"] = "moth"
+    pa, pb = tmp_path / "a.csv", tmp_path / "b.csv"
+    a.to_csv(pa, index=False)
+    b.to_csv(pb, index=False)
+    code, out, err = run(capsys, "compare", pa, pb, "--id", "clip", "--truth", "label",
+                         "--pred", "guess", "--classes", "frog,cricket,owl,bat",
+                         "--resamples", 100)
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
+    assert "b.csv: column 'guess' row 4: label 'moth' is not among the classes" in err
+    b.loc[3, "guess"] = None
+    b.to_csv(pb, index=False)
+    code, _, err = run(capsys, "compare", pa, pb, "--id", "clip", "--truth", "label",
+                       "--pred", "guess", "--resamples", 100)
+    assert code == 2 and "b.csv: column 'guess' row 4: missing label" in err
