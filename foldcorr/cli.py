@@ -332,6 +332,7 @@ def main(argv=None) -> int:
     from foldcorr.errors import FoldcorrError
 
     try:
+        _check_targets(args)
         return args.func(args)
     except FoldcorrError as exc:
         print(f"foldcorr: error: {exc}", file=sys.stderr)
@@ -366,12 +367,12 @@ def _run_score(args) -> int:
         from foldcorr.errors import OptionError
 
         raise OptionError("`--where` and `--engine` apply to prediction tables, not to --matrix")
-    _check_targets(args.output, getattr(args, "save", None))
+    _check_save(args, args.path)
     tensor = load_tensor(args.path, _spec(args), matrix=args.matrix, where=args.where,
                          skip_bad_files=args.skip_bad_files,
                          progress=False if args.quiet else None,
                          engine=args.engine, scheduler=args.scheduler)
-    _save(args, tensor, args.path)
+    request = _prepare_save(args, tensor, args.path)
     ev = evaluate(tensor, undefined=args.undefined)
     if tensor.attrs.get("skipped_files"):
         from foldcorr.streaming import SkippedFiles
@@ -381,16 +382,32 @@ def _run_score(args) -> int:
             print(f"foldcorr: {line}", file=sys.stderr)
         ev = ev.with_extra("skipped_files", skipped)
     _emit(args, _analyse(args, ev))
+    _write_save(request)
     return EXIT_OK
 
 
-def _check_targets(*paths) -> None:
-    """Refuse unwritable output paths before any work or any output is done."""
+#: Options naming a file a verb writes (each verb has some of them).
+TARGET_OPTIONS = ("output", "save", "junit", "markdown", "curve")
+#: Options naming a file a verb reads.
+INPUT_OPTIONS = ("path", "path_b", "baseline", "class_floors")
+
+
+def _check_targets(args) -> None:
+    """Refuse unwritable output files before any work or any output is done.
+
+    One check for every verb: each file option of :data:`TARGET_OPTIONS` must
+    name a file (not a folder) in an existing, writable folder, differ from
+    the other targets and from the inputs of :data:`INPUT_OPTIONS`.
+    """
     from pathlib import Path
 
-    from foldcorr.errors import InvalidInputError
+    from foldcorr.errors import InvalidInputError, OptionError
 
-    for path in paths:
+    seen: dict = {}
+    inputs = [(name, getattr(args, name)) for name in INPUT_OPTIONS
+              if isinstance(getattr(args, name, None), str)]
+    for name in TARGET_OPTIONS:
+        path = getattr(args, name, None)
         if not path:
             continue
         target = Path(path)
@@ -402,6 +419,37 @@ def _check_targets(*paths) -> None:
         if not os.access(folder, os.W_OK | os.X_OK) or (target.exists()
                                                         and not os.access(target, os.W_OK)):
             raise InvalidInputError(f"cannot write {path!r}: permission denied")
+        for other, other_path in inputs:
+            if _same_path(target, Path(other_path)):
+                raise OptionError(f"`--{name}` {path!r} is the input file {other_path!r} "
+                                  f"({_flag(other)}); writing there would replace it, choose "
+                                  "another path")
+        for other, other_path in seen.items():
+            if _same_path(target, Path(other_path)):
+                raise OptionError(f"`--{name}` {path!r} is also given to `--{other}`; give "
+                                  "each output its own path")
+        seen[name] = path
+
+
+def _flag(name: str) -> str:
+    return {"path": "PATH", "path_b": "PATH_B"}.get(name, "--" + name.replace("_", "-"))
+
+
+def _same_path(a, b) -> bool:
+    try:
+        if a.exists() and b.exists():
+            return a.samefile(b)
+        return a.resolve() == b.resolve()
+    except OSError:
+        return False
+
+
+def _check_save(args, source) -> None:
+    """Refuse a ``--save`` target that is not NetCDF or is the input."""
+    if getattr(args, "save", None):
+        from foldcorr.saved import check_save_target
+
+        check_save_target(args.save, source)
 
 
 def _analysis_parser() -> argparse.ArgumentParser:
@@ -426,57 +474,27 @@ def _analysis_args(options: dict):
     return ns
 
 
-def _save(args, tensor, source) -> None:
-    """Write ``--save`` (with per-sample labels under ``--id``)."""
-    from pathlib import Path
+def _prepare_save(args, tensor, source):
+    """The ``--save`` request (None without it), checked; written by :func:`_write_save`."""
+    from foldcorr.saved import prepare_save
 
-    from foldcorr.errors import OptionError
+    return prepare_save(getattr(args, "save", None), tensor, source,
+                        id_column=getattr(args, "id_column", None),
+                        options=_report_options(args), where=getattr(args, "where", None),
+                        matrix=getattr(args, "matrix", False),
+                        weight=getattr(args, "weight", None))
 
-    target = getattr(args, "save", None)
-    id_column = getattr(args, "id_column", None)
-    if not target:
-        if id_column:
-            raise OptionError("`--id` stores sample ids with --save; give --save FILE.nc too")
-        return
-    from foldcorr.saved import (file_sha256, is_saved_path, load_saved, read_samples,
-                                save_evaluation)
 
-    samples = None
-    provenance = {"source": Path(source).name}
-    if is_saved_path(source):
-        saved = load_saved(source)
-        samples = saved.samples
-        provenance.update({k: v for k, v in saved.provenance.items()
-                           if k in ("source", "source_sha256")})
-    else:
-        if Path(source).is_file():  # a folder or glob of tables has no single hash
-            provenance["source_sha256"] = file_sha256(source)
-        if id_column:
-            if getattr(args, "where", None):
-                raise OptionError("`--id` cannot be combined with `--where`: the saved samples "
-                                  "would not be those counted")
-            if not Path(source).is_file():
-                raise OptionError(f"`--id` needs one prediction table file; got {source!r}")
-            if getattr(args, "matrix", False):
-                raise OptionError("`--id` needs a prediction table; a counts matrix has no "
-                                  "samples")
-            if getattr(args, "weight", None):
-                raise OptionError("`--id` cannot be combined with `--weight`: a paired "
-                                  "comparison counts each sample once")
-            samples = read_samples(source, tensor, id_column)
-    options = _report_options(args)
-    seed = options.get("seed", getattr(args, "seed", None))
-    if seed is not None:
-        provenance["seed"] = seed
-    save_evaluation(target, tensor, samples=samples, options=options, provenance=provenance)
-    print(f"evaluation saved to {target}", file=sys.stderr)
+def _write_save(request) -> None:
+    """Write a prepared ``--save`` once everything else succeeded."""
+    if request is not None:
+        print(f"evaluation saved to {request.write()}", file=sys.stderr)
 
 
 def _run_show(args) -> int:
     from foldcorr.evaluation import evaluate
     from foldcorr.saved import load_saved
 
-    _check_targets(args.output)
     saved = load_saved(args.path)
     options = dict(saved.options)
     undefined = options.get("undefined", "zero")
@@ -486,16 +504,26 @@ def _run_show(args) -> int:
     return EXIT_OK
 
 
-def _gate_source(path, args, undefined):
-    """Evaluation and samples (or None) of a gate source or baseline."""
+def _gate_source(path, args, undefined, *, baseline=False):
+    """Evaluation and samples (or None) of a gate source or baseline.
+
+    Table options describe the table among SOURCE and --baseline; they are
+    refused when both are saved, and --classes reorders a saved SOURCE.
+    """
     from foldcorr.evaluation import evaluate
     from foldcorr.saved import is_saved_path, load_saved, read_samples
-    from foldcorr.sources import load_tensor
+    from foldcorr.sources import TableSpec, check_saved_options, load_tensor
 
     if is_saved_path(path):
+        if not any(p and not is_saved_path(p) for p in (args.path, args.baseline)):
+            check_saved_options(path, _spec(args), matrix=args.matrix,
+                                id_column=args.id_column)
         saved = load_saved(path)
+        tensor = saved.tensor
+        if args.classes and not baseline:
+            tensor = load_tensor(path, TableSpec(classes=args.classes))
         chosen = undefined or saved.options.get("undefined", "zero")
-        return evaluate(saved.tensor, undefined=chosen), saved.samples
+        return evaluate(tensor, undefined=chosen), saved.samples
     tensor = load_tensor(path, _spec(args), matrix=args.matrix)
     samples = None
     if args.id_column and not args.matrix:
@@ -509,7 +537,6 @@ def _run_gate(args) -> int:
     from foldcorr.gate import GateRules, check_gate
     from foldcorr.report.gate import gate_report, junit_xml, render_gate
 
-    _check_targets(args.output, args.junit, args.markdown)
     if args.max_drop is not None and not args.baseline:
         raise OptionError("`--max-drop` compares with a baseline; give --baseline FILE too")
     if args.confidence is not None and not args.baseline:
@@ -524,7 +551,8 @@ def _run_gate(args) -> int:
     ev, samples = _gate_source(args.path, args, args.undefined)
     baseline = base_samples = None
     if args.baseline:
-        baseline, base_samples = _gate_source(args.baseline, args, args.undefined or ev.undefined)
+        baseline, base_samples = _gate_source(args.baseline, args, args.undefined or ev.undefined,
+                                              baseline=True)
     floors = read_class_floors(args.class_floors, ev.classes) if args.class_floors else None
     rules = GateRules(
         min_rk=args.min_rk, min_fold_rk=args.min_fold_rk, min_class_mcc=args.min_class_mcc,
@@ -708,13 +736,14 @@ def _run_demo(args) -> int:
 
     if args.samples < 100:
         raise OptionError(f"`--samples` must be at least 100; got {args.samples!r}")
+    _check_save(args, None)
     folder = args.out or tempfile.mkdtemp(prefix="foldcorr-demo-")
     path = write_demo(folder, n=args.samples, seed=args.seed)
     print(f"demo data written to {path}", file=sys.stderr)
-    _check_targets(args.output, args.save)
     tensor = load_tensor(path, TableSpec())
-    _save(args, tensor, path)
+    request = _prepare_save(args, tensor, path)
     _emit(args, _analyse(args, evaluate(tensor, undefined=args.undefined)))
+    _write_save(request)
     return EXIT_OK
 
 

@@ -57,7 +57,8 @@ PREDICTED_B = "predicted_b"
 JOINT_DIMS = (ACTUAL, PREDICTED_A, PREDICTED_B)
 
 
-def joint_tally(truth, pred_a, pred_b, *, folds=None, classes=None) -> xr.DataArray:
+def joint_tally(truth, pred_a, pred_b, *, folds=None, classes=None,
+                names=("truth", "pred_a", "pred_b")) -> xr.DataArray:
     """Count (actual, prediction of A, prediction of B) triples into a joint tensor.
 
     Parameters
@@ -69,6 +70,9 @@ def joint_tally(truth, pred_a, pred_b, *, folds=None, classes=None) -> xr.DataAr
     classes : sequence, optional
         Fixed class order; labels outside it are an error. Without it, every
         label seen in any of the three arrays, sorted.
+    names : tuple of 3 str, default ("truth", "pred_a", "pred_b")
+        Names of ``truth``, ``pred_a`` and ``pred_b`` used in messages, e.g.
+        the table's column names.
 
     Returns
     -------
@@ -97,8 +101,8 @@ def joint_tally(truth, pred_a, pred_b, *, folds=None, classes=None) -> xr.DataAr
     >>> int(j.sel(actual="x", predicted_a="y", predicted_b="x"))
     1
     """
-    columns = {ACTUAL: ("truth", truth), PREDICTED_A: ("pred_a", pred_a),
-               PREDICTED_B: ("pred_b", pred_b)}
+    columns = {ACTUAL: (names[0], truth), PREDICTED_A: (names[1], pred_a),
+               PREDICTED_B: (names[2], pred_b)}
     leading = {} if folds is None else {FOLD: folds}
     return tally_columns(columns, leading=leading, classes=classes)
 

@@ -11,13 +11,14 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import xarray as xr
 
 from foldcorr.compare import joint_tally
 from foldcorr.errors import InvalidInputError
 from foldcorr.sources import _as_text, _coerce_classes, _fail, read_table
-from foldcorr.tensor import ACTUAL, FOLD, PREDICTED
+from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_columns
 
 __all__ = ["PairSpec", "load_joint"]
 
@@ -121,6 +122,7 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
             raise InvalidInputError(f"--pred-a and --pred-b name the same column {spec.pred_a!r}")
         _need(path, df, [spec.truth, spec.pred_a, spec.pred_b, fold])
         truth, a, b = df[spec.truth], df[spec.pred_a], df[spec.pred_b]
+        names = (spec.truth, spec.pred_a, spec.pred_b)
         source = path.name
     else:
         path_b = Path(path_b)
@@ -146,11 +148,18 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
                     f"{int(differ.sum())} of {len(df)} ids (first id {first!r}); both tables "
                     "must describe the same samples")
         truth, a, b = df[spec.truth], df[col_a], other[col_b]
+        names = (spec.truth, col_a, col_b)
         source = f"{path.name} + {path_b.name}"
     truth, a, b = _same_kind(truth, a, b)
     classes = None if spec.classes is None else _coerce_classes(spec.classes, truth)
+    if path_b is not None:  # B's labels checked in B's own row order, before the join's
+        try:
+            tally_columns({PREDICTED: (col_b, b.iloc[np.argsort(position)])}, classes=classes)
+        except InvalidInputError as exc:
+            raise _fail(path_b, str(exc)) from None
     try:
-        j = joint_tally(truth, a, b, folds=None if fold is None else df[fold], classes=classes)
+        j = joint_tally(truth, a, b, folds=None if fold is None else df[fold], classes=classes,
+                        names=names)
     except InvalidInputError as exc:
         raise _fail(path, str(exc)) from None
     j.attrs["source"] = source

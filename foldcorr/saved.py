@@ -36,7 +36,7 @@ import xarray as xr
 
 from foldcorr._files import atomic_target
 from foldcorr._version import __version__
-from foldcorr.errors import InvalidInputError
+from foldcorr.errors import InvalidInputError, OptionError
 from foldcorr.samples import Samples
 from foldcorr.tensor import ACTUAL, COUNT, FOLD, PREDICTED, validate_tensor
 
@@ -49,6 +49,9 @@ __all__ = [
     "is_saved_path",
     "read_samples",
     "file_sha256",
+    "check_save_target",
+    "SaveRequest",
+    "prepare_save",
 ]
 
 #: Schema name and version written into every saved evaluation.
@@ -95,6 +98,189 @@ def is_saved_path(path) -> bool:
     (True, False)
     """
     return Path(path).suffix.lower() in SAVED_SUFFIXES
+
+
+def check_save_target(target, source=None, *, name: str = "--save") -> Path:
+    """Refuse a save target that is not a NetCDF path or that is the input itself.
+
+    A saved evaluation is NetCDF-4, so the target must end in one of
+    :data:`SAVED_SUFFIXES`; and it must not name the file the evaluation is
+    read from (by path, or by being the same file through a link), which the
+    write would replace.
+
+    Parameters
+    ----------
+    target : str or path-like
+        The file to save to.
+    source : str or path-like, optional
+        The input read (a table, a counts matrix, a saved evaluation, a
+        folder or a glob).
+    name : str, default "--save"
+        Option name used in messages.
+
+    Returns
+    -------
+    pathlib.Path
+        ``target`` as a path.
+
+    Raises
+    ------
+    OptionError
+        When ``target`` does not end in ``.nc`` or ``.nc4``, or is ``source``.
+
+    Examples
+    --------
+    >>> check_save_target("run.nc", "predictions.csv").name
+    'run.nc'
+    >>> check_save_target("run.csv", "predictions.csv")
+    Traceback (most recent call last):
+    ...
+    foldcorr.errors.OptionError: `--save` writes a NetCDF-4 file; expected a path ending in .nc or .nc4, got 'run.csv'
+    """
+    path = Path(target)
+    if not is_saved_path(path):
+        raise OptionError(f"`{name}` writes a NetCDF-4 file; expected a path ending in "
+                          f"{' or '.join(SAVED_SUFFIXES)}, got {str(target)!r}")
+    if source is not None and _same_file(path, Path(source)):
+        raise OptionError(f"`{name}` {str(target)!r} is the input file {str(source)!r}; "
+                          "saving there would replace it, choose another path")
+    return path
+
+
+@dataclass(frozen=True)
+class SaveRequest:
+    """A saved evaluation checked and gathered, to be written once the run succeeded.
+
+    Attributes
+    ----------
+    target : pathlib.Path
+        The ``.nc`` file to write.
+    tensor : xarray.DataArray
+        The confusion tensor.
+    samples : Samples or None
+        Per-sample ids and labels (with an id column).
+    options : dict
+        Options that shaped the report.
+    provenance : dict
+        Global attributes: source file name, its SHA-256 when it is one file,
+        seed when one was used.
+    """
+
+    target: Path
+    tensor: xr.DataArray
+    samples: Samples | None = None
+    options: dict = field(default_factory=dict)
+    provenance: dict = field(default_factory=dict)
+
+    def write(self) -> Path:
+        """Write the file (atomically, see :func:`save_evaluation`); return its path."""
+        return save_evaluation(self.target, self.tensor, samples=self.samples,
+                               options=self.options, provenance=self.provenance)
+
+
+def prepare_save(target, tensor, source, *, id_column: str | None = None,
+                 options: dict | None = None, where=None, matrix: bool = False,
+                 weight: str | None = None) -> SaveRequest | None:
+    """Check a request to save an evaluation and gather what the file will hold.
+
+    Nothing is written: the caller writes :meth:`SaveRequest.write` only after
+    the whole run succeeded, so that a failing run leaves no saved file.
+
+    Parameters
+    ----------
+    target : str, path-like or None
+        The ``.nc`` file (see :func:`check_save_target`); None saves nothing.
+    tensor : xarray.DataArray
+        The confusion tensor read from ``source``.
+    source : str or path-like
+        What the tensor was read from: a table, a folder or glob of them, a
+        counts matrix or a saved evaluation (whose samples and source
+        provenance are carried over).
+    id_column : str, optional
+        Column of unique sample ids in the single table ``source``; the
+        per-sample labels are saved too.
+    options : dict, optional
+        Options that shaped the report; a ``"seed"`` among them is also
+        recorded in the provenance.
+    where, matrix, weight
+        The row filter, counts-matrix flag and weight column the tensor was
+        read with; each rules out ``id_column`` (the saved samples would not
+        be those counted).
+
+    Returns
+    -------
+    SaveRequest or None
+        None when ``target`` is None.
+
+    Raises
+    ------
+    OptionError
+        When ``id_column`` is given without ``target`` or with ``where``,
+        ``matrix``, ``weight`` or a ``source`` that is not one file; or
+        ``target`` is refused by :func:`check_save_target`.
+    InvalidInputError
+        When the ids are missing or repeated (see :func:`read_samples`).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> from foldcorr.sources import load_tensor
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (d / "p.csv").write_text("id,actual,predicted\\nu1,a,a\\nu2,b,a\\n")
+    >>> t = load_tensor(d / "p.csv")
+    >>> request = prepare_save(d / "run.nc", t, d / "p.csv", id_column="id", options={"seed": 7})
+    >>> (d / "run.nc").exists(), request.provenance["seed"]
+    (False, 7)
+    >>> load_saved(request.write()).samples.ids.tolist()
+    ['u1', 'u2']
+    """
+    if not target:
+        if id_column:
+            raise OptionError("`--id` stores sample ids with --save; give --save FILE.nc too")
+        return None
+    target = check_save_target(target, source)
+    source = Path(source)
+    samples = None
+    provenance = {"source": source.name}
+    if is_saved_path(source):
+        if id_column:
+            from foldcorr.sources import check_saved_options
+
+            check_saved_options(source, id_column=id_column)
+        saved = load_saved(source)
+        samples = saved.samples
+        provenance.update({k: v for k, v in saved.provenance.items()
+                           if k in ("source", "source_sha256")})
+    else:
+        if source.is_file():  # a folder or glob of tables has no single hash
+            provenance["source_sha256"] = file_sha256(source)
+        if id_column:
+            if where:
+                raise OptionError("`--id` cannot be combined with `--where`: the saved samples "
+                                  "would not be those counted")
+            if not source.is_file():
+                raise OptionError(f"`--id` needs one prediction table file; got {str(source)!r}")
+            if matrix:
+                raise OptionError("`--id` needs a prediction table; a counts matrix has no "
+                                  "samples")
+            if weight:
+                raise OptionError("`--id` cannot be combined with `--weight`: a paired "
+                                  "comparison counts each sample once")
+            samples = read_samples(source, tensor, id_column)
+    options = dict(options or {})
+    if options.get("seed") is not None:
+        provenance["seed"] = options["seed"]
+    return SaveRequest(target=target, tensor=tensor, samples=samples, options=options,
+                       provenance=provenance)
+
+
+def _same_file(a: Path, b: Path) -> bool:
+    try:
+        if a.exists() and b.exists():
+            return a.samefile(b)
+        return a.resolve() == b.resolve()
+    except OSError:
+        return False
 
 
 def file_sha256(path) -> str:

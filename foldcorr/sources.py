@@ -16,10 +16,11 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from foldcorr.errors import InvalidInputError
+from foldcorr.errors import InvalidInputError, OptionError
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, confusion_tensor, tally_frame
 
-__all__ = ["TableSpec", "read_table", "read_matrix", "load_tensor", "TABLE_SUFFIXES"]
+__all__ = ["TableSpec", "read_table", "read_matrix", "load_tensor", "check_saved_options",
+           "TABLE_SUFFIXES"]
 
 from foldcorr.streaming import TABLE_SUFFIXES  # noqa: E402  (one list for both paths)
 
@@ -143,7 +144,9 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
         when ``matrix`` is true, or a saved evaluation (``.nc``, see
         :mod:`foldcorr.saved`).
     spec : TableSpec
-        Column roles (ignored for a matrix, except ``classes``).
+        Column roles (ignored for a matrix, except ``classes``). With a saved
+        evaluation only ``classes`` applies (it reorders the saved classes);
+        the other options are refused (see :func:`check_saved_options`).
     matrix : bool, default False
         Read ``path`` as a counts matrix.
     where : str, optional
@@ -167,6 +170,8 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
     ------
     InvalidInputError
         On any problem with the file, naming file, column and row.
+    OptionError
+        When a table-only option is given with a saved evaluation.
 
     Examples
     --------
@@ -179,7 +184,11 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
     from foldcorr.saved import is_saved_path, load_saved
 
     if is_saved_path(path):  # a saved evaluation (NetCDF) stands wherever a table can
-        return load_saved(path).tensor
+        check_saved_options(path, spec, matrix=matrix, where=where,
+                            skip_bad_files=skip_bad_files, engine=engine, scheduler=scheduler)
+        t = load_saved(path).tensor
+        return t if spec.classes is None else _reorder_matrix(path, t, spec.classes,
+                                                              "saved evaluation")
     if matrix:
         t = read_matrix(path)
         if spec.classes is not None:
@@ -191,6 +200,58 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
                          weight=spec.weight, classes=spec.classes, where=where,
                          skip_bad_files=skip_bad_files, progress=progress,
                          engine=engine, scheduler=scheduler).tensor
+
+
+def check_saved_options(path, spec: TableSpec = TableSpec(), *, matrix: bool = False,
+                        where=None, skip_bad_files: bool = False, engine: str = "local",
+                        scheduler=None, id_column: str | None = None) -> None:
+    """Refuse options that describe a prediction table, given with a saved evaluation.
+
+    A saved evaluation holds counts already tallied: which columns they came
+    from, which rows were kept and how they were weighted cannot be changed
+    afterwards. Only ``spec.classes`` applies, as a new class order.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The saved evaluation (named in the message).
+    spec : TableSpec
+        Column roles; any but ``classes`` differing from the defaults is refused.
+    matrix, where, skip_bad_files, engine, scheduler, id_column
+        Options of :func:`load_tensor` (and the sample-id column); any set is
+        refused.
+
+    Raises
+    ------
+    OptionError
+        Naming the first option that does not apply (with its command-line
+        flag).
+
+    Examples
+    --------
+    >>> check_saved_options("run.nc", TableSpec(classes=("a", "b")))
+    >>> check_saved_options("run.nc", where="fold == 1")
+    Traceback (most recent call last):
+    ...
+    foldcorr.errors.OptionError: run.nc is a saved evaluation: its counts are already tallied, so `where` (--where) cannot apply; 'fold == 1' was given. Only `classes` (--classes) applies to a saved file
+    """
+    default = TableSpec()
+    given = [("truth", spec.truth != default.truth, spec.truth),
+             ("pred", spec.pred != default.pred, spec.pred),
+             ("fold", spec.fold != default.fold, spec.fold),
+             ("weight", spec.weight is not None, spec.weight),
+             ("matrix", bool(matrix), matrix),
+             ("where", where is not None, getattr(where, "text", where)),
+             ("skip_bad_files", bool(skip_bad_files), skip_bad_files),
+             ("engine", engine != "local", engine),
+             ("scheduler", scheduler is not None, scheduler),
+             ("id", id_column is not None, id_column)]
+    for name, is_set, value in given:
+        if is_set:
+            flag = "--" + name.replace("_", "-")
+            raise OptionError(f"{Path(path).name} is a saved evaluation: its counts are already "
+                              f"tallied, so `{name}` ({flag}) cannot apply; {value!r} was given. "
+                              "Only `classes` (--classes) applies to a saved file")
 
 
 def _load_in_memory(path, spec: TableSpec = TableSpec()) -> xr.DataArray:
@@ -295,7 +356,9 @@ def read_matrix(path) -> xr.DataArray:
     ------
     InvalidInputError
         When the matrix is not square, its row and column labels differ,
-        a label repeats, or a cell is empty, negative or not an integer.
+        a label repeats, or a cell is empty, negative, not an integer or
+        above the int64 range (naming its row and column), or the total is;
+        or every cell is 0 (no samples, like a table without rows).
 
     Examples
     --------
@@ -320,6 +383,8 @@ def read_matrix(path) -> xr.DataArray:
     _check_matrix_labels(path, rows, cols)
     cells = raw.iloc[1:, 1:].to_numpy()
     counts = _parse_counts(path, cells, rows, cols)
+    if not counts.any():  # as a table without rows: nothing to score
+        raise _fail(path, "the counts matrix holds no samples: every cell is 0")
     order = [cols.index(r) for r in rows]
     t = confusion_tensor(counts[:, order], rows, attrs={"source": path.name, "n_rows": 0})
     t.attrs["n_rows"] = int(counts.sum())
@@ -350,15 +415,34 @@ def _parse_counts(path, cells: np.ndarray, rows, cols) -> np.ndarray:
         text = flat.iloc[i * cells.shape[1] + j]
         what = "is empty" if not text else f"{text!r} is not a non-negative integer"
         raise _fail(path, f"row {rows[i]!r} column {cols[j]!r} (line {i + 2}): cell {what}")
-    return flat.astype(np.int64).to_numpy().reshape(cells.shape)
+    digits = flat.str.lstrip("+").str.lstrip("0")
+    limit = str(_INT64_MAX)
+    big = ((digits.str.len() > len(limit))
+           | ((digits.str.len() == len(limit)) & (digits > limit))).to_numpy(dtype=bool)
+    if big.any():
+        i, j = np.unravel_index(int(np.flatnonzero(big)[0]), cells.shape)
+        raise _fail(path, f"row {rows[i]!r} column {cols[j]!r} (line {i + 2}): count "
+                          f"{flat.iloc[i * cells.shape[1] + j]!r} is above the largest count "
+                          f"held exactly, {_INT64_MAX} (int64)")
+    counts = flat.astype(np.int64).to_numpy().reshape(cells.shape)
+    total = sum(int(v) for v in counts.sum(axis=1, dtype=object))
+    if total > _INT64_MAX:
+        raise _fail(path, f"the counts add up to {total}, above the largest total held exactly, "
+                          f"{_INT64_MAX} (int64)")
+    return counts
 
 
-def _reorder_matrix(path, t: xr.DataArray, classes) -> xr.DataArray:
+_INT64_MAX = int(np.iinfo(np.int64).max)
+
+
+def _reorder_matrix(path, t: xr.DataArray, classes, what: str = "matrix") -> xr.DataArray:
     have = [str(c) for c in t.coords[ACTUAL].values]
     wanted = [str(c) for c in classes]
     unknown = [c for c in wanted if c not in have]
     missing = [c for c in have if c not in wanted]
     if unknown or missing:
-        raise _fail(path, f"`classes` does not match the matrix labels: not in the matrix "
+        raise _fail(path, f"`classes` does not match the {what} labels: not in the {what} "
                           f"{unknown!r}, not in `classes` {missing!r}")
-    return t.sel({ACTUAL: wanted, PREDICTED: wanted})
+    by_text = dict(zip(have, t.coords[ACTUAL].values.tolist()))
+    order = [by_text[c] for c in wanted]
+    return t.sel({ACTUAL: order, PREDICTED: order})

@@ -68,6 +68,8 @@ BLOCK_BYTES = 1 << 24
 DIRECT_MAX = 1 << 11
 
 _INT_TEXT = re.compile(r"\s*[+-]?[0-9]+\s*")
+#: A decimal number written as text (after trimming), as ``--where`` reads one.
+_NUMBER_TEXT = r"^[+-]?([0-9]+\.?[0-9]*|\.[0-9]+)([eE][+-]?[0-9]+)?$"
 _BOOL_TEXT = {"True": True, "TRUE": True, "true": True,
               "False": False, "FALSE": False, "false": False}
 
@@ -191,22 +193,66 @@ class Where:
         walk(self.tree)
         return out
 
+    def check_columns(self, names) -> None:
+        """Raise when the filter names a column not among ``names``.
+
+        Examples
+        --------
+        >>> parse_where('split == "test"').check_columns(["actual", "predicted"])
+        Traceback (most recent call last):
+        ...
+        foldcorr.errors.InvalidInputError: `where` names column 'split', which the table does not have; it has ['actual', 'predicted']
+        """
+        for column in self.columns:
+            if column not in names:
+                raise InvalidInputError(
+                    f"`where` names column {column!r}, which the table does not have; "
+                    f"it has {list(names)!r}")
+
     def expression(self, schema):
         """The filter as a ``pyarrow.compute.Expression`` for a table of ``schema``.
 
-        A number compared with a text column is compared as its text, and a
-        text value compared with a numeric column is read as a number, so
-        ``fold == 1`` works on CSV columns read as text.
+        A number compared with a text column matches the texts that read as
+        that number (``1``, ``1.0``, `` 1 ``), and is ordered against the
+        column's values read as numbers (a text that is not a number is then
+        an error); ``true``/``false`` match ``True``/``TRUE``/``true`` and
+        their opposites. A text value compared with a numeric column is read
+        as a number. So ``fold == 1`` and ``fold < 3`` work on CSV columns,
+        which are read as text.
         """
         import pyarrow as pa
         import pyarrow.compute as pc
+
+        def is_text(column):
+            typ = schema.field(column).type
+            if pa.types.is_dictionary(typ):
+                typ = typ.value_type
+            return pa.types.is_string(typ) or pa.types.is_large_string(typ)
+
+        def text_number(column):
+            """The text column read as float64, null where it is not a number."""
+            trimmed = pc.utf8_trim_whitespace(pc.field(column).cast(pa.string()))
+            number = pc.match_substring_regex(trimmed, _NUMBER_TEXT)
+            return pc.if_else(number, trimmed, pa.scalar(None, pa.string())).cast(pa.float64())
+
+        def text_matches(column, values):
+            """True where a text column holds one of the numbers or booleans ``values``."""
+            out = None
+            numbers = [float(v) for v in values if not isinstance(v, bool)]
+            flags = [v for v in values if isinstance(v, bool)]
+            if numbers:
+                out = pc.is_in(text_number(column), value_set=pa.array(numbers, pa.float64()))
+            if flags:
+                texts = [t for t, b in _BOOL_TEXT.items() if b in flags]
+                hit = pc.is_in(pc.utf8_trim_whitespace(pc.field(column).cast(pa.string())),
+                               value_set=pa.array(texts, pa.string()))
+                out = hit if out is None else (out | hit)
+            return pc.coalesce(out, pa.scalar(False))
 
         def literal(column, value):
             typ = schema.field(column).type
             if pa.types.is_dictionary(typ):
                 typ = typ.value_type
-            if (pa.types.is_string(typ) or pa.types.is_large_string(typ)) and not isinstance(value, str):
-                return _number_text(value)
             if isinstance(value, str) and (pa.types.is_integer(typ) or pa.types.is_floating(typ)):
                 try:
                     return int(value) if pa.types.is_integer(typ) else float(value)
@@ -216,12 +262,23 @@ class Where:
                         f"with {value!r}") from None
             return value
 
+        self.check_columns(schema.names)
+
         def build(node):
             kind = node[0]
-            if kind in ("cmp", "in") and node[1] not in schema.names:
-                raise InvalidInputError(
-                    f"`where` names column {node[1]!r}, which the table does not have; "
-                    f"it has {list(schema.names)!r}")
+            if kind == "cmp" and is_text(node[1]) and not isinstance(node[3], str):
+                _, col, op, value = node
+                if op in ("==", "!="):
+                    hit = text_matches(col, [value])
+                    return hit if op == "==" else (pc.is_valid(pc.field(col)) & ~hit)
+                f = pc.utf8_trim_whitespace(pc.field(col).cast(pa.string())).cast(pa.float64())
+                v = float(value)
+                return {"<": f < v, "<=": f <= v, ">": f > v, ">=": f >= v}[op]
+            if kind == "in" and is_text(node[1]) and not all(isinstance(v, str) for v in node[2]):
+                _, col, values = node
+                words = [v for v in values if isinstance(v, str)]
+                hit = text_matches(col, [v for v in values if not isinstance(v, str)])
+                return (hit | pc.field(col).isin(words)) if words else hit
             if kind == "cmp":
                 _, col, op, value = node
                 f, v = pc.field(col), literal(col, value)
@@ -236,12 +293,6 @@ class Where:
             return (a & b) if kind == "and" else (a | b)
 
         return build(self.tree)
-
-
-def _number_text(value) -> str:
-    if isinstance(value, float) and value.is_integer():
-        return str(int(value))
-    return str(value)
 
 
 def parse_where(text: str) -> Where:
@@ -942,7 +993,8 @@ def _batches(path: Path, fmt: str, columns: list[str], text_columns: list[str], 
             parse_options=_parse_options(fmt),
             convert_options=pcsv.ConvertOptions(
                 include_columns=columns, strings_can_be_null=True,
-                column_types={c: pa.string() for c in text_columns}))
+                column_types={**{c: pa.float64() for c in columns if c not in text_columns},
+                              **{c: pa.string() for c in text_columns}}))
     else:
         import pyarrow.json as pjson
 
@@ -1053,7 +1105,16 @@ class _Plan:
         return cols
 
     def text_columns(self) -> list[str]:
-        return [self.truth, self.pred] + ([self.fold] if self.fold else [])
+        """Columns the CSV reader reads as text: labels, fold and the filter's columns.
+
+        Their types are then settled over all their values (labels) or
+        compared as :meth:`Where.expression` says (filter columns), never
+        guessed from the first block.
+        """
+        cols = [self.truth, self.pred] + ([self.fold] if self.fold else [])
+        if self.where is not None:
+            cols += [c for c in self.where.columns if c not in cols and c != self.weight]
+        return cols
 
     def new_tally(self) -> StreamTally:
         return StreamTally(self.truth, self.pred, self.fold, self.weight, text=self.text)
@@ -1207,7 +1268,13 @@ def _read(f, fmt, columns, text_cols, where, batch_rows):
         except FoldcorrError:
             raise
         except Exception as exc:  # pyarrow raises its own error types
-            raise _SkipFile(_fail(f, f"cannot read as {fmt}: {_first_line(exc)}")) from None
+            text = _first_line(exc)
+            if "conversion error to double" in text:  # data, not damage: never skipped
+                raise _fail(f, f"weights must be numbers ({text})") from None
+            if where is not None and text.startswith("Failed to parse string"):
+                raise _fail(f, f"`where` {where.text!r} orders a column against a number, but "
+                               f"the column holds text that is not a number ({text})") from None
+            raise _SkipFile(_fail(f, f"cannot read as {fmt}: {text}")) from None
         yield batch
 
 
@@ -1222,6 +1289,11 @@ def _checked_schema(f, fmt, truth, pred, fold, weight, first_types, where):
     if fold not in (None, "auto"):
         names.append(fold)
     _require(f, schema, names)
+    if where is not None:  # a filter naming a missing column is the caller's, never skipped
+        try:
+            where.check_columns(schema.names)
+        except InvalidInputError as exc:
+            raise _fail(f, str(exc)) from None
     if first_types:
         for col, kind in first_types.items():
             if col.startswith("__") or col not in schema.names:
@@ -1272,7 +1344,7 @@ def _locate_unknown(acc, files, role, bad_codes, labels, where, batch_rows) -> N
             name = acc.truth if which == "truth" else acc.pred
             extra = [] if where is None else [c for c in where.columns if c != name]
             first, count, rows = None, 0, 0
-            for batch in _read(f, fmt, [name, *extra], [name], where, batch_rows):
+            for batch in _read(f, fmt, [name, *extra], [name, *extra], where, batch_rows):
                 c, nulls = acc.coders[which].encode(batch.column(name))
                 hit = np.isin(c, bad)
                 if nulls is not None:

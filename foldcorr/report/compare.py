@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from foldcorr.report.json import dumps, plain
+from foldcorr.report.json import plain
 from foldcorr.report.tables import Column, Report, Table, format_value
 from foldcorr.report.uncertainty import percent
 
@@ -172,7 +172,7 @@ def compare_dict(c, *, labels=("A", "B"), names=None, source: str | None = None)
 
 def render_compare(c, fmt: str, *, labels=("A", "B"), names=None, top: int | None = 20,
                    source: str | None = None) -> str:
-    """A comparison as text (no colour), JSON or Markdown.
+    """A comparison as text (no colour), JSON, Markdown or one self-contained HTML page.
 
     Examples
     --------
@@ -182,17 +182,11 @@ def render_compare(c, fmt: str, *, labels=("A", "B"), names=None, top: int | Non
     >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
     >>> render_compare(c, "markdown").splitlines()[0]
     '## foldcorr compare'
+    >>> render_compare(c, "html").startswith("<!DOCTYPE html>")
+    True
     """
-    from foldcorr.errors import check_choice
+    from foldcorr.report.documents import render_report
 
-    check_choice("format", fmt, ("text", "json", "markdown"))
-    if fmt == "json":
-        return dumps(compare_dict(c, labels=labels, names=names, source=source))
     report = compare_report(c, labels=labels, names=names, top=top, source=source)
-    if fmt == "markdown":
-        from foldcorr.report.markdown import render_markdown
-
-        return render_markdown(report)
-    from foldcorr.report.text import render_text
-
-    return render_text(report)
+    return render_report(report, lambda: compare_dict(c, labels=labels, names=names,
+                                                      source=source), fmt)
