@@ -168,3 +168,7 @@ def test_intervals_refuse_weighted_tensors():
     t = multilabel_tally([[1, 0], [0, 1]], [[1, 0], [0, 1]], weights=[0.5, 1.5])
     with pytest.raises(FoldcorrError, match="weight"):
         multilabel_intervals(t, n_resamples=100, seed=1)
+    # Whole weights are still weights, not sample counts.
+    t = multilabel_tally([[1, 0], [0, 1]], [[1, 0], [0, 1]], weights=[10, 10])
+    with pytest.raises(FoldcorrError, match="weighted sums"):
+        multilabel_intervals(t, n_resamples=100, seed=1)
