@@ -421,6 +421,22 @@ def cohen_kappa(t, *, undefined: str = "zero") -> xr.DataArray:
     return _wrap(s, out, "kappa")
 
 
+def _count_sum(t: xr.DataArray, dims) -> xr.DataArray:
+    """Sum counts over ``dims`` without int64 overflow.
+
+    Integer counts stay int64 while the total is surely below 2**63 (the
+    float64 sum is below 2**62, and counts are non-negative so no partial sum
+    is larger); past that the float64 sum is returned, never a wrapped
+    negative value. Float counts are summed in float64.
+    """
+    if t.dtype.kind not in "iu":
+        return t.sum(dims)
+    approx = t.astype(np.float64).sum(dims)
+    if approx.size and float(approx.max()) >= 2.0**62:
+        return approx
+    return t.sum(dims)
+
+
 def support(t) -> xr.DataArray:
     """Per-class count of actual samples (row sums), dims ``(..., "class")``.
 
@@ -431,7 +447,7 @@ def support(t) -> xr.DataArray:
     [8, 4]
     """
     t = validate_tensor(t)
-    out = t.sum(PREDICTED).rename({ACTUAL: CLASS}).rename("support")
+    out = _count_sum(t, PREDICTED).rename({ACTUAL: CLASS}).rename("support")
     return out.drop_attrs() if hasattr(out, "drop_attrs") else out
 
 
@@ -445,7 +461,7 @@ def predicted_count(t) -> xr.DataArray:
     [7, 5]
     """
     t = validate_tensor(t)
-    out = t.sum(ACTUAL).rename({PREDICTED: CLASS}).rename("predicted")
+    out = _count_sum(t, ACTUAL).rename({PREDICTED: CLASS}).rename("predicted")
     return out.drop_attrs() if hasattr(out, "drop_attrs") else out
 
 
