@@ -109,3 +109,16 @@ def test_with_extra_merges_warnings():
 
     ev = fc.evaluate(fc.confusion_tensor([[5, 1], [1, 5]], ["x", "y"])).with_extra("s", Section())
     assert "s" in ev.extras and ev.warnings[-1] == "something to know"
+
+
+def test_a_tensor_without_classes_is_refused_at_validation():
+    # K = 0: no metric is defined and nothing can be reported; refused with one clear message
+    # by the boundary validator, not a numpy error from deep inside (common practice).
+    import xarray as xr
+
+    empty = xr.DataArray(np.zeros((0, 0), int), dims=("actual", "predicted"))
+    for run in (fc.evaluate, fc.rk, fc.top_confusion, fc.decompose):
+        with pytest.raises(fc.InvalidTensorError, match="needs at least one class"):
+            run(empty)
+    with pytest.raises(fc.InvalidTensorError, match="needs at least one class"):
+        fc.tally([], [])
