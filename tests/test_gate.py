@@ -106,6 +106,29 @@ def test_class_floors(capsys, good, tmp_path):
     assert "\x1b[" not in out
 
 
+def test_failing_classes_are_sorted_across_rules(capsys, good, tmp_path):
+    # docs/json.md: failing_classes lists "the furthest below first", over both class rules.
+    # Shortfalls computed from sklearn's one-vs-rest MCC (matthews_corrcoef, via ovr()).
+    path, df = good
+    mcc = {c: ovr(df, c) for c in CLASSES}
+    common = max(mcc.values()) + 0.01  # every class misses min_class_mcc
+    # One class misses its own floor by far more than any class misses the common one.
+    target = min(mcc, key=mcc.get)
+    floors = tmp_path / "floors.csv"
+    floors.write_text(f"class,floor\n{target},{min(mcc[target] + 0.5, 1.0):.6f}\n")
+    code, out, _ = run(capsys, "gate", path, "--min-class-mcc", common, "--class-floors",
+                       floors, "--format", "json")
+    assert code == 1
+    failing = json.loads(out)["failing_classes"]
+    shortfalls = [f["mcc"] - f["floor"] for f in failing]
+    expected = sorted([(mcc[c] - common, "min_class_mcc", c) for c in CLASSES]
+                      + [(mcc[target] - round(min(mcc[target] + 0.5, 1.0), 6), "class_floors",
+                          target)])
+    assert [(f["class"], f["rule"]) for f in failing] == [(c, r) for _, r, c in expected]
+    np.testing.assert_allclose(shortfalls, [v for v, _, _ in expected], atol=1e-9)
+    assert failing[0]["rule"] == "class_floors"  # it came second among the rules
+
+
 def test_floors_for_unknown_classes(capsys, good, tmp_path):
     path, _ = good
     floors = tmp_path / "floors.csv"
