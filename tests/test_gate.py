@@ -144,6 +144,16 @@ def test_floors_for_unknown_classes(capsys, good, tmp_path):
     assert code == 2 and "the floors file lists no class" in err
 
 
+def test_floors_file_that_is_not_utf8(capsys, good, tmp_path):
+    path, _ = good
+    floors = tmp_path / "floors.csv"
+    floors.write_bytes("class,floor\nurchin,0.5\nlimpet \u00e9,0.2\n".encode("latin-1"))
+    code, out, err = run(capsys, "gate", path, "--class-floors", floors)
+    assert code == 2 and out == ""
+    assert "floors.csv: the floors file is not UTF-8 text (byte b'\\xe9' at offset" in err
+    assert err.count("\n") == 1
+
+
 def test_baseline_drop_against_hand_computed_difference(capsys, tmp_path):
     # Two runs on the same samples; the drop is the difference of the reference library's MCCs.
     base_csv, new_csv = tmp_path / "base.csv", tmp_path / "new.csv"
