@@ -25,12 +25,26 @@ def test_pooled_and_per_fold_figures_match_reference():
 
 
 def test_per_class_table_is_complete_and_sorted_by_drag():
-    t = fc.confusion_tensor([[50, 5, 0], [20, 10, 0], [0, 0, 15]], ["a", "b", "c"])
-    ev = fc.evaluate(t)
+    counts = np.array([[50, 5, 0], [20, 10, 0], [0, 0, 15]])
+    classes = ["a", "b", "c"]
+    ev = fc.evaluate(fc.confusion_tensor(counts, classes))
     table = ev.by_drag()
-    # Class a: weight 0.437, MCC 0.504 -> drag 0.217 just above b's 0.314 * (1 - 0.336) = 0.208.
-    assert table.coords["class"].values.tolist() == ["a", "b", "c"]
-    assert np.all(np.diff(table["drag"].values) <= 0)
+    # Expected order from outside the package: one-vs-rest MCC from
+    # sklearn.metrics.matthews_corrcoef on the samples, and the drag w_k (1 - MCC_k) with
+    # w_k = sqrt(a_k b_k) / sqrt(sum a * sum b), a_k = p_k (s - p_k), b_k = t_k (s - t_k)
+    # (the decomposition of Gorodkin's R_K, docs/decomposition.md).
+    rows, cols = np.nonzero(counts)
+    y = np.repeat(rows, counts[rows, cols])
+    p = np.repeat(cols, counts[rows, cols])
+    mcc = np.array([matthews_corrcoef(y == k, p == k) for k in range(3)])
+    s, t_k, p_k = counts.sum(), counts.sum(axis=1), counts.sum(axis=0)
+    a, b = p_k * (s - p_k), t_k * (s - t_k)
+    weight = np.sqrt(a * b) / np.sqrt(a.sum() * b.sum())
+    drag = weight * (1 - mcc)
+    expected = [classes[k] for k in np.argsort(-drag, kind="stable")]
+    assert table.coords["class"].values.tolist() == expected
+    np.testing.assert_allclose(table["drag"].values, np.sort(drag)[::-1], atol=1e-12)
+    np.testing.assert_allclose(ev.per_class["mcc"].values, mcc, atol=1e-12)
     assert set(ev.per_class.data_vars) >= {"support", "predicted", "mcc", "weight", "contribution",
                                            "drag", "recall", "precision", "f1", "top_confusion"}
     assert ev.per_class["support"].values.tolist() == [55, 30, 15]
