@@ -127,6 +127,9 @@ class RuleResult:
         Whether the rule holds.
     detail : str
         A sentence with what the figure is and where it fell short.
+    interval : tuple of float or None
+        ``(low, high)`` bootstrap interval of the figure (the drop, with a
+        confidence level), or None.
     """
 
     rule: str
@@ -135,6 +138,7 @@ class RuleResult:
     op: str
     passed: bool
     detail: str = ""
+    interval: tuple[float, float] | None = None
 
     @property
     def title(self) -> str:
@@ -423,7 +427,8 @@ def _drop_rule(ev, baseline, rules: GateRules, samples, baseline_samples):
     detail = (f"{head}; drop {_f(drop)}, {level} interval [{_f(low)}, {_f(high)}] "
               f"({how}); a regression only when the whole interval lies above "
               f"{rules.max_drop:g}")
-    return (RuleResult("max_drop", drop, rules.max_drop, "<=", passed, detail),
+    return (RuleResult("max_drop", drop, rules.max_drop, "<=", passed, detail,
+                       interval=(low, high)),
             how.split()[0], notes + more)
 
 
