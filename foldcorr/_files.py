@@ -18,8 +18,14 @@ def atomic_target(path, *, suffix: str = ""):
     """Yield a temporary path beside ``path``; rename it onto ``path`` on success.
 
     A non-regular existing target (a device, a pipe) is yielded as is: it is
-    written directly and never replaced. On any error the temporary file is
-    removed and the target is left as it was.
+    written directly and never replaced. An existing folder is refused. On any
+    error the temporary file is removed and the target is left as it was.
+
+    Raises
+    ------
+    InvalidInputError
+        When ``path`` is an existing folder, its folder does not exist, or no
+        temporary file can be made there.
 
     Examples
     --------
@@ -31,6 +37,10 @@ def atomic_target(path, *, suffix: str = ""):
     'done'
     """
     target = Path(path)
+    if target.is_dir():
+        raise InvalidInputError(
+            f"cannot write {str(target)!r}: it is a folder; give a file path (or a device "
+            "or pipe), e.g. a name inside that folder")
     if target.exists() and not stat.S_ISREG(target.stat().st_mode):
         yield target
         return

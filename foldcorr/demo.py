@@ -15,6 +15,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from foldcorr.errors import InvalidInputError
+
 __all__ = ["TAXA", "make_demo", "write_demo", "DEMO_FILE"]
 
 DEMO_FILE = "plankton_predictions.csv"
@@ -118,6 +120,11 @@ def write_demo(folder, *, n: int = 24_000, seed: int = 20261201) -> Path:
     pathlib.Path
         The path of the CSV file.
 
+    Raises
+    ------
+    InvalidInputError
+        When ``folder`` exists and is not a folder, or cannot be created.
+
     Examples
     --------
     >>> import tempfile
@@ -127,7 +134,16 @@ def write_demo(folder, *, n: int = 24_000, seed: int = 20261201) -> Path:
     from foldcorr._files import write_text
 
     folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
+    if folder.exists() and not folder.is_dir():
+        raise InvalidInputError(
+            f"the demo folder (`folder`, --out) {str(folder)!r} is an existing file; give a "
+            "folder, existing or new")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise InvalidInputError(
+            f"cannot create the demo folder (`folder`, --out) {str(folder)!r}: "
+            f"{exc.strerror}") from None
     path = folder / DEMO_FILE
     write_text(path, make_demo(n, seed=seed).to_csv(index=False))
     return path

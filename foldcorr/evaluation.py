@@ -215,7 +215,7 @@ def evaluate(t, *, undefined: str = "zero") -> Evaluation:
     if FOLD in t.dims:
         folds = _collect(notes, "per fold", lambda: _per_fold(t, undefined))
         summary = FoldSummary.of(folds["rk"].values)
-    notes.extend(_accuracy_hides(pooled))
+    notes.extend(_accuracy_hides(pooled, per_class))
     return Evaluation(
         tensor=t,
         pooled=pooled,
@@ -242,7 +242,7 @@ def _collect(notes: list, context: str, compute):
 def _pooled(t, undefined) -> xr.Dataset:
     figures = {name: fn(t, undefined=undefined) for name, fn in POOLED_FIGURES.items()}
     figures["marginal_mismatch"] = m.decompose(t, undefined=undefined)["marginal_mismatch"]
-    figures["n"] = t.sum((ACTUAL, PREDICTED))
+    figures["n"] = m._count_sum(t, (ACTUAL, PREDICTED))
     return xr.Dataset({k: v.drop_attrs() if hasattr(v, "drop_attrs") else v for k, v in figures.items()})
 
 
@@ -266,13 +266,16 @@ def _per_class(t, undefined) -> xr.Dataset:
 
 def _per_fold(t, undefined) -> xr.Dataset:
     figures = {name: POOLED_FIGURES[name](t, undefined=undefined) for name in FOLD_FIGURES}
-    figures["n"] = t.sum((ACTUAL, PREDICTED))
+    figures["n"] = m._count_sum(t, (ACTUAL, PREDICTED))
     return xr.Dataset(figures)
 
 
-def _accuracy_hides(pooled: xr.Dataset) -> list[str]:
+def _accuracy_hides(pooled: xr.Dataset, per_class: xr.Dataset) -> list[str]:
     acc, rk = float(pooled["accuracy"]), float(pooled["rk"])
-    if acc >= ACCURACY_LOOKS_GOOD and rk < ACCURACY_HIDES_RK:
+    # R_K is 0/0 unless truth and predictions each cover at least two classes; then the
+    # undefined warning already says so, and "R_K is only 0.000" would mislead.
+    rk_defined = all(int((per_class[v] > 0).sum()) >= 2 for v in ("support", "predicted"))
+    if rk_defined and acc >= ACCURACY_LOOKS_GOOD and rk < ACCURACY_HIDES_RK:
         return [
             f"accuracy is {acc:.3f} but R_K is only {rk:.3f}: the accuracy comes mostly from "
             "frequent classes, and the predictions are weakly correlated with the truth once "

@@ -35,7 +35,7 @@ def read_class_floors(path, classes) -> dict:
     Raises
     ------
     InvalidInputError
-        When the file is missing or empty, a line does not have two cells, a
+        When the file is missing, empty or not UTF-8 CSV text, a line does not have two cells, a
         floor is not a number in [-1, 1], a class is listed twice, or a class
         is not among ``classes``.
 
@@ -59,8 +59,17 @@ def read_class_floors(path, classes) -> dict:
     shown = list(by_text)[:10]
     known = "[" + ", ".join(repr(c) for c in shown) + (", ..." if len(by_text) > 10 else "") + "]"
     floors: dict = {}
-    with open(path, newline="", encoding="utf-8-sig") as fh:
-        rows = [(i + 1, row) for i, row in enumerate(csv.reader(fh)) if any(c.strip() for c in row)]
+    try:
+        with open(path, newline="", encoding="utf-8-sig") as fh:
+            rows = [(i + 1, row) for i, row in enumerate(csv.reader(fh))
+                    if any(c.strip() for c in row)]
+    except UnicodeDecodeError as exc:
+        bad = exc.object[exc.start:exc.start + 1]
+        raise InvalidInputError(
+            f"{path.name}: the floors file is not UTF-8 text (byte {bad!r} at offset "
+            f"{exc.start}); save it as UTF-8 with lines class,floor") from None
+    except csv.Error as exc:
+        raise InvalidInputError(f"{path.name}: cannot read the floors file as CSV: {exc}") from None
     if not rows:
         raise InvalidInputError(f"{path.name}: the floors file is empty; expected lines class,floor")
     if [c.strip().lower() for c in rows[0][1]] == ["class", "floor"]:

@@ -127,6 +127,9 @@ class RuleResult:
         Whether the rule holds.
     detail : str
         A sentence with what the figure is and where it fell short.
+    interval : tuple of float or None
+        ``(low, high)`` bootstrap interval of the figure (the drop, with a
+        confidence level), or None.
     """
 
     rule: str
@@ -135,6 +138,7 @@ class RuleResult:
     op: str
     passed: bool
     detail: str = ""
+    interval: tuple[float, float] | None = None
 
     @property
     def title(self) -> str:
@@ -176,7 +180,8 @@ class GateResult:
     rules : tuple of RuleResult
         Every rule checked, in a fixed order.
     failing_classes : tuple of ClassShortfall
-        Classes below their floors.
+        Classes below their floors, over every rule, the furthest below
+        first (an undefined MCC first of all; ties in rule order).
     evaluation : Evaluation
         The evaluation gated.
     baseline : Evaluation or None
@@ -302,6 +307,7 @@ def check_gate(ev: Evaluation, rules: GateRules, *, baseline: Evaluation | None 
         rule, comparison, more = _drop_rule(ev, baseline, rules, samples, baseline_samples)
         out.append(rule)
         notes.extend(more)
+    short.sort(key=_furthest_below_first)  # across rules, as documented in docs/json.md
     return GateResult(passed=all(r.passed for r in out), rules=tuple(out),
                       failing_classes=tuple(short), evaluation=ev, baseline=baseline,
                       comparison=comparison, warnings=tuple(dict.fromkeys(notes)))
@@ -329,6 +335,11 @@ def _fold_rule(ev: Evaluation, threshold: float) -> RuleResult:
     return RuleResult("min_fold_rk", value, threshold, ">=", not bad, detail)
 
 
+def _furthest_below_first(c: ClassShortfall) -> float:
+    """Sort key of a shortfall: MCC - floor, an undefined MCC first; ties keep their order."""
+    return (c.mcc - c.floor) if math.isfinite(c.mcc) else -math.inf
+
+
 def _class_rule(ev: Evaluation, floors: dict, name: str):
     pc = ev.per_class
     labels = pc.coords["class"].values.tolist()
@@ -342,7 +353,7 @@ def _class_rule(ev: Evaluation, floors: dict, name: str):
         if not _holds(mcc[i], floor, ">="):
             missed.append(ClassShortfall(label, float(mcc[i]), float(floor),
                                          float(support[i]), name))
-    missed.sort(key=lambda c: (c.mcc - c.floor) if math.isfinite(c.mcc) else -math.inf)
+    missed.sort(key=_furthest_below_first)
     checked = len(floors)
     if name == "min_class_mcc":
         value = float(np.nanmin(mcc)) if np.isfinite(mcc).any() else math.nan
@@ -416,7 +427,8 @@ def _drop_rule(ev, baseline, rules: GateRules, samples, baseline_samples):
     detail = (f"{head}; drop {_f(drop)}, {level} interval [{_f(low)}, {_f(high)}] "
               f"({how}); a regression only when the whole interval lies above "
               f"{rules.max_drop:g}")
-    return (RuleResult("max_drop", drop, rules.max_drop, "<=", passed, detail),
+    return (RuleResult("max_drop", drop, rules.max_drop, "<=", passed, detail,
+                       interval=(low, high)),
             how.split()[0], notes + more)
 
 

@@ -75,6 +75,10 @@ class _Sums:
             predicted=cells.sum(axis=-2),
         )
 
+    def rk_parts(self):
+        """Numerator and denominator sums of R_K over the leading dims (see :func:`_rk_parts`)."""
+        return _rk_parts(self.trace, self.total, self.actual, self.predicted)
+
     def spread_actual(self) -> np.ndarray:
         """b_k = t_k (s - t_k), per class."""
         return self.actual * (self.total[..., None] - self.actual)
@@ -82,6 +86,38 @@ class _Sums:
     def spread_predicted(self) -> np.ndarray:
         """a_k = p_k (s - p_k), per class."""
         return self.predicted * (self.total[..., None] - self.predicted)
+
+
+def _rk_parts(trace, total, actual, predicted):
+    """R_K's numerator and denominator sums from margins (Gorodkin 2004).
+
+    ``N = c s - sum_k t_k p_k``, ``D_p = sum_k p_k (s - p_k)`` and
+    ``D_t = sum_k t_k (s - t_k)``, so R_K = N / sqrt(D_p D_t). Margins may be
+    any arrays that broadcast (``trace`` and ``total`` over the leading dims,
+    ``actual`` and ``predicted`` with the class axis last), so counterfactual
+    margins (a repaired or reduced matrix) go through the same formula. The
+    sums p_k (s - p_k) keep their digits where s^2 - sum p_k^2 would cancel.
+    """
+    s = np.asarray(total, dtype=np.float64)[..., None]
+    num = trace * total - (actual * predicted).sum(axis=-1)
+    dp = (predicted * (s - predicted)).sum(axis=-1)
+    dt = (actual * (s - actual)).sum(axis=-1)
+    return num, dp, dt
+
+
+def _correlation(num, dp, dt, undefined: str):
+    """num / sqrt(dp dt) clipped to [-1, 1], the convention where 0/0; and the 0/0 mask.
+
+    The one correlation formula behind R_K, one-vs-rest MCC and every
+    counterfactual R_K of :mod:`foldcorr.repair`. It does not warn; callers
+    name where the value is undefined.
+    """
+    den = np.sqrt(np.maximum(dp, 0.0)) * np.sqrt(np.maximum(dt, 0.0))
+    bad = den == 0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        value = np.clip(num / np.where(bad, 1.0, den), -1.0, 1.0)
+    fill = 0.0 if undefined == "zero" else np.nan
+    return np.where(bad, fill, value), bad
 
 
 def _lead(t: xr.DataArray):
@@ -110,7 +146,8 @@ def _ratio(num, den, sums: _Sums, what: str, undefined: str, *, per_class=False)
     return out
 
 
-def _warn_undefined(sums: _Sums, bad: np.ndarray, what: str, undefined: str, *, per_class):
+def _warn_undefined(sums: _Sums, bad: np.ndarray, what: str, undefined: str, *, per_class,
+                    stacklevel: int = 4):
     dims, _ = _lead(sums.tensor)
     names = [*dims, CLASS] if per_class else dims
     labels = [
@@ -128,7 +165,7 @@ def _warn_undefined(sums: _Sums, bad: np.ndarray, what: str, undefined: str, *, 
     warnings.warn(
         f"{what} is undefined (0/0) at {where}; reported as {value} (undefined={undefined!r})",
         UndefinedMetricWarning,
-        stacklevel=4,
+        stacklevel=stacklevel,
     )
 
 
@@ -180,10 +217,11 @@ def rk(t, *, undefined: str = "zero") -> xr.DataArray:
     >>> round(float(rk(t)), 6)
     0.478091
     """
+    check_choice("undefined", undefined, UNDEFINED_CHOICES)
     s = _Sums.of(t)
-    num = s.trace * s.total - (s.actual * s.predicted).sum(axis=-1)
-    den = np.sqrt(s.spread_actual().sum(axis=-1)) * np.sqrt(s.spread_predicted().sum(axis=-1))
-    out = np.clip(_ratio(num, den, s, "R_K", undefined), -1.0, 1.0)
+    out, bad = _correlation(*s.rk_parts(), undefined)
+    if bad.any():
+        _warn_undefined(s, bad, "R_K", undefined, per_class=False, stacklevel=3)
     return _wrap(s, out, "rk")
 
 
@@ -227,10 +265,12 @@ def ovr_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
     >>> ovr_mcc(t).round(4).values.tolist()
     [0.7, 0.6591, 0.7222]
     """
+    check_choice("undefined", undefined, UNDEFINED_CHOICES)
     s = _Sums.of(t)
     num = s.total[..., None] * s.diag - s.actual * s.predicted
-    den = np.sqrt(s.spread_actual()) * np.sqrt(s.spread_predicted())
-    out = np.clip(_ratio(num, den, s, "one-vs-rest MCC", undefined, per_class=True), -1, 1)
+    out, bad = _correlation(num, s.spread_predicted(), s.spread_actual(), undefined)
+    if bad.any():
+        _warn_undefined(s, bad, "one-vs-rest MCC", undefined, per_class=True, stacklevel=3)
     return _wrap(s, out, "mcc", per_class=True)
 
 
@@ -421,6 +461,22 @@ def cohen_kappa(t, *, undefined: str = "zero") -> xr.DataArray:
     return _wrap(s, out, "kappa")
 
 
+def _count_sum(t: xr.DataArray, dims) -> xr.DataArray:
+    """Sum counts over ``dims`` without int64 overflow.
+
+    Integer counts stay int64 while the total is surely below 2**63 (the
+    float64 sum is below 2**62, and counts are non-negative so no partial sum
+    is larger); past that the float64 sum is returned, never a wrapped
+    negative value. Float counts are summed in float64.
+    """
+    if t.dtype.kind not in "iu":
+        return t.sum(dims)
+    approx = t.astype(np.float64).sum(dims)
+    if approx.size and float(approx.max()) >= 2.0**62:
+        return approx
+    return t.sum(dims)
+
+
 def support(t) -> xr.DataArray:
     """Per-class count of actual samples (row sums), dims ``(..., "class")``.
 
@@ -431,7 +487,7 @@ def support(t) -> xr.DataArray:
     [8, 4]
     """
     t = validate_tensor(t)
-    out = t.sum(PREDICTED).rename({ACTUAL: CLASS}).rename("support")
+    out = _count_sum(t, PREDICTED).rename({ACTUAL: CLASS}).rename("support")
     return out.drop_attrs() if hasattr(out, "drop_attrs") else out
 
 
@@ -445,7 +501,7 @@ def predicted_count(t) -> xr.DataArray:
     [7, 5]
     """
     t = validate_tensor(t)
-    out = t.sum(ACTUAL).rename({PREDICTED: CLASS}).rename("predicted")
+    out = _count_sum(t, ACTUAL).rename({PREDICTED: CLASS}).rename("predicted")
     return out.drop_attrs() if hasattr(out, "drop_attrs") else out
 
 

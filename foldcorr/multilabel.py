@@ -311,9 +311,13 @@ def _check_multilabel(t) -> xr.DataArray:
 
 
 def _macro(per_label_mcc: xr.DataArray, present: xr.DataArray, undefined: str) -> xr.DataArray:
-    """Mean MCC over the labels present; undefined where no label is present."""
+    """Mean MCC over the labels present; undefined where no label is present.
+
+    A present label whose MCC is NaN (``undefined="nan"``) makes the mean NaN,
+    as :func:`foldcorr.metrics.macro_mcc` does: ``skipna=False``.
+    """
     k = present.sum(LABEL)
-    total = per_label_mcc.where(present, 0.0).sum(LABEL)
+    total = per_label_mcc.where(present, 0.0).sum(LABEL, skipna=False)
     value = np.nan if undefined == "nan" else 0.0
     return xr.where(k > 0, total / k.where(k > 0, 1), value)
 
@@ -385,7 +389,7 @@ def evaluate_multilabel(t, *, undefined: str = "zero") -> MultilabelEvaluation:
     present = (per_label["support"] + per_label["predicted"]) > 0
     macro = _macro(per_label["mcc"], present, undefined)
     weight = per_label["support"].astype(float)
-    weighted = _ratio_scalar(float((weight * per_label["mcc"]).sum()), float(weight.sum()),
+    weighted = _ratio_scalar(float(_weighted_sum(weight, per_label["mcc"])), float(weight.sum()),
                              undefined, notes, "support-weighted MCC (no label has a positive)")
     folds = None
     if FOLD in t.dims:
@@ -408,6 +412,14 @@ def evaluate_multilabel(t, *, undefined: str = "zero") -> MultilabelEvaluation:
 
 def _num(v: float):
     return int(v) if float(v).is_integer() else float(v)
+
+
+def _weighted_sum(weight: xr.DataArray, mcc: xr.DataArray) -> xr.DataArray:
+    """Sum over labels of weight x MCC; NaN when a label with weight has a NaN MCC.
+
+    A label with no support has weight 0 and adds nothing, whatever its MCC.
+    """
+    return (weight * mcc.where(weight > 0, 0.0)).sum(LABEL, skipna=False)
 
 
 def _ratio_scalar(num, den, undefined, notes, what) -> float:
@@ -504,7 +516,7 @@ def _macro_of(x, *, undefined="zero"):
 def _weighted_of(x, *, undefined="zero"):
     weight = _positive(m.support(x)).astype(float)
     total = weight.sum(LABEL)
-    value = (weight * m.mcc(x, undefined=undefined)).sum(LABEL)
+    value = _weighted_sum(weight, m.mcc(x, undefined=undefined))
     return xr.where(total > 0, value / total.where(total > 0, 1), 0.0 if undefined == "zero"
                     else np.nan)
 

@@ -39,7 +39,7 @@ from foldcorr.errors import (
     UndefinedMetricWarning,
     check_choice,
 )
-from foldcorr.metrics import UNDEFINED_CHOICES, decompose
+from foldcorr.metrics import UNDEFINED_CHOICES, _correlation, _rk_parts, _Sums, decompose
 from foldcorr.tensor import ACTUAL, CLASS, FOLD, PREDICTED, pool, validate_tensor
 
 __all__ = [
@@ -68,22 +68,8 @@ _MAX_PLACES = 5
 
 
 @dataclass(frozen=True)
-class _Margins:
-    tensor: xr.DataArray
-    cells: np.ndarray  # (..., K, K) float64
-    total: np.ndarray  # (...)
-    trace: np.ndarray  # (...)
-    diag: np.ndarray  # (..., K)
-    actual: np.ndarray  # (..., K) t
-    predicted: np.ndarray  # (..., K) p
-
-    @classmethod
-    def of(cls, t) -> _Margins:
-        t = validate_tensor(t)
-        cells = np.asarray(t.values, dtype=np.float64)
-        diag = np.diagonal(cells, axis1=-2, axis2=-1)
-        return cls(t, cells, cells.sum(axis=(-2, -1)), diag.sum(axis=-1), diag,
-                   cells.sum(axis=-1), cells.sum(axis=-2))
+class _Margins(_Sums):
+    """The margins of :class:`foldcorr.metrics._Sums`, with labels for the repair results."""
 
     @property
     def k(self) -> int:
@@ -91,11 +77,7 @@ class _Margins:
 
     def parts(self):
         """N, D_p and D_t of the matrix itself, over the leading dims."""
-        s = self.total
-        n = self.trace * s - (self.actual * self.predicted).sum(axis=-1)
-        dp = s * s - (self.predicted**2).sum(axis=-1)
-        dt = s * s - (self.actual**2).sum(axis=-1)
-        return n, dp, dt
+        return self.rk_parts()
 
     def lead(self):
         dims = [d for d in self.tensor.dims if d not in (ACTUAL, PREDICTED)]
@@ -115,16 +97,6 @@ class _Margins:
         for d in tail:
             coords[d] = self.tensor.coords[ACTUAL].values
         return xr.DataArray(values, dims=[*dims, *tail], coords=coords, name=name)
-
-
-def _corr(n, dp, dt, undefined: str):
-    """N / sqrt(D_p D_t) clipped to [-1, 1], the convention where 0/0; and the 0/0 mask."""
-    den = np.sqrt(np.maximum(dp, 0.0)) * np.sqrt(np.maximum(dt, 0.0))
-    bad = den == 0
-    with np.errstate(divide="ignore", invalid="ignore"):
-        value = np.clip(n / np.where(bad, 1.0, den), -1.0, 1.0)
-    fill = 0.0 if undefined == "zero" else np.nan
-    return np.where(bad, fill, value), bad
 
 
 def _warn(m: _Margins, bad: np.ndarray, what: str, undefined: str, tail=()) -> None:
@@ -148,7 +120,7 @@ def _warn(m: _Margins, bad: np.ndarray, what: str, undefined: str, tail=()) -> N
 
 def _base(m: _Margins, undefined: str):
     n, dp, dt = m.parts()
-    before, bad = _corr(n, dp, dt, undefined)
+    before, bad = _correlation(n, dp, dt, undefined)
     _warn(m, bad, "R_K before repair", undefined)
     return n, dp, dt, before
 
@@ -221,7 +193,7 @@ def pair_gains(t, *, undefined: str = "zero") -> xr.DataArray:
     p_i, p_j = m.predicted[..., :, None], m.predicted[..., None, :]
     n2 = n[..., None, None] + moved * (s - t_i + t_j)
     dp2 = dp[..., None, None] - 2.0 * moved * (p_i - p_j + moved)
-    after, bad = _corr(n2, dp2, dt[..., None, None], undefined)
+    after, bad = _correlation(n2, dp2, dt[..., None, None], undefined)
     bad &= ~np.broadcast_to(_undefined_mask(dp, dt)[..., None, None], bad.shape)
     _warn(m, bad, "R_K after moving a confusion cell to the diagonal", undefined,
           (ACTUAL, PREDICTED))
@@ -313,9 +285,8 @@ def class_gains(t, *, undefined: str = "zero") -> xr.Dataset:
     out = {}
     was_bad = _undefined_mask(dp, dt)[..., None]
     for name, (margins, trace) in new_p.items():
-        n2 = trace * s - (margins * t_[..., None, :]).sum(axis=-1)
-        dp2 = s * s - (margins**2).sum(axis=-1)
-        after, bad = _corr(n2, dp2, dt[..., None], undefined)
+        n2, dp2, _ = _rk_parts(trace, s, t_[..., None, :], margins)
+        after, bad = _correlation(n2, dp2, dt[..., None], undefined)
         _warn(m, bad & ~was_bad, what[name], undefined, (CLASS,))
         out[name] = m.wrap(after - before[..., None], name, (CLASS,))
     return xr.Dataset(out)
@@ -373,9 +344,7 @@ def leave_class_out(t, *, undefined: str = "zero") -> xr.DataArray:
     # row k of each array: the margins left after dropping class k (zero at k)
     t2 = np.where(keep, m.actual[..., None, :] - np.swapaxes(m.cells, -1, -2), 0.0)
     p2 = np.where(keep, m.predicted[..., None, :] - m.cells, 0.0)
-    n2 = c2 * s2 - (t2 * p2).sum(axis=-1)
-    after, bad = _corr(n2, s2 * s2 - (p2**2).sum(axis=-1), s2 * s2 - (t2**2).sum(axis=-1),
-                       undefined)
+    after, bad = _correlation(*_rk_parts(c2, s2, t2, p2), undefined)
     _warn(m, bad, "R_K without a class", undefined, (CLASS,))
     return m.wrap(after - before[..., None], "leave_out_delta", (CLASS,))
 
@@ -694,7 +663,7 @@ def repair_analysis(t, *, top: int | None = 20, stability_top: int = 5,
             per_class[name] = stability[name]
     m = _Margins.of(pooled)
     n, dp, dt = m.parts()
-    rk_value, _ = _corr(n, dp, dt, undefined)
+    rk_value, _ = _correlation(n, dp, dt, undefined)
     return RepairAnalysis(
         rk=float(rk_value),
         pair_gain=gains,

@@ -36,10 +36,11 @@ def target_prevalence(t, prevalence) -> xr.DataArray:
     t : xarray.DataArray
         Confusion tensor whose class coordinate the target refers to.
     prevalence : "uniform", mapping of class to float, or array_like
-        ``"uniform"`` gives every class 1/K; a mapping names classes (by
-        label, or by the label's text, so ``{"3": 0.5}`` finds class ``3``);
-        classes it leaves out get 0; an array gives one value per class in
-        tensor order.
+        ``"uniform"`` gives 1/K' to each of the K' classes with samples in
+        ``t`` (summed over every leading dim) and 0 to a class that occurs
+        only in predictions; a mapping names classes (by label, or by the
+        label's text, so ``{"3": 0.5}`` finds class ``3``); classes it leaves
+        out get 0; an array gives one value per class in tensor order.
 
     Returns
     -------
@@ -50,7 +51,8 @@ def target_prevalence(t, prevalence) -> xr.DataArray:
     ------
     InvalidInputError
         On an unknown class name, a negative or non-finite value, a sum other
-        than 1 (tolerance 1e-6), or an array of the wrong length.
+        than 1 (tolerance 1e-6), an array of the wrong length, or
+        ``"uniform"`` on a tensor with no samples.
 
     Examples
     --------
@@ -60,6 +62,9 @@ def target_prevalence(t, prevalence) -> xr.DataArray:
     [0.9, 0.1]
     >>> target_prevalence(t, "uniform").values.tolist()
     [0.5, 0.5]
+    >>> only_predicted = confusion_tensor([[8, 1, 1], [2, 7, 1], [0, 0, 0]], ["cod", "hake", "ling"])
+    >>> target_prevalence(only_predicted, "uniform").values.tolist()
+    [0.5, 0.5, 0.0]
     """
     t = validate_tensor(t)
     classes = t.coords[ACTUAL].values.tolist()
@@ -69,7 +74,12 @@ def target_prevalence(t, prevalence) -> xr.DataArray:
             raise InvalidInputError(
                 f"`prevalence` must be 'uniform', a mapping of class to share, or one share "
                 f"per class; got {prevalence!r}")
-        values = np.full(k, 1.0 / k)
+        support = _support(t) > 0
+        if not support.any():
+            raise InvalidInputError(
+                "`prevalence` 'uniform' spreads over the classes with samples, and this "
+                f"tensor has none (classes {classes!r})")
+        values = np.where(support, 1.0 / int(support.sum()), 0.0)
     elif isinstance(prevalence, Mapping):
         by_text = {str(c): i for i, c in enumerate(classes)}
         values = np.zeros(k)
@@ -94,6 +104,11 @@ def target_prevalence(t, prevalence) -> xr.DataArray:
             f"`prevalence` must sum to 1; got {total!r} over "
             f"{list(zip(classes, values.tolist()))!r}")
     return xr.DataArray(values / total, dims=CLASS, coords={CLASS: classes}, name="prevalence")
+
+
+def _support(t: xr.DataArray) -> np.ndarray:
+    """Samples of each actual class, summed over every leading dim (tensor order)."""
+    return np.asarray(t.values).reshape(-1, t.sizes[ACTUAL], t.sizes[PREDICTED]).sum(axis=(0, 2))
 
 
 def _share(name, value) -> float:
@@ -129,7 +144,8 @@ def shift_prevalence(t, prevalence) -> xr.DataArray:
     ------
     InvalidInputError
         On a bad target, or when a class with a positive target share has no
-        samples in a slice (its row cannot be rescaled).
+        samples in a slice (its row cannot be rescaled): none at all (it
+        occurs only in predictions), or none in one leading slice.
 
     Notes
     -----
@@ -164,13 +180,18 @@ def shift_prevalence(t, prevalence) -> xr.DataArray:
     if missing.any():
         index = np.argwhere(missing)[0]
         cls = t.coords[ACTUAL].values.tolist()[index[-1]]
+        share = float(pi[index[-1]])
+        if _support(t)[index[-1]] == 0:
+            raise InvalidInputError(
+                f"class {cls!r} has no samples (it occurs only in predictions), so it cannot "
+                f"be rescaled to the target share {share!r}; give it share 0")
         lead = [d for d in t.dims if d not in (ACTUAL, PREDICTED)]
         where = "".join(f" in {d}={t.coords[d].values.tolist()[i]!r}" if d in t.coords
                         else f" in {d} {i}"
                         for d, i in zip(lead, index[:-1]))
         raise InvalidInputError(
             f"class {cls!r} has no samples{where}, so it cannot be rescaled to the target "
-            f"share {float(pi[index[-1]])!r}; give it share 0 or pool the folds first")
+            f"share {share!r}; give it share 0 or pool the folds first")
     with np.errstate(divide="ignore", invalid="ignore"):
         scale = np.where(rows > 0, pi * total / np.where(rows > 0, rows, 1.0), 0.0)
     out = t.copy(data=cells * scale[..., None])
@@ -207,7 +228,9 @@ class ShiftResult:
         ``macro_f1`` and ``macro_mcc`` at the target.
     per_class : xarray.Dataset
         Dim ``class``: ``mcc``, ``recall``, ``precision`` and ``f1`` at the
-        target (recall is unchanged by construction).
+        target. Recall is unchanged for a class with a positive target
+        share; a class with share 0 has no samples at the target, so its
+        recall is 0/0 (``undefined``, with a warning).
     warnings : tuple of str
         Undefined values at the target, prefixed ``at target prevalence``.
     """

@@ -117,8 +117,9 @@ def validate_tensor(t) -> xr.DataArray:
     Raises
     ------
     InvalidTensorError
-        When ``t`` is not a DataArray, lacks a class dim, the class coordinates
-        differ, or a count is negative, NaN or infinite.
+        When ``t`` is not a DataArray, lacks a class dim, has no class
+        (K = 0), the class coordinates differ, or a count is negative, NaN or
+        infinite.
 
     Examples
     --------
@@ -148,6 +149,11 @@ def validate_tensor(t) -> xr.DataArray:
         raise InvalidTensorError(
             f"a confusion tensor must be square; got {k} actual by "
             f"{t.sizes[PREDICTED]} predicted classes"
+        )
+    if k == 0:
+        raise InvalidTensorError(
+            "a confusion tensor needs at least one class; got 0 actual by 0 predicted classes "
+            "(no labels were counted)"
         )
     t = _with_class_coords(t)
     values = np.asarray(t.values)

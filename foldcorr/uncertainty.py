@@ -8,10 +8,11 @@ fold, each label, ...) is drawn on its own and keeps its own total (resampling
 is stratified by fold); the statistic is then applied once to the whole block
 of resampled tensors, since every metric broadcasts over leading dims.
 
-Weighted tensors (float sums of sample weights) are refused: the cells no
-longer say how many samples they hold, and resampling them as if each unit of
-weight were a sample would give intervals of the wrong width. A float tensor
-whose counts are all whole numbers is accepted as a count tensor.
+Weighted tensors are refused, whatever their values: the cells no longer say
+how many samples they hold, and resampling them as if each unit of weight were
+a sample would give intervals of the wrong width. A tensor counts as weighted
+when its counts are floating point (a weighted tally is float64, an unweighted
+one int64) or it records a ``weight_column`` (see :func:`whole_counts`).
 
 Nothing here reads files or prints. Randomness comes from one keyword-only
 ``seed``, normalised once with :func:`numpy.random.default_rng`.
@@ -117,7 +118,15 @@ def _where(t: xr.DataArray, index) -> str:
 
 
 def whole_counts(t, *, what: str = "the bootstrap") -> xr.DataArray:
-    """Validate a tensor and return it with int64 counts, refusing weighted sums.
+    """Validate a tensor and return it, refusing any tensor tallied with weights.
+
+    The rule, the one used by every resampling in foldcorr: a tensor holds
+    counts of samples only when its counts have an integer dtype (int64 after
+    :func:`foldcorr.tensor.validate_tensor`) and it records no
+    ``weight_column``. A weighted tally has float64 counts and records its
+    weight column (:func:`foldcorr.tensor.tally`, ``tally_frame``,
+    ``foldcorr.streaming``); it is refused even when every weight happens to
+    be a whole number, since a cell of weight 10 is not 10 samples.
 
     Parameters
     ----------
@@ -129,20 +138,21 @@ def whole_counts(t, *, what: str = "the bootstrap") -> xr.DataArray:
     Returns
     -------
     xarray.DataArray
-        The tensor with int64 counts.
+        The tensor, with int64 counts.
 
     Raises
     ------
     InvalidTensorError
-        When a count is not a whole number (a weighted tensor), or a slice over
-        the leading dims holds no samples.
+        When the counts are floating point or the tensor records a
+        ``weight_column`` (a weighted tensor), or a slice over the leading
+        dims holds no samples.
 
     Examples
     --------
     >>> from foldcorr.tensor import confusion_tensor
-    >>> whole_counts(confusion_tensor([[2.0, 1.0], [0.0, 3.0]], [0, 1])).dtype
+    >>> whole_counts(confusion_tensor([[2, 1], [0, 3]], [0, 1])).dtype
     dtype('int64')
-    >>> whole_counts(confusion_tensor([[2.5, 1.0], [0.0, 3.0]], [0, 1]))
+    >>> whole_counts(confusion_tensor([[2.0, 1.0], [0.0, 3.0]], [0, 1]))
     Traceback (most recent call last):
     ...
     foldcorr.errors.InvalidTensorError: the bootstrap resamples samples, so it needs whole counts; ...
@@ -153,18 +163,34 @@ def whole_counts(t, *, what: str = "the bootstrap") -> xr.DataArray:
         raise InvalidTensorError(
             f"a confusion tensor must be an xarray.DataArray; got {type(t).__name__!r}"
         )
+    reason = _weighted_reason(t)
+    if reason is not None:
+        raise InvalidTensorError(
+            f"{what} resamples samples, so it needs whole counts; this tensor holds "
+            f"weighted sums ({reason}). Score without sample weights to get intervals"
+        )
+    values = np.asarray(t.values)
+    if values.dtype != np.int64:
+        t = t.copy(data=values.astype(np.int64))
+    return t
+
+
+def _weighted_reason(t: xr.DataArray) -> str | None:
+    """Why ``t`` counts as a weighted tensor, or None when it holds sample counts."""
+    column = t.attrs.get("weight_column")
+    if column:
+        return f"it was tallied with the weight column {column!r}"
     values = np.asarray(t.values)
     if np.issubdtype(values.dtype, np.floating):
         frac = values != np.round(values)
-        if frac.any():
-            index = np.argwhere(frac)[0]
-            raise InvalidTensorError(
-                f"{what} resamples samples, so it needs whole counts; this tensor holds "
-                f"weighted sums ({_py(values[tuple(index)])!r} at {_where(t, index)}). "
-                "Score without sample weights to get intervals"
-            )
-        t = t.copy(data=values.astype(np.int64))
-    return t
+        cells = np.argwhere(frac) if frac.any() else np.argwhere(values != 0)
+        at = ""
+        if len(cells):
+            index = tuple(cells[0])
+            at = f", e.g. {_py(values[index])!r} at {_where(t, index)}"
+        return (f"{values.dtype} counts{at}, as a weighted tally has; if these are plain "
+                "sample counts, give them an integer dtype with .astype('int64')")
+    return None
 
 
 def _py(value):

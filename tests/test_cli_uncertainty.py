@@ -94,6 +94,21 @@ def test_weighted_scores_refuse_intervals(tables, capsys, tmp_path):
     assert "weighted sums" in capsys.readouterr().err
 
 
+@pytest.mark.parametrize("weight", [1, 10])
+def test_whole_weights_refuse_intervals_too(tables, capsys, tmp_path, weight):
+    # Weights of 10 are not 10 samples each: a weighted score gets no interval (README).
+    path = tmp_path / "w.csv"
+    df = pd.read_csv(tables["a"]).assign(w=weight)
+    df.to_csv(path, index=False)
+    assert main(["score", str(path), "--weight", "w", "--ci", "0.95"]) == 2
+    err = capsys.readouterr().err
+    assert "tallied with the weight column 'w'" in err and err.count("\n") == 1
+    code = main(["gate", str(path), "--weight", "w", "--baseline", str(path),
+                 "--max-drop", "0", "--confidence", "0.95", "--resamples", "100"])
+    err = capsys.readouterr().err
+    assert code == 2 and "weighted sums" in err and err.count("\n") == 1
+
+
 def test_compare_one_table_json(tables, capsys):
     doc = _json(capsys, ["compare", str(tables["one"]), "--pred-a", "old", "--pred-b", "new",
                          "--resamples", "300", "--seed", "2", "--format", "json"])

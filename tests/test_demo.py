@@ -4,6 +4,7 @@ import pathlib
 
 import numpy as np
 import pandas as pd
+import pytest
 
 import foldcorr as fc
 from foldcorr.demo import SYSTEMATIC, TAXA, make_demo
@@ -33,3 +34,21 @@ def test_demo_shape_of_the_scenario():
         rows = df[df.actual == source]
         assert (rows.predicted == target).mean() > share * 0.7
     assert sorted(df["fold"].unique()) == [1, 2, 3, 4, 5]
+
+
+def test_demo_out_on_an_existing_file_is_one_error_line(tmp_path, capsys):
+    from foldcorr.cli import main
+    from foldcorr.demo import write_demo
+    from foldcorr.errors import InvalidInputError
+
+    taken = tmp_path / "notes.txt"
+    taken.write_text("keep me")
+    with pytest.raises(InvalidInputError, match=r"the demo folder \(`folder`, --out\) '.*notes"
+                                                r"\.txt' is an existing file; give a folder"):
+        write_demo(taken, n=100)
+    assert main(["demo", "--out", str(taken), "--samples", "200"]) == 2
+    err = capsys.readouterr().err
+    assert "is an existing file" in err and err.count("\n") == 1
+    assert taken.read_text() == "keep me"
+    with pytest.raises(InvalidInputError, match="cannot create the demo folder"):
+        write_demo(taken / "inside", n=100)

@@ -210,7 +210,13 @@ def test_metrics_broadcast_over_leading_dims_and_keep_coords():
     out = fc.rk(t)
     assert out.dims == ("model",) and out.coords["model"].values.tolist() == ["old", "new"]
     assert fc.ovr_mcc(t).dims == ("model", "class")
+    # R_K = 0 on [[1, 1], [1, 1]]: predictions independent of the truth (common practice;
+    # Gorodkin's numerator c s - sum t_k p_k = 2 * 4 - (2 * 2 + 2 * 2) = 0), and what
+    # sklearn.metrics.matthews_corrcoef gives on those four samples.
+    assert matthews_corrcoef([0, 0, 1, 1], [0, 1, 0, 1]) == 0.0
     assert abs(float(out.sel(model="new"))) < TOL
+    assert abs(float(out.sel(model="old")) - matthews_corrcoef([0, 0, 0, 0, 1, 1],
+                                                               [0, 0, 0, 1, 1, 1])) < TOL
 
 
 def test_undefined_follows_convention_and_warns_where():

@@ -168,3 +168,62 @@ def test_intervals_refuse_weighted_tensors():
     t = multilabel_tally([[1, 0], [0, 1]], [[1, 0], [0, 1]], weights=[0.5, 1.5])
     with pytest.raises(FoldcorrError, match="weight"):
         multilabel_intervals(t, n_resamples=100, seed=1)
+    # Whole weights are still weights, not sample counts.
+    t = multilabel_tally([[1, 0], [0, 1]], [[1, 0], [0, 1]], weights=[10, 10])
+    with pytest.raises(FoldcorrError, match="weighted sums"):
+        multilabel_intervals(t, n_resamples=100, seed=1)
+
+
+def test_macro_and_weighted_propagate_an_undefined_label_under_nan():
+    # Label "c" is positive in every sample: MCC 0/0 (truth has no spread). Under
+    # undefined="zero" it counts as 0, sklearn.metrics.matthews_corrcoef's own convention;
+    # under undefined="nan" a mean over a set holding an undefined value is undefined
+    # (numpy.mean propagates NaN), as foldcorr.metrics.macro_mcc does for classes.
+    truth, pred, folds = _random(n=200, n_labels=2, seed=6)
+    truth = np.column_stack([truth, np.ones(len(truth), dtype=bool)])
+    pred = np.column_stack([pred, np.random.default_rng(7).random(len(truth)) < 0.7])
+    t = multilabel_tally(truth, pred, labels=["a", "b", "c"], folds=folds)
+    ref = [matthews_corrcoef(truth[:, j], pred[:, j]) for j in range(3)]
+    support = truth.sum(axis=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UndefinedMetricWarning)
+        zero = evaluate_multilabel(t)
+        nan = evaluate_multilabel(t, undefined="nan")
+    assert ref[2] == 0.0
+    assert zero.macro_mcc == pytest.approx(np.mean(ref), abs=1e-12)
+    assert zero.weighted_mcc == pytest.approx(np.average(ref, weights=support), abs=1e-12)
+    with_nan = [ref[0], ref[1], np.nan]
+    assert np.isnan(np.mean(with_nan)) and np.isnan(nan.macro_mcc)
+    assert np.isnan(np.average(with_nan, weights=support)) and np.isnan(nan.weighted_mcc)
+    assert not np.isnan(nan.micro_mcc)  # the pooled 2 x 2 table is defined
+    assert nan.folds["macro_mcc"].isnull().all()
+    assert not zero.folds["macro_mcc"].isnull().any()
+
+
+def test_weighted_mcc_ignores_an_undefined_label_without_support():
+    # A label never positive in truth has support 0, so weight 0: it adds nothing to
+    # sum(n+ MCC) / sum(n+) even when its MCC is undefined (NaN under undefined="nan").
+    truth, pred, _ = _random(n=200, n_labels=2, seed=8)
+    truth = np.column_stack([truth, np.zeros(len(truth), dtype=bool)])
+    pred = np.column_stack([pred, np.zeros(len(truth), dtype=bool)])
+    t = multilabel_tally(truth, pred, labels=["a", "b", "c"])
+    ref = [matthews_corrcoef(truth[:, j], pred[:, j]) for j in range(2)]  # sklearn
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UndefinedMetricWarning)
+        ev = evaluate_multilabel(t, undefined="nan")
+    assert np.isnan(ev.per_label.sel(label="c")["mcc"])
+    assert ev.weighted_mcc == pytest.approx(np.average(ref, weights=truth[:, :2].sum(0)), abs=1e-12)
+    assert ev.macro_mcc == pytest.approx(np.mean(ref), abs=1e-12)  # "c" is absent: left out
+
+
+def test_macro_interval_propagates_nan_in_resamples():
+    from foldcorr.multilabel import _macro_of, _weighted_of
+
+    truth, pred, _ = _random(n=200, n_labels=2, seed=6)
+    truth = np.column_stack([truth, np.ones(len(truth), dtype=bool)])
+    pred = np.column_stack([pred, np.random.default_rng(7).random(len(truth)) < 0.7])
+    t = multilabel_tally(truth, pred, labels=["a", "b", "c"])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UndefinedMetricWarning)
+        assert np.isnan(float(_macro_of(t, undefined="nan")))
+        assert np.isnan(float(_weighted_of(t, undefined="nan")))

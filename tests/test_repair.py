@@ -235,3 +235,40 @@ def test_the_analysis_layer_loads_no_plotting_or_terminal_library():
             "print(sorted(m for m in ('matplotlib', 'rich', 'dask') if m in sys.modules))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"
+
+
+def _exact_rk(counts) -> float:
+    # Gorodkin's R_K (Gorodkin 2004) in exact integer arithmetic, with one 60-digit square
+    # root: an outside reference that shares no floating-point step with the code.
+    from decimal import Decimal, localcontext
+
+    c = np.asarray(counts, dtype=object)
+    s, trace = int(c.sum()), int(np.trace(c))
+    t, p = [int(v) for v in c.sum(axis=1)], [int(v) for v in c.sum(axis=0)]
+    num = trace * s - sum(a * b for a, b in zip(t, p))
+    dp, dt = s * s - sum(v * v for v in p), s * s - sum(v * v for v in t)
+    with localcontext() as ctx:
+        ctx.prec = 60
+        return float(Decimal(num) / (Decimal(dp) * Decimal(dt)).sqrt())
+
+
+def test_repairs_match_exact_arithmetic_on_a_dominant_class():
+    # One class holds nearly every sample; leave-class-out and pair gains (computed from the
+    # margins and correlation formula shared with foldcorr.metrics) against exact R_K.
+    counts = np.array([[10**6, 5, 3], [7, 900, 40], [2, 30, 600]], dtype=np.int64)
+    t = confusion_tensor(counts, ["a", "b", "c"])
+    before = _exact_rk(counts)
+    for k in range(3):
+        keep = [i for i in range(3) if i != k]
+        expected = _exact_rk(counts[np.ix_(keep, keep)]) - before
+        got = float(repair.leave_class_out(t).isel({"class": k}))
+        assert abs(got - expected) < 1e-12, (k, got, expected)
+    gains = repair.pair_gains(t).values
+    for i in range(3):
+        for j in range(3):
+            if i != j:
+                moved = counts.copy()
+                moved[i, i] += moved[i, j]
+                moved[i, j] = 0
+                assert abs(gains[i, j] - (_exact_rk(moved) - before)) < 1e-12, (i, j)
+    assert abs(repair.repair_analysis(t).rk - before) < 1e-12

@@ -76,5 +76,58 @@ def test_bad_targets():
     with pytest.raises(InvalidInputError, match="must be 'uniform'"):
         target_prevalence(t, "even")
     empty = confusion_tensor([[5, 1], [0, 0]], ["cod", "hake"])
-    with pytest.raises(InvalidInputError, match="class 'hake' has no samples"):
-        shift_prevalence(empty, "uniform")
+    with pytest.raises(InvalidInputError, match=r"class 'hake' has no samples \(it occurs only "
+                                                r"in predictions\), so it cannot be rescaled to "
+                                                r"the target share 0.5; give it share 0$"):
+        shift_prevalence(empty, {"cod": 0.5, "hake": 0.5})
+    folded = confusion_tensor([[[5, 1], [2, 3]], [[4, 0], [0, 0]]], ["cod", "hake"],
+                              leading={"fold": [1, 2]})
+    with pytest.raises(InvalidInputError, match=r"class 'hake' has no samples in fold=2, .*"
+                                                r"give it share 0 or pool the folds first"):
+        shift_prevalence(folded, "uniform")
+    nothing = confusion_tensor([[0, 0], [0, 0]], ["cod", "hake"])
+    with pytest.raises(InvalidInputError, match=r"'uniform' spreads over the classes with "
+                                                r"samples, and this tensor has none"):
+        target_prevalence(nothing, "uniform")
+
+
+@pytest.mark.filterwarnings("ignore:y_pred contains classes not in y_true")
+def test_uniform_spreads_over_the_classes_with_samples():
+    # "ling" occurs only in predictions. Uniform over the classes with samples (cod, hake) is
+    # the label shift made by repeating every hake sample until both are equally common, so
+    # the figures equal sklearn's on the duplicated samples (sklearn.metrics.matthews_corrcoef,
+    # recall_score, balanced_accuracy_score).
+    from sklearn.metrics import balanced_accuracy_score
+
+    rng = np.random.default_rng(3)
+    truth = np.array(["cod"] * 300 + ["hake"] * 100)
+    pred = np.where(rng.random(400) < 0.7, truth, rng.choice(["cod", "hake", "ling"], 400))
+    t = tally(truth, pred)
+    assert t.coords["actual"].values.tolist() == ["cod", "hake", "ling"]
+    assert target_prevalence(t, "uniform").values.tolist() == [0.5, 0.5, 0.0]
+    r = shifted_figures(t, "uniform")
+    keep = np.repeat(np.arange(400), np.where(truth == "hake", 3, 1))
+    dup_t, dup_p = truth[keep], pred[keep]
+    assert r.rk == pytest.approx(matthews_corrcoef(dup_t, dup_p), abs=1e-12)
+    np.testing.assert_allclose(r.per_class["recall"].values[:2],
+                               recall_score(dup_t, dup_p, labels=["cod", "hake"], average=None))
+    assert float(r.pooled["balanced_accuracy"]) == pytest.approx(
+        balanced_accuracy_score(truth, pred), abs=1e-12)
+
+
+def test_share_zero_leaves_a_class_out_with_undefined_recall():
+    # A class given share 0 has no samples at the target: its recall is 0/0 (undefined, with a
+    # warning), and balanced accuracy averages over the other classes only; it equals
+    # sklearn.metrics.balanced_accuracy_score on the samples of those classes.
+    from sklearn.metrics import balanced_accuracy_score
+
+    truth, pred = _tensor(4)
+    r = shifted_figures(tally(truth, pred), {"cod": 0.5, "hake": 0.5}, undefined="nan")
+    recall = r.per_class["recall"].sel(**{"class": "ling"})
+    assert np.isnan(recall)
+    assert any("recall is undefined (0/0) at class='ling'" in w for w in r.warnings)
+    keep = truth != "ling"
+    expected = recall_score(truth[keep], pred[keep], labels=["cod", "hake"], average=None).mean()
+    assert float(r.pooled["balanced_accuracy"]) == pytest.approx(expected, abs=1e-12)
+    # Not the observed balanced accuracy over all three classes.
+    assert balanced_accuracy_score(truth, pred) != pytest.approx(expected, abs=1e-3)

@@ -139,6 +139,10 @@ def test_counts_beyond_int32_are_kept_exactly():
         (xr.DataArray([["a", "b"], ["c", "d"]], dims=("actual", "predicted")), "must be numeric"),
         (xr.DataArray([[1, 0], [0, 1]], dims=("actual", "predicted"),
                       coords={"actual": ["a", "b"], "predicted": ["b", "a"]}), "must be the same"),
+        (xr.DataArray(np.zeros((0, 0), int), dims=("actual", "predicted")),
+         "needs at least one class; got 0 actual by 0 predicted classes"),
+        (xr.DataArray(np.zeros((3, 0, 0), int), dims=("fold", "actual", "predicted")),
+         "needs at least one class"),
     ],
 )
 def test_validate_tensor_messages(tensor, message):

@@ -266,10 +266,43 @@ def test_too_few_resamples_and_unknown_method_are_refused():
 
 def test_weighted_tensor_is_refused_with_a_clear_message():
     t = tally([0, 1, 1, 0], [0, 1, 0, 0], weights=[0.5, 1.0, 2.0, 1.0])
-    with pytest.raises(InvalidTensorError, match=r"needs whole counts; this tensor holds weighted sums \(1.5 at actual=0"):
+    with pytest.raises(InvalidTensorError, match=r"needs whole counts; this tensor holds weighted "
+                                                 r"sums \(float64 counts, e.g. 1.5 at actual=0"):
         fc.bootstrap(t, n_resamples=100)
-    whole = tally([0, 1, 1, 0], [0, 1, 0, 0], weights=[1.0, 1.0, 2.0, 1.0])
-    assert fc.bootstrap(whole, n_resamples=100, seed=0).n_resamples == 100
+
+
+@pytest.mark.parametrize("weight", [1.0, 10.0])
+def test_weighted_tensor_is_refused_even_with_whole_weights(weight):
+    # A bootstrap interval narrows as 1/sqrt(N) (common practice): resampling a weight of 10
+    # as 10 samples would give an interval sqrt(10) times too narrow. So any weighted tally
+    # (float64 counts) is refused, whatever its values.
+    t = tally([0, 1, 1, 0, 1], [0, 1, 0, 0, 1], weights=[weight] * 5)
+    assert (t.values == weight * np.array([[2, 0], [1, 2]])).all()
+    with pytest.raises(InvalidTensorError, match=r"weighted sums \(float64 counts"):
+        fc.bootstrap(t, n_resamples=100)
+    with pytest.raises(InvalidTensorError, match="weighted sums"):
+        fc.resample_cells(t, 3, seed=0)
+    with pytest.raises(InvalidTensorError, match="weighted sums"):
+        fc.bootstrap_difference(t, t, n_resamples=100)
+
+
+def test_recorded_weight_column_is_refused_and_integer_counts_accepted():
+    import pandas as pd
+
+    df = pd.DataFrame({"actual": [0, 1, 1, 0] * 10, "predicted": [0, 1, 0, 0] * 10, "w": 3})
+    weighted = fc.tally_frame(df, weight="w")
+    assert weighted.dtype == np.float64 and weighted.attrs["weight_column"] == "w"
+    # Cast to integers, it still records its weight column: still refused.
+    with pytest.raises(InvalidTensorError, match=r"tallied with the weight column 'w'"):
+        fc.bootstrap(weighted.astype(np.int64), n_resamples=100)
+    plain = fc.tally_frame(df)
+    assert plain.dtype == np.int64
+    assert fc.bootstrap(plain, n_resamples=100, seed=0).n_resamples == 100
+    # Plain counts held as floats are refused with a hint; as integers they are accepted.
+    floats = confusion_tensor([[20.0, 0.0], [10.0, 10.0]], [0, 1])
+    with pytest.raises(InvalidTensorError, match=r"give them an integer dtype"):
+        fc.bootstrap(floats, n_resamples=100)
+    assert fc.bootstrap(floats.astype(np.int64), n_resamples=100, seed=0).n_resamples == 100
 
 
 def test_empty_fold_is_refused():

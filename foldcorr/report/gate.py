@@ -90,7 +90,9 @@ def gate_dict(result: GateResult) -> dict:
         "baseline": None if result.baseline is None else result.baseline.tensor.attrs.get("source"),
         "comparison": result.comparison or None,
         "rules": [{"rule": r.rule, "value": r.value, "threshold": r.threshold, "op": r.op,
-                   "passed": r.passed, "detail": r.detail} for r in result.rules],
+                   "passed": r.passed, "detail": r.detail,
+                   "interval": None if r.interval is None else list(r.interval)}
+                  for r in result.rules],
         "failing_classes": [{"class": c.label, "mcc": c.mcc, "floor": c.floor,
                              "support": c.support, "rule": c.rule}
                             for c in result.failing_classes],
