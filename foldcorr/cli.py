@@ -114,7 +114,8 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
                        help="seed of the resamples, for reproducible intervals")
     p.add_argument("--prevalence", metavar="uniform|A=0.2,B=0.8|FILE.csv",
                    help="also show every pooled figure at this target class prevalence, "
-                        "assuming label shift (see docs/shift.md)")
+                        "assuming label shift; 'uniform' shares it equally among the "
+                        "classes that have samples (see docs/shift.md)")
 
 
 def _column_list(value: str) -> tuple:
