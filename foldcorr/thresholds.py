@@ -15,7 +15,8 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
@@ -77,30 +78,143 @@ def _check_truth(truth, name: str) -> np.ndarray:
 
 
 class _Grid:
-    """Distinct thresholds of one score array, from one sort, and counts on them.
+    """Distinct thresholds of one score array and the counts on them, from one sort.
 
-    ``values`` is the sorted score array, ``first`` the position of the first
-    occurrence of each distinct score in it, ``thresholds`` those scores
-    (ascending) and ``predicted`` the number of samples with score >= each.
+    The scores are sorted once together with the truth (see :func:`_sort_with_truth`).
+    ``values`` is the sorted score array, ``thresholds`` the distinct scores
+    (ascending), ``first`` the position of each one's first occurrence in
+    ``values``, ``predicted`` the number of samples with score >= each and
+    ``tp`` the number of positives among them.
     """
 
-    def __init__(self, scores: np.ndarray):
-        self.values = np.sort(scores)
-        n = self.values.size
-        change = np.empty(n, dtype=bool)
-        if n:
+    def __init__(self, scores: np.ndarray, truth: np.ndarray):
+        n = scores.size
+        total_pos = int(np.count_nonzero(truth))
+        packed, parts = _sort_with_truth(scores, truth)
+        tp_all, repeats = _positives_at_or_above(packed, total_pos)
+        self.values = _unpack(packed, parts)
+        v = self.values
+        self.n, self.total_pos = n, total_pos
+        if not repeats:  # every score distinct: no gather needed
+            self._first = None
+            self.thresholds, self.tp = v, tp_all
+        else:
+            change = np.empty(n, dtype=bool)
             change[0] = True
-            np.not_equal(self.values[1:], self.values[:-1], out=change[1:])
-        self.first = np.flatnonzero(change)
-        self.thresholds = self.values[self.first]
-        self.n = n
-        self.predicted = n - self.first
+            np.not_equal(v[1:], v[:-1], out=change[1:])
+            self._first = np.flatnonzero(change)
+            self.thresholds, self.tp = v[self._first], tp_all[self._first]
+
+    @property
+    def first(self) -> np.ndarray:
+        return np.arange(self.n) if self._first is None else self._first
+
+    @property
+    def predicted(self) -> np.ndarray:
+        return self.n - self.first
 
     def at_or_above(self, subset: np.ndarray) -> np.ndarray:
         """For each threshold, how many of ``subset`` (scores from the same array) are >= it."""
         where = _locate(self.values, np.sort(subset))
-        occ = np.bincount(where, minlength=self.n)[self.first]
+        occ = np.bincount(where, minlength=self.n)
+        if self._first is not None:
+            occ = occ[self._first]
         return np.cumsum(occ[::-1])[::-1]
+
+
+#: Mask of the 63 magnitude bits of a float64 seen as an int64.
+_MAGNITUDE = np.int64(0x7FFF_FFFF_FFFF_FFFF)
+_ONE = np.uint64(1)
+#: Elements per block of the blocked passes: a few blocks' scratch arrays fit in cache.
+_CHUNK = 1 << 15
+
+
+def _sort_with_truth(scores: np.ndarray, truth: np.ndarray):
+    """Sort the scores carrying the truth along, with one value sort (no argsort).
+
+    Each score becomes an order-preserving integer key (its IEEE 754 bits, with
+    the magnitude bits of negative numbers flipped; -0.0 counts as 0.0), shifted
+    left by one bit with the truth in the freed lowest bit, and the uint64 array
+    is sorted in place. The key is taken relative to the smallest one, so it
+    fits in 63 bits whenever the keys span less than 2**63 (always for scores of
+    one sign); otherwise negative and non-negative scores are sorted as two
+    parts, which are in order one after the other. Returns the sorted packed
+    array and the parts ``(start, stop, offset)`` that :func:`_unpack` needs.
+    """
+    n = scores.size
+    packed = np.empty(n, dtype=np.uint64)
+    if n == 0:
+        return packed, []
+    bits = np.ascontiguousarray(scores, dtype=np.float64).view(np.int64)
+    if int(bits.min()) >= 0:  # no sign bit anywhere: the bits are the keys, offset 0
+        ubits = bits.view(np.uint64)
+        for a in range(0, n, _CHUNK):  # blocked: the shifted block is still in cache for the OR
+            block = packed[a:a + _CHUNK]
+            np.left_shift(ubits[a:a + _CHUNK], _ONE, out=block)
+            np.bitwise_or(block, truth[a:a + _CHUNK], out=block)
+        packed.sort()
+        return packed, [(0, n, 0)]
+    bits = (scores + 0.0).view(np.int64)  # -0.0 + 0.0 is +0.0
+    keys = bits ^ ((bits >> 63) & _MAGNITUDE)
+    lo, hi = int(keys.min()), int(keys.max())
+    if hi - lo < 2 ** 63:
+        pieces = [(keys, truth, 0, n, lo)]
+    else:
+        neg = keys < 0
+        m = int(np.count_nonzero(neg))
+        pieces = [(keys[neg], truth[neg], 0, m, lo), (keys[~neg], truth[~neg], m, n, 0)]
+    for k, y, a, b, offset in pieces:
+        out = packed[a:b]
+        np.subtract(k, offset, out=out.view(np.int64))
+        out <<= _ONE
+        np.bitwise_or(out, y, out=out)
+        out.sort()
+    return packed, [(a, b, offset) for _, _, a, b, offset in pieces]
+
+
+def _unpack(packed: np.ndarray, parts) -> np.ndarray:
+    """The sorted scores (float64), in place of the keys of :func:`_sort_with_truth`.
+
+    The truth bits must already be shifted out (:func:`_positives_at_or_above` does it).
+    """
+    keys = packed.view(np.int64)
+    if parts != [(0, packed.size, 0)]:
+        for a, b, offset in parts:
+            keys[a:b] += offset
+        keys ^= (keys >> 63) & _MAGNITUDE
+    return keys.view(np.float64)
+
+
+def _positives_at_or_above(packed: np.ndarray, total_pos: int):
+    """Positives at or after each position of the sorted packed array, and whether keys repeat.
+
+    A cumulative count of the truth bits in cache-sized blocks, which also
+    shifts the bits out of ``packed`` (leaving the keys) and compares
+    neighbouring keys. Returns the counts and True when some key repeats.
+    """
+    n = packed.size
+    out = np.empty(n, dtype=np.int64)
+    bit = np.empty(min(n, _CHUNK), dtype=np.int64)
+    csum = np.empty_like(bit)
+    same = np.empty(max(min(n, _CHUNK) - 1, 0), dtype=bool)
+    keys = packed.view(np.int64)
+    carry = total_pos  # positives at or after the block's first position
+    repeats = False
+    for a in range(0, n, _CHUNK):
+        b = min(a + _CHUNK, n)
+        bt, cs = bit[:b - a], csum[:b - a]
+        np.bitwise_and(keys[a:b], 1, out=bt)
+        np.cumsum(bt, out=cs)
+        block = out[a:b]
+        np.subtract(bt, cs, out=block)  # minus the positives in [a, p)
+        block += carry
+        carry -= int(cs[-1])
+        kb = packed[a:b]
+        kb >>= _ONE
+        if not repeats:
+            np.equal(kb[1:], kb[:-1], out=same[:b - a - 1])
+            repeats = bool(same[:b - a - 1].any()) or (a > 0 and packed[a - 1] == kb[0])
+    return out, repeats
 
 
 #: Sorted keys located per block; each block searches only its slice of the array.
@@ -130,9 +244,57 @@ def _locate(values: np.ndarray, keys: np.ndarray) -> np.ndarray:
 
 def _curve_counts(truth: np.ndarray, scores: np.ndarray):
     """Thresholds ascending and (tp, fp, positives, n) at each, with the grid."""
-    grid = _Grid(scores)
-    tp = grid.at_or_above(scores[truth])
-    return grid, tp, grid.predicted - tp, int(np.count_nonzero(truth)), grid.n
+    grid = _Grid(scores, truth)
+    return grid, grid.tp, grid.predicted - grid.tp, grid.total_pos, grid.n
+
+
+def _fp_and_mcc(grid: _Grid, undefined: str):
+    r"""FP and MCC at every threshold of ``grid``, in cache-sized blocks.
+
+    The same arithmetic as :func:`_mcc_counts` (so the same floats), done a
+    block at a time so that its dozen steps run on scratch arrays in cache
+    instead of as passes over the whole curve. The denominator is zero only at
+    the lowest threshold (every sample predicted positive) or everywhere when
+    there are no positives or no negatives.
+    """
+    m, n, total_pos = grid.thresholds.size, grid.n, grid.total_pos
+    tp, first = grid.tp, grid._first
+    fp = np.empty(m, dtype=np.int64)
+    mcc = np.empty(m, dtype=np.float64)
+    size = min(m, _CHUNK)
+    step = np.arange(size, dtype=np.int64)
+    fstep = np.arange(size, dtype=np.float64)
+    f, pp, num, tmp = (np.empty(size) for _ in range(4))
+    scale = math.sqrt(float(total_pos) * float(n - total_pos))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        for a in range(0, m, _CHUNK):
+            b = min(a + _CHUNK, m)
+            k = b - a
+            fb, pb, tb, ub, fpb, tpb = f[:k], pp[:k], num[:k], tmp[:k], fp[a:b], tp[a:b]
+            if first is None:  # the j-th threshold is the j-th sorted score
+                np.subtract(n - a, step[:k], out=fpb)
+                np.add(fstep[:k], a, out=fb)
+            else:
+                np.subtract(n, first[a:b], out=fpb)
+                np.copyto(fb, first[a:b])
+            fpb -= tpb  # predicted positive minus TP
+            np.subtract(float(n), fb, out=pb)  # predicted positive, PP
+            np.copyto(tb, tpb)
+            tb *= float(n)
+            np.multiply(pb, float(total_pos), out=ub)
+            tb -= ub  # n TP - n+ PP = TP TN - FP FN, exact in float64
+            fb *= pb  # (n - PP) PP
+            np.sqrt(fb, out=fb)
+            fb *= scale
+            np.divide(tb, fb, out=mcc[a:b])
+    if m:
+        fill = 0.0 if undefined == "zero" else np.nan
+        if scale == 0:
+            mcc[:] = fill
+        else:
+            mcc[0] = fill
+    np.clip(mcc, -1.0, 1.0, out=mcc)
+    return fp, mcc
 
 
 def _mcc_counts(tp, fp, total_pos, n, undefined: str) -> np.ndarray:
@@ -257,10 +419,15 @@ def _argbest(mcc: np.ndarray, allowed: np.ndarray | None = None) -> int:
     if mcc.size == 0:
         return -1
     score = mcc if allowed is None else np.where(allowed, mcc, -np.inf)
-    if np.isnan(score.max()):  # max propagates NaN: one pass tells whether any is NaN
+    i = int(np.argmax(score))
+    if np.isnan(score[i]):  # argmax stops at the first NaN: set the NaNs aside
         score = np.where(np.isnan(score), -np.inf, score)
-    i = score.size - 1 - int(np.argmax(score[::-1]))
-    return -1 if score[i] == -np.inf else i
+        i = int(np.argmax(score))
+    top = score[i]
+    if top == -np.inf:
+        return -1
+    later = np.flatnonzero(score[i + 1:] == top)  # argmax gives the first of ties
+    return i + 1 + int(later[-1]) if later.size else i
 
 
 def _mcc_at(grid: _Grid, tp, fp, total_pos, n, at: float, undefined: str) -> float:
@@ -280,7 +447,8 @@ class LabelSweep:
         Label name (None for a binary sweep).
     curve : xarray.Dataset
         Dim ``threshold`` (distinct scores, ascending): ``tp``, ``fp``, ``fn``,
-        ``tn`` and ``mcc``. :meth:`figures` adds the companions.
+        ``tn`` and ``mcc``. :meth:`figures` adds the companions. Built from the
+        counts kept by the sweep on first access (a cached property).
     n_thresholds : int
         Number of distinct thresholds.
     best_threshold, best_mcc : float
@@ -298,7 +466,6 @@ class LabelSweep:
     """
 
     label: object
-    curve: xr.Dataset
     n_thresholds: int
     best_threshold: float
     best_mcc: float
@@ -307,6 +474,18 @@ class LabelSweep:
     crossfold: xr.Dataset | None
     crossfold_mcc: float | None
     undefined: str = "zero"
+    #: (thresholds, tp, fp, mcc, positives, n): what :attr:`curve` is built from.
+    _counts: tuple = field(default=(np.empty(0), np.empty(0, np.int64), np.empty(0, np.int64),
+                                    np.empty(0), 0, 0), repr=False, compare=False)
+
+    @cached_property
+    def curve(self) -> xr.Dataset:
+        """Counts and MCC at every distinct threshold (see the class Attributes)."""
+        thresholds, tp, fp, mcc, total_pos, n = self._counts
+        return xr.Dataset({"tp": (THRESHOLD, tp), "fp": (THRESHOLD, fp),
+                           "fn": (THRESHOLD, total_pos - tp),
+                           "tn": (THRESHOLD, (n - total_pos) - fp),
+                           "mcc": (THRESHOLD, mcc)}, coords={THRESHOLD: thresholds})
 
     def figures(self, *, max_points: int | None = None) -> xr.Dataset:
         """The curve with accuracy, F1, recall and precision, from :mod:`foldcorr.metrics`.
@@ -488,11 +667,9 @@ def _fold_codes(folds, n):
 
 
 def _sweep_one(y, s, name, codes, fold_labels, at, undefined, notes) -> LabelSweep:
-    grid, tp, fp, total_pos, n = _curve_counts(y, s)
-    mcc = _mcc_counts(tp, fp, total_pos, n, undefined)
-    curve = xr.Dataset({"tp": (THRESHOLD, tp), "fp": (THRESHOLD, fp),
-                        "fn": (THRESHOLD, total_pos - tp), "tn": (THRESHOLD, (n - total_pos) - fp),
-                        "mcc": (THRESHOLD, mcc)}, coords={THRESHOLD: grid.thresholds})
+    grid = _Grid(s, y)
+    tp, total_pos, n = grid.tp, grid.total_pos, grid.n
+    fp, mcc = _fp_and_mcc(grid, undefined)
     reason = _degenerate(grid, total_pos, n)
     if reason:
         where = "" if name is None else f"label {name!r}: "
@@ -505,9 +682,10 @@ def _sweep_one(y, s, name, codes, fold_labels, at, undefined, notes) -> LabelSwe
     if codes is not None:
         crossfold = _crossfold(grid, tp, s, y, total_pos, codes, fold_labels, undefined)
         crossfold_mcc = float(crossfold["mcc"].mean())
-    return LabelSweep(label=name, curve=curve, n_thresholds=int(grid.thresholds.size),
+    return LabelSweep(label=name, n_thresholds=int(grid.thresholds.size),
                       best_threshold=best_t, best_mcc=best_mcc, at_threshold=at, mcc_at=mcc_at,
-                      crossfold=crossfold, crossfold_mcc=crossfold_mcc, undefined=undefined)
+                      crossfold=crossfold, crossfold_mcc=crossfold_mcc, undefined=undefined,
+                      _counts=(grid.thresholds, tp, fp, mcc, total_pos, n))
 
 
 def _crossfold(grid: _Grid, tp, s, y, total_pos, codes, fold_labels, undefined) -> xr.Dataset:
