@@ -691,32 +691,101 @@ def _sweep_one(y, s, name, codes, fold_labels, at, undefined, notes) -> LabelSwe
 def _crossfold(grid: _Grid, tp, s, y, total_pos, codes, fold_labels, undefined) -> xr.Dataset:
     """Per fold: the best threshold on the other folds, and its MCC on the fold.
 
-    Each fold's counts are taken on the grid of all distinct scores, so the
-    complement's counts are the totals minus the fold's: no second sort of the
-    whole array. Only thresholds that occur among the other folds' scores are
-    candidates, exactly as if the other folds had been swept alone.
+    Each fold's scores are sorted with their truth (the folds together are one
+    more sort of the array, never a sort per fold of everything) and located on
+    the grid of all distinct scores, so the complement's counts are the totals
+    minus the fold's. Only thresholds that occur among the other folds' scores
+    are candidates, exactly as if the other folds had been swept alone.
     """
-    occurs = np.diff(np.append(grid.first, grid.n))
+    occurs = None if grid._first is None else np.diff(np.append(grid._first, grid.n))
     chosen, held, sizes = [], [], []
     for j in range(len(fold_labels)):
         inside = codes == j
-        pred_j = grid.at_or_above(s[inside])
-        tp_j = grid.at_or_above(s[inside & y])
-        n_j, pos_j = int(np.count_nonzero(inside)), int(np.count_nonzero(inside & y))
-        here = np.append(pred_j[:-1] - pred_j[1:], pred_j[-1:]) if pred_j.size else pred_j
-        tp_c = tp - tp_j
-        fp_c = (grid.predicted - pred_j) - tp_c
-        mcc_c = _mcc_counts(tp_c, fp_c, total_pos - pos_j, grid.n - n_j, undefined)
-        i = _argbest(mcc_c, allowed=(occurs - here) > 0)
+        packed, parts = _sort_with_truth(s[inside], y[inside])
+        positive = (packed & _ONE).astype(bool)
+        packed >>= _ONE
+        values = _unpack(packed, parts)  # the fold's scores, ascending
+        n_j, pos_j = values.size, int(np.count_nonzero(positive))
+        where = _locate(grid.values, values)  # first position of each score in the whole array
+        here = np.bincount(where, minlength=grid.n)  # fold samples at each threshold
+        here_pos = np.bincount(where[positive], minlength=grid.n)
+        if grid._first is not None:
+            here, here_pos = here[grid._first], here_pos[grid._first]
+        mcc_c = _complement_mcc(grid, here, here_pos, occurs, total_pos - pos_j,
+                                grid.n - n_j, undefined)
+        i = _argbest(mcc_c)
         if i < 0:
             chosen.append(np.nan)
             held.append(np.nan if undefined == "nan" else 0.0)
         else:
-            chosen.append(float(grid.thresholds[i]))
-            held.append(float(_mcc_counts(tp_j[i], pred_j[i] - tp_j[i], pos_j, n_j, undefined)[0]))
+            theta = grid.thresholds[i]
+            pred_i = n_j - int(np.searchsorted(values, theta, side="left"))
+            tp_i = pos_j - int(np.count_nonzero(positive[:n_j - pred_i]))
+            chosen.append(float(theta))
+            held.append(float(_mcc_counts(tp_i, pred_i - tp_i, pos_j, n_j, undefined)[0]))
         sizes.append(n_j)
     return xr.Dataset({"threshold": (FOLD, np.array(chosen)), "mcc": (FOLD, np.array(held)),
                        "n": (FOLD, np.array(sizes))}, coords={FOLD: fold_labels})
+
+
+def _complement_mcc(grid: _Grid, here, here_pos, occurs, total_pos: int, n: int,
+                    undefined: str) -> np.ndarray:
+    """MCC of the other folds at every threshold, -inf where no other-fold score equals it.
+
+    ``here`` and ``here_pos`` count the held-out fold's samples and positives at
+    each threshold; the other folds' counts at or above a threshold are the
+    totals minus the fold's suffix sums. Blocked like :func:`_fp_and_mcc`, with
+    the arithmetic of :func:`_mcc_counts` (the same floats).
+    """
+    m = grid.thresholds.size
+    out = np.empty(m, dtype=np.float64)
+    size = min(m, _CHUNK)
+    step = np.arange(size, dtype=np.int64)
+    pred_b, tp_b, pp_i = (np.empty(size, dtype=np.int64) for _ in range(3))
+    pp, num, den = (np.empty(size) for _ in range(3))
+    allowed = np.empty(size, dtype=bool)
+    scale = math.sqrt(float(total_pos) * float(n - total_pos))
+    fill = 0.0 if undefined == "zero" else np.nan
+    first = grid._first
+    above, above_pos = 0, 0  # held-out samples / positives in the blocks after this one
+    with np.errstate(invalid="ignore", divide="ignore"):
+        for b in range(m, 0, -_CHUNK):  # from the top, so the suffix sums carry down
+            a = max(b - _CHUNK, 0)
+            k = b - a
+            hb, hpb, pb, tb, ib = here[a:b], here_pos[a:b], pred_b[:k], tp_b[:k], pp_i[:k]
+            np.cumsum(hb[::-1], out=pb[::-1])  # held-out samples at or above, within the block
+            pb += above
+            np.cumsum(hpb[::-1], out=tb[::-1])
+            tb += above_pos
+            above, above_pos = int(pb[0]), int(tb[0])
+            if first is None:
+                np.subtract(grid.n - a, step[:k], out=ib)  # all samples at or above
+            else:
+                np.subtract(grid.n, first[a:b], out=ib)
+            ib -= pb  # the other folds' predicted positive
+            np.subtract(grid.tp[a:b], tb, out=tb)  # the other folds' TP
+            al = allowed[:k]
+            if occurs is None:
+                np.equal(hb, 0, out=al)
+            else:
+                np.greater(occurs[a:b], hb, out=al)
+            nb, pf, db = num[:k], pp[:k], den[:k]
+            np.copyto(nb, tb)
+            nb *= float(n)
+            np.copyto(pf, ib)
+            np.multiply(pf, float(total_pos), out=db)
+            nb -= db  # n TP - n+ PP
+            np.subtract(float(n), pf, out=db)
+            db *= pf
+            np.sqrt(db, out=db)
+            db *= scale
+            ob = out[a:b]
+            np.divide(nb, db, out=ob)
+            if fill == 0.0:  # 0/0 (the numerator is 0 wherever the denominator is)
+                np.copyto(ob, 0.0, where=db == 0)
+            np.clip(ob, -1.0, 1.0, out=ob)
+            np.copyto(ob, -np.inf, where=~al)
+    return out
 
 
 def _degenerate(grid: _Grid, total_pos: int, n: int) -> str:
