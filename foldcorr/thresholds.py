@@ -363,14 +363,15 @@ def threshold_curve(truth, scores, *, undefined: str = "zero") -> xr.Dataset:
     Notes
     -----
     Threshold :math:`\theta` predicts positive every sample with
-    :math:`\text{score} \ge \theta`. The scores are sorted once; the
-    position :math:`f_j` of the first occurrence of the :math:`j`-th distinct
-    score gives the number predicted positive, :math:`n - f_j`. The sorted
-    positive scores are located in that array (a binary search of sorted keys)
-    and a suffix sum of their occurrences gives :math:`TP_j`; then
-    :math:`FP_j = n - f_j - TP_j`, :math:`FN_j = n^+ - TP_j`,
-    :math:`TN_j = n^- - FP_j`. Ties are exact: every sample whose score equals
-    a threshold is on the positive side of it. Cost :math:`O(n \log n)`.
+    :math:`\text{score} \ge \theta`. The scores are sorted once, with the
+    truth carried along in the lowest bit of an order-preserving 64-bit
+    integer key (a value sort, no argsort); the position :math:`f_j` of the
+    first occurrence of the :math:`j`-th distinct score gives the number
+    predicted positive, :math:`n - f_j`, and a suffix sum of the truth bits
+    gives :math:`TP_j`; then :math:`FP_j = n - f_j - TP_j`,
+    :math:`FN_j = n^+ - TP_j`, :math:`TN_j = n^- - FP_j`. Ties are exact:
+    every sample whose score equals a threshold is on the positive side of
+    it. Cost :math:`O(n \log n)`.
     The figures at each threshold are :func:`foldcorr.metrics.mcc` and its
     companions on that 2 x 2 matrix; undefined values at single thresholds
     are not warned about (at the lowest threshold every sample is predicted
@@ -593,12 +594,16 @@ def sweep(truth, scores, *, labels: Sequence | None = None, folds=None,
     -----
     Each label's scores are sorted once (see :func:`threshold_curve`). Each
     fold's counts are then located on that label's grid of distinct scores (a
-    sort of the fold's scores, which together are one more sort of the
-    array), and the other folds' counts are the totals minus the fold's. Only
+    sort of the fold's scores with their truth, which together are one more
+    sort of the array), and the other folds' counts are the totals minus the
+    fold's. Only
     thresholds that occur among the other folds' scores are candidates. MCC at
     every threshold is computed straight from the four counts (Matthews 1975),
-    the same value as :func:`foldcorr.metrics.mcc` on each 2 x 2 matrix, which
-    keeps a curve of 10^7 thresholds to a few array passes. For fold :math:`j`,
+    the same value as :func:`foldcorr.metrics.mcc` on each 2 x 2 matrix, in
+    cache-sized blocks, so a curve of 10^7 thresholds costs about one pass over
+    memory; FN, TN (:attr:`LabelSweep.curve`) and the companions
+    (:meth:`LabelSweep.figures`) are computed when first asked for. For fold
+    :math:`j`,
 
     .. math:: \hat\theta_{-j} = \arg\max_\theta \mathrm{MCC}_{-j}(\theta), \qquad
               \text{crossfold MCC} = \frac{1}{J}\sum_j \mathrm{MCC}_j(\hat\theta_{-j})
