@@ -287,13 +287,13 @@ def _fp_and_mcc(grid: _Grid, undefined: str):
             np.sqrt(fb, out=fb)
             fb *= scale
             np.divide(tb, fb, out=mcc[a:b])
+            np.clip(mcc[a:b], -1.0, 1.0, out=mcc[a:b])
     if m:
         fill = 0.0 if undefined == "zero" else np.nan
         if scale == 0:
             mcc[:] = fill
         else:
             mcc[0] = fill
-    np.clip(mcc, -1.0, 1.0, out=mcc)
     return fp, mcc
 
 
