@@ -46,7 +46,11 @@ def _check_scores(scores, name: str) -> np.ndarray:
     if arr.dtype.kind not in "iuf" and arr.dtype != bool:
         raise InvalidInputError(f"{name} must be numeric; got dtype {arr.dtype!r}")
     arr = arr.astype(np.float64, copy=False)
-    bad = ~np.isfinite(arr)
+    with np.errstate(over="ignore", invalid="ignore"):
+        total = np.sum(arr)
+    if np.isfinite(total):  # NaN and infinities always reach the sum (one reduction)
+        return arr
+    bad = ~np.isfinite(arr)  # the sum can also overflow: look at each score
     if bad.any():
         i = int(np.flatnonzero(bad.ravel())[0])
         raise InvalidInputError(
