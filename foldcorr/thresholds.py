@@ -117,14 +117,6 @@ class _Grid:
     def predicted(self) -> np.ndarray:
         return self.n - self.first
 
-    def at_or_above(self, subset: np.ndarray) -> np.ndarray:
-        """For each threshold, how many of ``subset`` (scores from the same array) are >= it."""
-        where = _locate(self.values, np.sort(subset))
-        occ = np.bincount(where, minlength=self.n)
-        if self._first is not None:
-            occ = occ[self._first]
-        return np.cumsum(occ[::-1])[::-1]
-
 
 #: Mask of the 63 magnitude bits of a float64 seen as an int64.
 _MAGNITUDE = np.int64(0x7FFF_FFFF_FFFF_FFFF)
