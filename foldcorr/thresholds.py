@@ -15,7 +15,8 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
@@ -45,7 +46,11 @@ def _check_scores(scores, name: str) -> np.ndarray:
     if arr.dtype.kind not in "iuf" and arr.dtype != bool:
         raise InvalidInputError(f"{name} must be numeric; got dtype {arr.dtype!r}")
     arr = arr.astype(np.float64, copy=False)
-    bad = ~np.isfinite(arr)
+    with np.errstate(over="ignore", invalid="ignore"):
+        total = np.sum(arr)
+    if np.isfinite(total):  # NaN and infinities always reach the sum (one reduction)
+        return arr
+    bad = ~np.isfinite(arr)  # the sum can also overflow: look at each score
     if bad.any():
         i = int(np.flatnonzero(bad.ravel())[0])
         raise InvalidInputError(
@@ -77,30 +82,135 @@ def _check_truth(truth, name: str) -> np.ndarray:
 
 
 class _Grid:
-    """Distinct thresholds of one score array, from one sort, and counts on them.
+    """Distinct thresholds of one score array and the counts on them, from one sort.
 
-    ``values`` is the sorted score array, ``first`` the position of the first
-    occurrence of each distinct score in it, ``thresholds`` those scores
-    (ascending) and ``predicted`` the number of samples with score >= each.
+    The scores are sorted once together with the truth (see :func:`_sort_with_truth`).
+    ``values`` is the sorted score array, ``thresholds`` the distinct scores
+    (ascending), ``first`` the position of each one's first occurrence in
+    ``values``, ``predicted`` the number of samples with score >= each and
+    ``tp`` the number of positives among them.
     """
 
-    def __init__(self, scores: np.ndarray):
-        self.values = np.sort(scores)
-        n = self.values.size
-        change = np.empty(n, dtype=bool)
-        if n:
+    def __init__(self, scores: np.ndarray, truth: np.ndarray):
+        n = scores.size
+        total_pos = int(np.count_nonzero(truth))
+        packed, parts = _sort_with_truth(scores, truth)
+        tp_all, repeats = _positives_at_or_above(packed, total_pos)
+        self.values = _unpack(packed, parts)
+        v = self.values
+        self.n, self.total_pos = n, total_pos
+        if not repeats:  # every score distinct: no gather needed
+            self._first = None
+            self.thresholds, self.tp = v, tp_all
+        else:
+            change = np.empty(n, dtype=bool)
             change[0] = True
-            np.not_equal(self.values[1:], self.values[:-1], out=change[1:])
-        self.first = np.flatnonzero(change)
-        self.thresholds = self.values[self.first]
-        self.n = n
-        self.predicted = n - self.first
+            np.not_equal(v[1:], v[:-1], out=change[1:])
+            self._first = np.flatnonzero(change)
+            self.thresholds, self.tp = v[self._first], tp_all[self._first]
 
-    def at_or_above(self, subset: np.ndarray) -> np.ndarray:
-        """For each threshold, how many of ``subset`` (scores from the same array) are >= it."""
-        where = _locate(self.values, np.sort(subset))
-        occ = np.bincount(where, minlength=self.n)[self.first]
-        return np.cumsum(occ[::-1])[::-1]
+    @property
+    def first(self) -> np.ndarray:
+        return np.arange(self.n) if self._first is None else self._first
+
+    @property
+    def predicted(self) -> np.ndarray:
+        return self.n - self.first
+
+
+#: Mask of the 63 magnitude bits of a float64 seen as an int64.
+_MAGNITUDE = np.int64(0x7FFF_FFFF_FFFF_FFFF)
+_ONE = np.uint64(1)
+#: Elements per block of the blocked passes: a few blocks' scratch arrays fit in cache.
+_CHUNK = 1 << 15
+
+
+def _sort_with_truth(scores: np.ndarray, truth: np.ndarray):
+    """Sort the scores carrying the truth along, with one value sort (no argsort).
+
+    Each score becomes an order-preserving integer key (its IEEE 754 bits, with
+    the magnitude bits of negative numbers flipped; -0.0 counts as 0.0), shifted
+    left by one bit with the truth in the freed lowest bit, and the uint64 array
+    is sorted in place. The key is taken relative to the smallest one, so it
+    fits in 63 bits whenever the keys span less than 2**63 (always for scores of
+    one sign); otherwise negative and non-negative scores are sorted as two
+    parts, which are in order one after the other. Returns the sorted packed
+    array and the parts ``(start, stop, offset)`` that :func:`_unpack` needs.
+    """
+    n = scores.size
+    packed = np.empty(n, dtype=np.uint64)
+    if n == 0:
+        return packed, []
+    bits = np.ascontiguousarray(scores, dtype=np.float64).view(np.int64)
+    if int(bits.min()) >= 0:  # no sign bit anywhere: the bits are the keys, offset 0
+        ubits = bits.view(np.uint64)
+        for a in range(0, n, _CHUNK):  # blocked: the shifted block is still in cache for the OR
+            block = packed[a:a + _CHUNK]
+            np.left_shift(ubits[a:a + _CHUNK], _ONE, out=block)
+            np.bitwise_or(block, truth[a:a + _CHUNK], out=block)
+        packed.sort()
+        return packed, [(0, n, 0)]
+    bits = (scores + 0.0).view(np.int64)  # -0.0 + 0.0 is +0.0
+    keys = bits ^ ((bits >> 63) & _MAGNITUDE)
+    lo, hi = int(keys.min()), int(keys.max())
+    if hi - lo < 2 ** 63:
+        pieces = [(keys, truth, 0, n, lo)]
+    else:
+        neg = keys < 0
+        m = int(np.count_nonzero(neg))
+        pieces = [(keys[neg], truth[neg], 0, m, lo), (keys[~neg], truth[~neg], m, n, 0)]
+    for k, y, a, b, offset in pieces:
+        out = packed[a:b]
+        np.subtract(k, offset, out=out.view(np.int64))
+        out <<= _ONE
+        np.bitwise_or(out, y, out=out)
+        out.sort()
+    return packed, [(a, b, offset) for _, _, a, b, offset in pieces]
+
+
+def _unpack(packed: np.ndarray, parts) -> np.ndarray:
+    """The sorted scores (float64), in place of the keys of :func:`_sort_with_truth`.
+
+    The truth bits must already be shifted out (:func:`_positives_at_or_above` does it).
+    """
+    keys = packed.view(np.int64)
+    if parts != [(0, packed.size, 0)]:
+        for a, b, offset in parts:
+            keys[a:b] += offset
+        keys ^= (keys >> 63) & _MAGNITUDE
+    return keys.view(np.float64)
+
+
+def _positives_at_or_above(packed: np.ndarray, total_pos: int):
+    """Positives at or after each position of the sorted packed array, and whether keys repeat.
+
+    A cumulative count of the truth bits in cache-sized blocks, which also
+    shifts the bits out of ``packed`` (leaving the keys) and compares
+    neighbouring keys. Returns the counts and True when some key repeats.
+    """
+    n = packed.size
+    out = np.empty(n, dtype=np.int64)
+    bit = np.empty(min(n, _CHUNK), dtype=np.int64)
+    csum = np.empty_like(bit)
+    same = np.empty(max(min(n, _CHUNK) - 1, 0), dtype=bool)
+    keys = packed.view(np.int64)
+    carry = total_pos  # positives at or after the block's first position
+    repeats = False
+    for a in range(0, n, _CHUNK):
+        b = min(a + _CHUNK, n)
+        bt, cs = bit[:b - a], csum[:b - a]
+        np.bitwise_and(keys[a:b], 1, out=bt)
+        np.cumsum(bt, out=cs)
+        block = out[a:b]
+        np.subtract(bt, cs, out=block)  # minus the positives in [a, p)
+        block += carry
+        carry -= int(cs[-1])
+        kb = packed[a:b]
+        kb >>= _ONE
+        if not repeats:
+            np.equal(kb[1:], kb[:-1], out=same[:b - a - 1])
+            repeats = bool(same[:b - a - 1].any()) or (a > 0 and packed[a - 1] == kb[0])
+    return out, repeats
 
 
 #: Sorted keys located per block; each block searches only its slice of the array.
@@ -130,9 +240,57 @@ def _locate(values: np.ndarray, keys: np.ndarray) -> np.ndarray:
 
 def _curve_counts(truth: np.ndarray, scores: np.ndarray):
     """Thresholds ascending and (tp, fp, positives, n) at each, with the grid."""
-    grid = _Grid(scores)
-    tp = grid.at_or_above(scores[truth])
-    return grid, tp, grid.predicted - tp, int(np.count_nonzero(truth)), grid.n
+    grid = _Grid(scores, truth)
+    return grid, grid.tp, grid.predicted - grid.tp, grid.total_pos, grid.n
+
+
+def _fp_and_mcc(grid: _Grid, undefined: str):
+    r"""FP and MCC at every threshold of ``grid``, in cache-sized blocks.
+
+    The same arithmetic as :func:`_mcc_counts` (so the same floats), done a
+    block at a time so that its dozen steps run on scratch arrays in cache
+    instead of as passes over the whole curve. The denominator is zero only at
+    the lowest threshold (every sample predicted positive) or everywhere when
+    there are no positives or no negatives.
+    """
+    m, n, total_pos = grid.thresholds.size, grid.n, grid.total_pos
+    tp, first = grid.tp, grid._first
+    fp = np.empty(m, dtype=np.int64)
+    mcc = np.empty(m, dtype=np.float64)
+    size = min(m, _CHUNK)
+    step = np.arange(size, dtype=np.int64)
+    fstep = np.arange(size, dtype=np.float64)
+    f, pp, num, tmp = (np.empty(size) for _ in range(4))
+    scale = math.sqrt(float(total_pos) * float(n - total_pos))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        for a in range(0, m, _CHUNK):
+            b = min(a + _CHUNK, m)
+            k = b - a
+            fb, pb, tb, ub, fpb, tpb = f[:k], pp[:k], num[:k], tmp[:k], fp[a:b], tp[a:b]
+            if first is None:  # the j-th threshold is the j-th sorted score
+                np.subtract(n - a, step[:k], out=fpb)
+                np.add(fstep[:k], a, out=fb)
+            else:
+                np.subtract(n, first[a:b], out=fpb)
+                np.copyto(fb, first[a:b])
+            fpb -= tpb  # predicted positive minus TP
+            np.subtract(float(n), fb, out=pb)  # predicted positive, PP
+            np.copyto(tb, tpb)
+            tb *= float(n)
+            np.multiply(pb, float(total_pos), out=ub)
+            tb -= ub  # n TP - n+ PP = TP TN - FP FN, exact in float64
+            fb *= pb  # (n - PP) PP
+            np.sqrt(fb, out=fb)
+            fb *= scale
+            np.divide(tb, fb, out=mcc[a:b])
+            np.clip(mcc[a:b], -1.0, 1.0, out=mcc[a:b])
+    if m:
+        fill = 0.0 if undefined == "zero" else np.nan
+        if scale == 0:
+            mcc[:] = fill
+        else:
+            mcc[0] = fill
+    return fp, mcc
 
 
 def _mcc_counts(tp, fp, total_pos, n, undefined: str) -> np.ndarray:
@@ -201,14 +359,15 @@ def threshold_curve(truth, scores, *, undefined: str = "zero") -> xr.Dataset:
     Notes
     -----
     Threshold :math:`\theta` predicts positive every sample with
-    :math:`\text{score} \ge \theta`. The scores are sorted once; the
-    position :math:`f_j` of the first occurrence of the :math:`j`-th distinct
-    score gives the number predicted positive, :math:`n - f_j`. The sorted
-    positive scores are located in that array (a binary search of sorted keys)
-    and a suffix sum of their occurrences gives :math:`TP_j`; then
-    :math:`FP_j = n - f_j - TP_j`, :math:`FN_j = n^+ - TP_j`,
-    :math:`TN_j = n^- - FP_j`. Ties are exact: every sample whose score equals
-    a threshold is on the positive side of it. Cost :math:`O(n \log n)`.
+    :math:`\text{score} \ge \theta`. The scores are sorted once, with the
+    truth carried along in the lowest bit of an order-preserving 64-bit
+    integer key (a value sort, no argsort); the position :math:`f_j` of the
+    first occurrence of the :math:`j`-th distinct score gives the number
+    predicted positive, :math:`n - f_j`, and a suffix sum of the truth bits
+    gives :math:`TP_j`; then :math:`FP_j = n - f_j - TP_j`,
+    :math:`FN_j = n^+ - TP_j`, :math:`TN_j = n^- - FP_j`. Ties are exact:
+    every sample whose score equals a threshold is on the positive side of
+    it. Cost :math:`O(n \log n)`.
     The figures at each threshold are :func:`foldcorr.metrics.mcc` and its
     companions on that 2 x 2 matrix; undefined values at single thresholds
     are not warned about (at the lowest threshold every sample is predicted
@@ -257,10 +416,15 @@ def _argbest(mcc: np.ndarray, allowed: np.ndarray | None = None) -> int:
     if mcc.size == 0:
         return -1
     score = mcc if allowed is None else np.where(allowed, mcc, -np.inf)
-    if np.isnan(score.max()):  # max propagates NaN: one pass tells whether any is NaN
+    i = int(np.argmax(score))
+    if np.isnan(score[i]):  # argmax stops at the first NaN: set the NaNs aside
         score = np.where(np.isnan(score), -np.inf, score)
-    i = score.size - 1 - int(np.argmax(score[::-1]))
-    return -1 if score[i] == -np.inf else i
+        i = int(np.argmax(score))
+    top = score[i]
+    if top == -np.inf:
+        return -1
+    later = np.flatnonzero(score[i + 1:] == top)  # argmax gives the first of ties
+    return i + 1 + int(later[-1]) if later.size else i
 
 
 def _mcc_at(grid: _Grid, tp, fp, total_pos, n, at: float, undefined: str) -> float:
@@ -280,7 +444,8 @@ class LabelSweep:
         Label name (None for a binary sweep).
     curve : xarray.Dataset
         Dim ``threshold`` (distinct scores, ascending): ``tp``, ``fp``, ``fn``,
-        ``tn`` and ``mcc``. :meth:`figures` adds the companions.
+        ``tn`` and ``mcc``. :meth:`figures` adds the companions. Built from the
+        counts kept by the sweep on first access (a cached property).
     n_thresholds : int
         Number of distinct thresholds.
     best_threshold, best_mcc : float
@@ -298,7 +463,6 @@ class LabelSweep:
     """
 
     label: object
-    curve: xr.Dataset
     n_thresholds: int
     best_threshold: float
     best_mcc: float
@@ -307,6 +471,18 @@ class LabelSweep:
     crossfold: xr.Dataset | None
     crossfold_mcc: float | None
     undefined: str = "zero"
+    #: (thresholds, tp, fp, mcc, positives, n): what :attr:`curve` is built from.
+    _counts: tuple = field(default=(np.empty(0), np.empty(0, np.int64), np.empty(0, np.int64),
+                                    np.empty(0), 0, 0), repr=False, compare=False)
+
+    @cached_property
+    def curve(self) -> xr.Dataset:
+        """Counts and MCC at every distinct threshold (see the class Attributes)."""
+        thresholds, tp, fp, mcc, total_pos, n = self._counts
+        return xr.Dataset({"tp": (THRESHOLD, tp), "fp": (THRESHOLD, fp),
+                           "fn": (THRESHOLD, total_pos - tp),
+                           "tn": (THRESHOLD, (n - total_pos) - fp),
+                           "mcc": (THRESHOLD, mcc)}, coords={THRESHOLD: thresholds})
 
     def figures(self, *, max_points: int | None = None) -> xr.Dataset:
         """The curve with accuracy, F1, recall and precision, from :mod:`foldcorr.metrics`.
@@ -414,12 +590,16 @@ def sweep(truth, scores, *, labels: Sequence | None = None, folds=None,
     -----
     Each label's scores are sorted once (see :func:`threshold_curve`). Each
     fold's counts are then located on that label's grid of distinct scores (a
-    sort of the fold's scores, which together are one more sort of the
-    array), and the other folds' counts are the totals minus the fold's. Only
+    sort of the fold's scores with their truth, which together are one more
+    sort of the array), and the other folds' counts are the totals minus the
+    fold's. Only
     thresholds that occur among the other folds' scores are candidates. MCC at
     every threshold is computed straight from the four counts (Matthews 1975),
-    the same value as :func:`foldcorr.metrics.mcc` on each 2 x 2 matrix, which
-    keeps a curve of 10^7 thresholds to a few array passes. For fold :math:`j`,
+    the same value as :func:`foldcorr.metrics.mcc` on each 2 x 2 matrix, in
+    cache-sized blocks, so a curve of 10^7 thresholds costs about one pass over
+    memory; FN, TN (:attr:`LabelSweep.curve`) and the companions
+    (:meth:`LabelSweep.figures`) are computed when first asked for. For fold
+    :math:`j`,
 
     .. math:: \hat\theta_{-j} = \arg\max_\theta \mathrm{MCC}_{-j}(\theta), \qquad
               \text{crossfold MCC} = \frac{1}{J}\sum_j \mathrm{MCC}_j(\hat\theta_{-j})
@@ -488,11 +668,9 @@ def _fold_codes(folds, n):
 
 
 def _sweep_one(y, s, name, codes, fold_labels, at, undefined, notes) -> LabelSweep:
-    grid, tp, fp, total_pos, n = _curve_counts(y, s)
-    mcc = _mcc_counts(tp, fp, total_pos, n, undefined)
-    curve = xr.Dataset({"tp": (THRESHOLD, tp), "fp": (THRESHOLD, fp),
-                        "fn": (THRESHOLD, total_pos - tp), "tn": (THRESHOLD, (n - total_pos) - fp),
-                        "mcc": (THRESHOLD, mcc)}, coords={THRESHOLD: grid.thresholds})
+    grid = _Grid(s, y)
+    tp, total_pos, n = grid.tp, grid.total_pos, grid.n
+    fp, mcc = _fp_and_mcc(grid, undefined)
     reason = _degenerate(grid, total_pos, n)
     if reason:
         where = "" if name is None else f"label {name!r}: "
@@ -505,40 +683,110 @@ def _sweep_one(y, s, name, codes, fold_labels, at, undefined, notes) -> LabelSwe
     if codes is not None:
         crossfold = _crossfold(grid, tp, s, y, total_pos, codes, fold_labels, undefined)
         crossfold_mcc = float(crossfold["mcc"].mean())
-    return LabelSweep(label=name, curve=curve, n_thresholds=int(grid.thresholds.size),
+    return LabelSweep(label=name, n_thresholds=int(grid.thresholds.size),
                       best_threshold=best_t, best_mcc=best_mcc, at_threshold=at, mcc_at=mcc_at,
-                      crossfold=crossfold, crossfold_mcc=crossfold_mcc, undefined=undefined)
+                      crossfold=crossfold, crossfold_mcc=crossfold_mcc, undefined=undefined,
+                      _counts=(grid.thresholds, tp, fp, mcc, total_pos, n))
 
 
 def _crossfold(grid: _Grid, tp, s, y, total_pos, codes, fold_labels, undefined) -> xr.Dataset:
     """Per fold: the best threshold on the other folds, and its MCC on the fold.
 
-    Each fold's counts are taken on the grid of all distinct scores, so the
-    complement's counts are the totals minus the fold's: no second sort of the
-    whole array. Only thresholds that occur among the other folds' scores are
-    candidates, exactly as if the other folds had been swept alone.
+    Each fold's scores are sorted with their truth (the folds together are one
+    more sort of the array, never a sort per fold of everything) and located on
+    the grid of all distinct scores, so the complement's counts are the totals
+    minus the fold's. Only thresholds that occur among the other folds' scores
+    are candidates, exactly as if the other folds had been swept alone.
     """
-    occurs = np.diff(np.append(grid.first, grid.n))
+    occurs = None if grid._first is None else np.diff(np.append(grid._first, grid.n))
     chosen, held, sizes = [], [], []
     for j in range(len(fold_labels)):
         inside = codes == j
-        pred_j = grid.at_or_above(s[inside])
-        tp_j = grid.at_or_above(s[inside & y])
-        n_j, pos_j = int(np.count_nonzero(inside)), int(np.count_nonzero(inside & y))
-        here = np.append(pred_j[:-1] - pred_j[1:], pred_j[-1:]) if pred_j.size else pred_j
-        tp_c = tp - tp_j
-        fp_c = (grid.predicted - pred_j) - tp_c
-        mcc_c = _mcc_counts(tp_c, fp_c, total_pos - pos_j, grid.n - n_j, undefined)
-        i = _argbest(mcc_c, allowed=(occurs - here) > 0)
+        packed, parts = _sort_with_truth(s[inside], y[inside])
+        positive = (packed & _ONE).astype(bool)
+        packed >>= _ONE
+        values = _unpack(packed, parts)  # the fold's scores, ascending
+        n_j, pos_j = values.size, int(np.count_nonzero(positive))
+        where = _locate(grid.values, values)  # first position of each score in the whole array
+        here = np.bincount(where, minlength=grid.n)  # fold samples at each threshold
+        here_pos = np.bincount(where[positive], minlength=grid.n)
+        if grid._first is not None:
+            here, here_pos = here[grid._first], here_pos[grid._first]
+        mcc_c = _complement_mcc(grid, here, here_pos, occurs, total_pos - pos_j,
+                                grid.n - n_j, undefined)
+        i = _argbest(mcc_c)
         if i < 0:
             chosen.append(np.nan)
             held.append(np.nan if undefined == "nan" else 0.0)
         else:
-            chosen.append(float(grid.thresholds[i]))
-            held.append(float(_mcc_counts(tp_j[i], pred_j[i] - tp_j[i], pos_j, n_j, undefined)[0]))
+            theta = grid.thresholds[i]
+            pred_i = n_j - int(np.searchsorted(values, theta, side="left"))
+            tp_i = pos_j - int(np.count_nonzero(positive[:n_j - pred_i]))
+            chosen.append(float(theta))
+            held.append(float(_mcc_counts(tp_i, pred_i - tp_i, pos_j, n_j, undefined)[0]))
         sizes.append(n_j)
     return xr.Dataset({"threshold": (FOLD, np.array(chosen)), "mcc": (FOLD, np.array(held)),
                        "n": (FOLD, np.array(sizes))}, coords={FOLD: fold_labels})
+
+
+def _complement_mcc(grid: _Grid, here, here_pos, occurs, total_pos: int, n: int,
+                    undefined: str) -> np.ndarray:
+    """MCC of the other folds at every threshold, -inf where no other-fold score equals it.
+
+    ``here`` and ``here_pos`` count the held-out fold's samples and positives at
+    each threshold; the other folds' counts at or above a threshold are the
+    totals minus the fold's suffix sums. Blocked like :func:`_fp_and_mcc`, with
+    the arithmetic of :func:`_mcc_counts` (the same floats).
+    """
+    m = grid.thresholds.size
+    out = np.empty(m, dtype=np.float64)
+    size = min(m, _CHUNK)
+    step = np.arange(size, dtype=np.int64)
+    pred_b, tp_b, pp_i = (np.empty(size, dtype=np.int64) for _ in range(3))
+    pp, num, den = (np.empty(size) for _ in range(3))
+    allowed = np.empty(size, dtype=bool)
+    scale = math.sqrt(float(total_pos) * float(n - total_pos))
+    fill = 0.0 if undefined == "zero" else np.nan
+    first = grid._first
+    above, above_pos = 0, 0  # held-out samples / positives in the blocks after this one
+    with np.errstate(invalid="ignore", divide="ignore"):
+        for b in range(m, 0, -_CHUNK):  # from the top, so the suffix sums carry down
+            a = max(b - _CHUNK, 0)
+            k = b - a
+            hb, hpb, pb, tb, ib = here[a:b], here_pos[a:b], pred_b[:k], tp_b[:k], pp_i[:k]
+            np.cumsum(hb[::-1], out=pb[::-1])  # held-out samples at or above, within the block
+            pb += above
+            np.cumsum(hpb[::-1], out=tb[::-1])
+            tb += above_pos
+            above, above_pos = int(pb[0]), int(tb[0])
+            if first is None:
+                np.subtract(grid.n - a, step[:k], out=ib)  # all samples at or above
+            else:
+                np.subtract(grid.n, first[a:b], out=ib)
+            ib -= pb  # the other folds' predicted positive
+            np.subtract(grid.tp[a:b], tb, out=tb)  # the other folds' TP
+            al = allowed[:k]
+            if occurs is None:
+                np.equal(hb, 0, out=al)
+            else:
+                np.greater(occurs[a:b], hb, out=al)
+            nb, pf, db = num[:k], pp[:k], den[:k]
+            np.copyto(nb, tb)
+            nb *= float(n)
+            np.copyto(pf, ib)
+            np.multiply(pf, float(total_pos), out=db)
+            nb -= db  # n TP - n+ PP
+            np.subtract(float(n), pf, out=db)
+            db *= pf
+            np.sqrt(db, out=db)
+            db *= scale
+            ob = out[a:b]
+            np.divide(nb, db, out=ob)
+            if fill == 0.0:  # 0/0 (the numerator is 0 wherever the denominator is)
+                np.copyto(ob, 0.0, where=db == 0)
+            np.clip(ob, -1.0, 1.0, out=ob)
+            np.copyto(ob, -np.inf, where=~al)
+    return out
 
 
 def _degenerate(grid: _Grid, total_pos: int, n: int) -> str:

@@ -164,3 +164,74 @@ def test_nan_convention_in_sweeps():
     assert np.isnan(r.curve["mcc"].values[0]) and r.best_mcc == 1.0 and r.best_threshold == 0.6
     flat = sweep([0, 1], [0.5, 0.5], undefined="nan").labels[0]
     assert np.isnan(flat.best_threshold) and np.isnan(flat.best_mcc)
+
+
+def _reference_sweep(y, s, folds=None, at=None):
+    """A straightforward sweep: every distinct threshold, sklearn.metrics at each."""
+    thresholds = np.unique(s)
+    tp = np.array([np.count_nonzero(y & (s >= t)) for t in thresholds])
+    fp = np.array([np.count_nonzero(~y & (s >= t)) for t in thresholds])
+    mcc = np.array([matthews_corrcoef(y, s >= t) for t in thresholds])
+    out = {"thresholds": thresholds, "tp": tp, "fp": fp, "mcc": mcc}
+    # thresholds whose MCC is the maximum up to rounding: equal MCCs can come out of two
+    # different count tables (e.g. 3/sqrt(189) and 4/sqrt(336)) one unit in the last place apart
+    out["best"] = set(thresholds[np.isclose(mcc, mcc.max(), atol=1e-12)].tolist())
+    if at is not None:
+        out["mcc_at"] = matthews_corrcoef(y, s >= at)
+    if folds is not None:
+        chosen = []
+        for j in np.unique(folds):
+            train = folds != j
+            t_train = np.unique(s[train])
+            m_train = np.array([matthews_corrcoef(y[train], s[train] >= t) for t in t_train])
+            chosen.append(set(t_train[np.isclose(m_train, m_train.max(), atol=1e-12)].tolist()))
+        out["crossfold"] = chosen
+    return out
+
+
+_scores = st.one_of(
+    st.integers(-3, 3).map(float),  # heavy ties, negative and zero scores
+    st.sampled_from([-0.0, 0.0, 0.5, -0.5]),  # -0.0 and 0.0 are one threshold
+    st.floats(-1e300, 1e300, allow_nan=False, allow_infinity=False),  # keys spanning > 2**63
+)
+
+
+@given(st.lists(st.tuples(st.booleans(), _scores, st.integers(0, 2)), min_size=1, max_size=30))
+def test_sweep_equals_a_straightforward_reference(rows):
+    # the packed-key sort against np.unique, direct counts and sklearn.metrics.matthews_corrcoef
+    # at every distinct threshold, with ties, constant scores, -0.0, both signs and huge spans
+    y = np.array([r[0] for r in rows])
+    s = np.array([r[1] for r in rows], dtype=float)
+    folds = np.array([r[2] for r in rows])
+    use_folds = len(np.unique(folds)) >= 2
+    r = sweep(y, s, at=0.0, folds=folds if use_folds else None).labels[0]
+    ref = _reference_sweep(y, s, folds if use_folds else None, at=0.0)
+    c = r.curve
+    assert c["threshold"].values.tolist() == ref["thresholds"].tolist()
+    np.testing.assert_array_equal(c["tp"].values, ref["tp"])
+    np.testing.assert_array_equal(c["fp"].values, ref["fp"])
+    np.testing.assert_array_equal(c["fn"].values, y.sum() - ref["tp"])
+    np.testing.assert_array_equal(c["tn"].values, (~y).sum() - ref["fp"])
+    np.testing.assert_allclose(c["mcc"].values, ref["mcc"], atol=1e-12)
+    assert r.best_threshold in ref["best"] and r.n_thresholds == ref["thresholds"].size
+    assert r.best_mcc == pytest.approx(ref["mcc"].max(), abs=1e-12)
+    assert r.mcc_at == pytest.approx(ref["mcc_at"], abs=1e-12)
+    if use_folds:
+        for theta, near_best in zip(r.crossfold["threshold"].values, ref["crossfold"]):
+            assert theta in near_best
+
+
+def test_wide_mixed_sign_scores_are_sorted_in_two_parts():
+    # scores whose integer keys span more than 2**63 take the two-part path of the packed sort;
+    # the curve must still equal the direct count (common practice: admit every score >= t)
+    from foldcorr.thresholds import _sort_with_truth
+
+    rng = np.random.default_rng(13)
+    s = np.concatenate([rng.normal(size=120) * 1e200, [-0.0, 0.0, 1e308, -1e308]])
+    y = rng.random(s.size) < 0.4
+    _, parts = _sort_with_truth(s, y)
+    assert len(parts) == 2
+    c = threshold_curve(y, s)
+    ref = _brute(y, s)
+    got = np.column_stack([c[k].values for k in ("threshold", "tp", "fp", "fn", "tn", "mcc")])
+    np.testing.assert_allclose(got, ref[:, :6], rtol=0, atol=1e-12)
