@@ -62,8 +62,10 @@ TABLE_SUFFIXES = {".csv": "csv", ".tsv": "tsv", ".parquet": "parquet", ".pq": "p
 
 #: Rows per record batch asked of the readers.
 BATCH_ROWS = 1 << 20
-#: Record batches the Parquet reader decodes ahead, in its own threads, while one is counted.
-BATCH_READAHEAD = 2
+#: Record batches the Parquet reader decodes ahead, in its own threads.
+BATCH_READAHEAD = 1
+#: Record batches a background thread reads ahead of the counting (0: none).
+PREFETCH = 2
 #: Bytes per CSV / JSON Lines block.
 BLOCK_BYTES = 1 << 24
 #: Integer labels in [0, DIRECT_MAX) are their own codes (no hashing).
@@ -633,6 +635,7 @@ class StreamTally:
         # int64 counts before it could overflow and whenever they are read.
         self._pending = None
         self._pending_rows = 0
+        self._counted = False     # whether _counts holds any count yet
         self.seen = {role: np.zeros(0, dtype=bool) for role in self.coders} if weight else None
         self.rows = 0
         self.nulls = {"truth": 0, "pred": 0}
@@ -650,18 +653,29 @@ class StreamTally:
 
     def _flush(self) -> None:
         if self._pending is not None:
-            self._counts += self._pending
+            if self._counted:
+                self._counts += self._pending
+            else:   # one new array instead of touching a zero one and adding
+                self._counts = self._pending.astype(self._counts.dtype)
+            self._counted = True
             self._pending = None
             self._pending_rows = 0
 
+    def _source(self) -> np.ndarray:
+        """The counts to read, without adding the uint32 batch counts into int64 first
+        when those are all there is (one large array less to write)."""
+        if self._pending is not None and not self._counted:
+            return self._pending
+        return self.counts
+
     def _target(self, rows: int, weighted: bool) -> np.ndarray:
         """The array to count ``rows`` more rows into."""
-        if weighted:
+        if weighted or rows > _PENDING_MAX:
+            self._flush()
+            self._counted = True
             return self._counts
         if self._pending is not None and self._pending_rows + rows > _PENDING_MAX:
             self._flush()
-        if rows > _PENDING_MAX:
-            return self._counts
         if self._pending is None:
             self._pending = np.zeros(self._counts.shape, dtype=np.uint32)
         self._pending_rows += rows
@@ -763,6 +777,7 @@ class StreamTally:
             self.counts[: c.shape[0], : c.shape[1], : c.shape[2]] += c   # same codes
         else:
             self.counts[np.ix_(*parts)] += c
+        self._counted = True
         if self.seen is not None:
             for role, m in maps.items():
                 self.seen[role][m[: len(other.seen[role])][other.seen[role]]] = True
@@ -775,7 +790,7 @@ class StreamTally:
     def _seen_codes(self, role: str) -> np.ndarray:
         if self.seen is not None:
             return np.flatnonzero(self.seen[role])
-        c = self.counts
+        c = self._source()
         axis = {"fold": (1, 2), "truth": (0, 2), "pred": (0, 1)}[role]
         return np.flatnonzero(c.sum(axis=axis) > 0) if c.size else np.zeros(0, np.int64)
 
@@ -844,10 +859,10 @@ class StreamTally:
             rank_f, fold_values = _sorted_codes(np.arange(len(vf)),
                                                 np.asarray(vf + [None], dtype=object)[:-1])
             # rank_f[i] is where fold code cf[i] goes; gather by its inverse.
-            folds = _take(self.counts, np.argsort(rank_f, kind="stable"), 0, cf)
+            folds = _take(self._source(), np.argsort(rank_f, kind="stable"), 0, cf)
             leading[FOLD] = [_py(v) for v in fold_values]
         else:
-            folds = self.counts[:1]
+            folds = self._source()[:1]
         src = _take(_take(folds, ct, 1), cp, 2)
         if _injective(map_t, k) and _injective(map_p, k):
             if len(map_t) == k and len(map_p) == k:  # a permutation: gather by its inverse
@@ -859,7 +874,9 @@ class StreamTally:
             out = np.zeros((src.shape[0], k, k), dtype=src.dtype)
             for i, a in enumerate(map_t):
                 np.add.at(out, (slice(None), a, map_p), src[:, i, :])
-        if np.may_share_memory(out, self._counts):  # the tensor must not change with the tally
+        if out.dtype != self._counts.dtype:        # uint32 batch counts: a new int64 array
+            out = out.astype(self._counts.dtype)
+        elif np.may_share_memory(out, self._counts):  # the tensor must not change with the tally
             out = out.copy()
         if not leading:
             out = out[0]
@@ -1334,9 +1351,59 @@ def _tally_files(plan: _Plan, files, classes, skip_bad_files: bool, batch_rows: 
     return acc, used, skipped
 
 
+def _prefetch(items, depth: int):
+    """The items of an iterator, read ahead by a background thread into a bounded queue.
+
+    The readers decode while the caller counts (numpy and pyarrow release the
+    GIL), and at most ``depth`` items wait, so memory stays bounded. An error
+    of the iterator is raised here, in the caller's thread, in its turn.
+    """
+    import queue
+    import threading
+
+    if depth <= 0:
+        yield from items
+        return
+    q: queue.Queue = queue.Queue(maxsize=depth)
+    stop = threading.Event()
+    end = object()
+
+    def put(entry) -> bool:
+        while not stop.is_set():
+            try:
+                q.put(entry, timeout=0.05)
+                return True
+            except queue.Full:
+                continue
+        return False
+
+    def produce():
+        try:
+            for item in items:
+                if not put((item, None)):
+                    return
+            put((end, None))
+        except BaseException as exc:  # handed to the caller, raised there
+            put((end, exc))
+
+    worker = threading.Thread(target=produce, name="foldcorr-read-ahead", daemon=True)
+    worker.start()
+    try:
+        while True:
+            item, exc = q.get()
+            if item is end:
+                if exc is not None:
+                    raise exc
+                return
+            yield item
+    finally:
+        stop.set()
+        worker.join()
+
+
 def _read(f, fmt, columns, text_cols, where, batch_rows):
     """Batches of one file; read errors become skippable errors naming the file."""
-    it = _batches(f, fmt, columns, text_cols, where, batch_rows)
+    it = _prefetch(_batches(f, fmt, columns, text_cols, where, batch_rows), PREFETCH)
     while True:
         try:
             batch = next(it)

@@ -724,12 +724,17 @@ def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=No
         raise ValueError("count_codes needs at least one array of codes")
     total = int(np.prod(shape, dtype=np.int64))
     itype = np.int32 if total <= np.iinfo(np.int32).max else np.int64
-    index = np.array(codes[0], dtype=itype)  # a copy: built up in place below
+    index = None
     for c, size in zip(codes[1:], shape[1:]):
-        index *= size
+        if index is None:  # a new array, built up in place below
+            index = np.multiply(codes[0], size, dtype=itype)
+        else:
+            index *= size
         c = np.asarray(c)
         index += c if c.dtype == itype or c.dtype.itemsize < index.dtype.itemsize \
             else c.astype(itype)
+    if index is None:
+        index = np.array(codes[0], dtype=itype)
     if out is not None:
         # A one of out's own type keeps numpy on its fast indexed loop.
         np.add.at(out.reshape(-1), index, out.dtype.type(1) if weights is None else weights)

@@ -148,3 +148,23 @@ def test_count_codes_into_uint32_and_mixed_code_types():
     np.testing.assert_array_equal(fresh, np.stack([confusion_matrix(a[f == g], p[f == g],
                                                                     labels=range(9))
                                                    for g in range(3)]))
+
+
+def test_read_ahead_keeps_order_raises_in_turn_and_stops_when_closed():
+    import threading
+
+    def items():
+        yield from range(5)
+        raise ValueError("damaged block")
+
+    got = []
+    with pytest.raises(ValueError, match="damaged block"):
+        for x in streaming._prefetch(items(), 2):
+            got.append(x)
+    assert got == [0, 1, 2, 3, 4]          # every item before the error, in order
+
+    endless = streaming._prefetch(iter(lambda: 1, None), 2)
+    assert next(endless) == 1
+    endless.close()                        # the caller stops early: the thread ends too
+    assert not any(t.name == "foldcorr-read-ahead" for t in threading.enumerate())
+    assert list(streaming._prefetch(iter(range(3)), 0)) == [0, 1, 2]
