@@ -20,6 +20,7 @@ turned to text (see ``foldcorr.sources``).
 
 from __future__ import annotations
 
+import contextlib
 import glob as _glob
 import math
 import re
@@ -1258,13 +1259,16 @@ def _tally_file(plan: _Plan, f: Path, fmt: str, classes, batch_rows: int,
     """Tally one file on its own; raise _SkipFile when it cannot be read."""
     part = plan.new_tally()
     check = _FileCheck()
-    for batch in _read(f, fmt, plan.columns(), plan.text_columns(), plan.where, batch_rows):
-        try:
-            part.add(batch, check)
-        except InvalidInputError as exc:
-            raise _fail(f, str(exc)) from None
-        if bar is not None:
-            bar.rows(batch.num_rows)
+    # closing: on an error the read-ahead thread stops now, not when the traceback goes
+    with contextlib.closing(_read(f, fmt, plan.columns(), plan.text_columns(), plan.where,
+                                  batch_rows)) as batches:
+        for batch in batches:
+            try:
+                part.add(batch, check)
+            except InvalidInputError as exc:
+                raise _fail(f, str(exc)) from None
+            if bar is not None:
+                bar.rows(batch.num_rows)
     _raise_checks(f, check, part, classes)
     return part
 
@@ -1332,14 +1336,15 @@ def _tally_files(plan: _Plan, files, classes, skip_bad_files: bool, batch_rows: 
             else:
                 # Straight into the running tally: no copy of the count array per file.
                 check = _FileCheck()
-                for batch in _read(f, fmt, plan.columns(), plan.text_columns(), plan.where,
-                                   batch_rows):
-                    try:
-                        acc.add(batch, check)
-                    except InvalidInputError as exc:
-                        raise _fail(f, str(exc)) from None
-                    if bar is not None:
-                        bar.rows(batch.num_rows)
+                with contextlib.closing(_read(f, fmt, plan.columns(), plan.text_columns(),
+                                              plan.where, batch_rows)) as batches:
+                    for batch in batches:
+                        try:
+                            acc.add(batch, check)
+                        except InvalidInputError as exc:
+                            raise _fail(f, str(exc)) from None
+                        if bar is not None:
+                            bar.rows(batch.num_rows)
                 _raise_checks(f, check, acc, classes)
             used.append(f)
         except _SkipFile as exc:
@@ -1403,7 +1408,12 @@ def _prefetch(items, depth: int):
 
 def _read(f, fmt, columns, text_cols, where, batch_rows):
     """Batches of one file; read errors become skippable errors naming the file."""
-    it = _prefetch(_batches(f, fmt, columns, text_cols, where, batch_rows), PREFETCH)
+    with contextlib.closing(_prefetch(_batches(f, fmt, columns, text_cols, where, batch_rows),
+                                      PREFETCH)) as it:
+        yield from _checked_batches(f, fmt, it, where)
+
+
+def _checked_batches(f, fmt, it, where):
     while True:
         try:
             batch = next(it)

@@ -168,3 +168,18 @@ def test_read_ahead_keeps_order_raises_in_turn_and_stops_when_closed():
     endless.close()                        # the caller stops early: the thread ends too
     assert not any(t.name == "foldcorr-read-ahead" for t in threading.enumerate())
     assert list(streaming._prefetch(iter(range(3)), 0)) == [0, 1, 2]
+
+
+def test_read_ahead_thread_stops_when_a_batch_is_refused(tmp_path):
+    import threading
+
+    p = tmp_path / "p.parquet"
+    pq.write_table(pa.table({"actual": ["a"] * 400, "predicted": ["b"] * 400,
+                             "w": ["heavy"] * 400}), p, row_group_size=50)
+    with pytest.raises(InvalidInputError) as whole:
+        _load_in_memory(p, TableSpec(weight="w"))
+    with pytest.raises(InvalidInputError) as streamed:
+        stream_tensor(p, weight="w", batch_rows=50)
+    # Refused while batches were still being read ahead; worded as the in-memory path words it.
+    assert str(streamed.value) == str(whole.value) == "p.parquet: weights must be numbers"
+    assert not any(t.name == "foldcorr-read-ahead" for t in threading.enumerate())
