@@ -20,6 +20,7 @@ turned to text (see ``foldcorr.sources``).
 
 from __future__ import annotations
 
+import contextlib
 import glob as _glob
 import math
 import re
@@ -62,10 +63,16 @@ TABLE_SUFFIXES = {".csv": "csv", ".tsv": "tsv", ".parquet": "parquet", ".pq": "p
 
 #: Rows per record batch asked of the readers.
 BATCH_ROWS = 1 << 20
+#: Record batches the Parquet reader decodes ahead, in its own threads.
+BATCH_READAHEAD = 1
+#: Record batches a background thread reads ahead of the counting (0: none).
+PREFETCH = 2
 #: Bytes per CSV / JSON Lines block.
 BLOCK_BYTES = 1 << 24
 #: Integer labels in [0, DIRECT_MAX) are their own codes (no hashing).
 DIRECT_MAX = 1 << 11
+#: Rows a uint32 count array takes in before it is added to the int64 counts.
+_PENDING_MAX = np.iinfo(np.uint32).max
 
 _INT_TEXT = re.compile(r"\s*[+-]?[0-9]+\s*")
 #: A decimal number written as text (after trimming), as ``--where`` reads one.
@@ -488,13 +495,13 @@ class _Coder:
         enc = arr if pa.types.is_dictionary(typ) else pc.dictionary_encode(arr)
         lut = np.fromiter((self._code(v) for v in enc.dictionary.to_pylist()),
                           dtype=np.int64, count=len(enc.dictionary))
-        lut = np.append(lut, -1)
+        lut = np.append(lut, -1).astype(np.int32 if len(lut) < 1 << 31 else np.int64)
         idx = enc.indices
         nulls = None
         if idx.null_count:
             nulls = idx.is_null().to_numpy(zero_copy_only=False)
             idx = pc.fill_null(idx, -1)
-        return lut[idx.to_numpy().astype(np.int64, copy=False)], nulls
+        return lut[idx.to_numpy()], nulls
 
     def _to_dictionary(self) -> None:
         self.direct = False
@@ -623,10 +630,57 @@ class StreamTally:
         self.coders = {"truth": _Coder(text=text), "pred": _Coder(text=text)}
         if fold is not None:
             self.coders["fold"] = _Coder(text=text)
-        self.counts = np.zeros((1, 0, 0), dtype=np.float64 if weight else np.int64)
+        self._counts = np.zeros((1, 0, 0), dtype=np.float64 if weight else np.int64)
+        # Unweighted batches are counted into a uint32 array of the same shape
+        # (half the memory an int64 count touches per row), added into the
+        # int64 counts before it could overflow and whenever they are read.
+        self._pending = None
+        self._pending_rows = 0
+        self._counted = False     # whether _counts holds any count yet
         self.seen = {role: np.zeros(0, dtype=bool) for role in self.coders} if weight else None
         self.rows = 0
         self.nulls = {"truth": 0, "pred": 0}
+
+    @property
+    def counts(self) -> np.ndarray:
+        """The count array (folds x K_truth x K_pred), in the coders' codes."""
+        self._flush()
+        return self._counts
+
+    @counts.setter
+    def counts(self, value) -> None:
+        self._flush()
+        self._counts = value
+
+    def _flush(self) -> None:
+        if self._pending is not None:
+            if self._counted:
+                self._counts += self._pending
+            else:   # one new array instead of touching a zero one and adding
+                self._counts = self._pending.astype(self._counts.dtype)
+            self._counted = True
+            self._pending = None
+            self._pending_rows = 0
+
+    def _source(self) -> np.ndarray:
+        """The counts to read, without adding the uint32 batch counts into int64 first
+        when those are all there is (one large array less to write)."""
+        if self._pending is not None and not self._counted:
+            return self._pending
+        return self.counts
+
+    def _target(self, rows: int, weighted: bool) -> np.ndarray:
+        """The array to count ``rows`` more rows into."""
+        if weighted or rows > _PENDING_MAX:
+            self._flush()
+            self._counted = True
+            return self._counts
+        if self._pending is not None and self._pending_rows + rows > _PENDING_MAX:
+            self._flush()
+        if self._pending is None:
+            self._pending = np.zeros(self._counts.shape, dtype=np.uint32)
+        self._pending_rows += rows
+        return self._pending
 
     # -- counting
     def add(self, batch, check: _FileCheck | None = None) -> None:
@@ -668,15 +722,17 @@ class StreamTally:
         self.rows += len(codes["truth"])
         order = [codes["fold"]] if "fold" in codes else []
         order += [codes["truth"], codes["pred"]]
-        target = self.counts if "fold" in codes else self.counts[0]
+        target = self._target(len(codes["truth"]), w is not None)
+        if "fold" not in codes:
+            target = target[0]
         count_codes(order, target.shape, weights=w, out=target)
 
     def _grow(self) -> None:
         f = len(self.coders["fold"]) if "fold" in self.coders else 1
         kt, kp = len(self.coders["truth"]), len(self.coders["pred"])
-        old = self.counts.shape
+        old = self._counts.shape
         if (f, kt, kp) != old:
-            new = np.zeros((max(f, old[0]), max(kt, old[1]), max(kp, old[2])), self.counts.dtype)
+            new = np.zeros((max(f, old[0]), max(kt, old[1]), max(kp, old[2])), self._counts.dtype)
             new[: old[0], : old[1], : old[2]] = self.counts
             self.counts = new
         if self.seen is not None:
@@ -688,20 +744,21 @@ class StreamTally:
     def __getstate__(self) -> dict:
         # Partial tallies travel between processes: counts go in the narrowest
         # unsigned type that holds them (often 2 or 4 bytes instead of 8).
+        self._flush()
         state = dict(self.__dict__)
-        c = self.counts
+        c = self._counts
         if c.dtype == np.int64 and c.size:
             top = int(c.max())
             for small in (np.uint8, np.uint16, np.uint32):
                 if top <= np.iinfo(small).max:
-                    state["counts"] = c.astype(small)
+                    state["_counts"] = c.astype(small)
                     break
         return state
 
     def __setstate__(self, state: dict) -> None:
-        counts = state["counts"]
+        counts = state["_counts"]
         if counts.dtype.kind == "u":
-            state["counts"] = counts.astype(np.int64)
+            state["_counts"] = counts.astype(np.int64)
         self.__dict__.update(state)
 
     def merge(self, other: StreamTally) -> StreamTally:
@@ -721,6 +778,7 @@ class StreamTally:
             self.counts[: c.shape[0], : c.shape[1], : c.shape[2]] += c   # same codes
         else:
             self.counts[np.ix_(*parts)] += c
+        self._counted = True
         if self.seen is not None:
             for role, m in maps.items():
                 self.seen[role][m[: len(other.seen[role])][other.seen[role]]] = True
@@ -733,7 +791,7 @@ class StreamTally:
     def _seen_codes(self, role: str) -> np.ndarray:
         if self.seen is not None:
             return np.flatnonzero(self.seen[role])
-        c = self.counts
+        c = self._source()
         axis = {"fold": (1, 2), "truth": (0, 2), "pred": (0, 1)}[role]
         return np.flatnonzero(c.sum(axis=axis) > 0) if c.size else np.zeros(0, np.int64)
 
@@ -801,22 +859,48 @@ class StreamTally:
             cf, _, vf = lab["fold"]
             rank_f, fold_values = _sorted_codes(np.arange(len(vf)),
                                                 np.asarray(vf + [None], dtype=object)[:-1])
-            folds = self.counts[cf]
-            sorted_folds = np.empty_like(folds)
-            sorted_folds[rank_f] = folds
+            # rank_f[i] is where fold code cf[i] goes; gather by its inverse.
+            folds = _take(self._source(), np.argsort(rank_f, kind="stable"), 0, cf)
             leading[FOLD] = [_py(v) for v in fold_values]
         else:
-            sorted_folds = self.counts[:1]
-        src = sorted_folds[:, ct][:, :, cp]
-        out = np.zeros((src.shape[0], k, k), dtype=self.counts.dtype)
-        if len(set(map_t.tolist())) == len(map_t) and len(set(map_p.tolist())) == len(map_p):
-            out[:, map_t[:, None], map_p[None, :]] = src
+            folds = self._source()[:1]
+        src = _take(_take(folds, ct, 1), cp, 2)
+        if _injective(map_t, k) and _injective(map_p, k):
+            if len(map_t) == k and len(map_p) == k:  # a permutation: gather by its inverse
+                out = _take(_take(src, np.argsort(map_t), 1), np.argsort(map_p), 2)
+            else:
+                out = np.zeros((src.shape[0], k, k), dtype=src.dtype)
+                out[:, map_t[:, None], map_p[None, :]] = src
         else:
+            out = np.zeros((src.shape[0], k, k), dtype=src.dtype)
             for i, a in enumerate(map_t):
                 np.add.at(out, (slice(None), a, map_p), src[:, i, :])
+        if out.dtype != self._counts.dtype:        # uint32 batch counts: a new int64 array
+            out = out.astype(self._counts.dtype)
+        elif np.may_share_memory(out, self._counts):  # the tensor must not change with the tally
+            out = out.copy()
         if not leading:
             out = out[0]
         return confusion_tensor(out, labels, leading=leading, attrs=dict(attrs or {}))
+
+
+def _take(a: np.ndarray, order, axis: int, codes=None) -> np.ndarray:
+    """``a`` indexed along ``axis`` by ``codes[order]`` (``codes`` defaults to 0, 1, ...).
+
+    A run of consecutive indices is a slice (a view, no copy); others use
+    ``numpy.take``.
+    """
+    index = np.asarray(order, dtype=np.int64)
+    if codes is not None:
+        index = np.asarray(codes, dtype=np.int64)[index]
+    if len(index) and np.array_equal(index, np.arange(index[0], index[0] + len(index))):
+        return a[(slice(None),) * axis + (slice(int(index[0]), int(index[0]) + len(index)),)]
+    return np.take(a, index, axis=axis)
+
+
+def _injective(mapping: np.ndarray, k: int) -> bool:
+    """Whether no two codes map to the same class."""
+    return len(mapping) == len(np.unique(mapping)) if len(mapping) <= k else False
 
 
 def _key(value):
@@ -982,8 +1066,19 @@ def _batches(path: Path, fmt: str, columns: list[str], text_columns: list[str], 
 
         dataset = ds.dataset(path, format="parquet")
         expr = None if where is None else where.expression(dataset.schema)
+        # Text labels are read as they are stored, a dictionary of the distinct
+        # values and int32 indices: the coder then maps the small dictionary,
+        # never hashes the rows. Columns the filter names keep their type.
+        named = set() if where is None else set(where.columns)
+        as_dictionary = [c for c in text_columns if c not in named
+                         and _kind(dataset.schema.field(c).type) == "text"
+                         and not pa.types.is_dictionary(dataset.schema.field(c).type)]
+        if as_dictionary:
+            dataset = ds.dataset(path, format=ds.ParquetFileFormat(
+                read_options=ds.ParquetReadOptions(dictionary_columns=as_dictionary)))
         yield from dataset.to_batches(columns=columns, filter=expr, batch_size=batch_rows,
-                                      batch_readahead=1, fragment_readahead=1)
+                                      batch_readahead=BATCH_READAHEAD,
+                                      fragment_readahead=1)
         return
     if fmt in ("csv", "tsv"):
         import pyarrow.csv as pcsv
@@ -1164,13 +1259,16 @@ def _tally_file(plan: _Plan, f: Path, fmt: str, classes, batch_rows: int,
     """Tally one file on its own; raise _SkipFile when it cannot be read."""
     part = plan.new_tally()
     check = _FileCheck()
-    for batch in _read(f, fmt, plan.columns(), plan.text_columns(), plan.where, batch_rows):
-        try:
-            part.add(batch, check)
-        except InvalidInputError as exc:
-            raise _fail(f, str(exc)) from None
-        if bar is not None:
-            bar.rows(batch.num_rows)
+    # closing: on an error the read-ahead thread stops now, not when the traceback goes
+    with contextlib.closing(_read(f, fmt, plan.columns(), plan.text_columns(), plan.where,
+                                  batch_rows)) as batches:
+        for batch in batches:
+            try:
+                part.add(batch, check)
+            except InvalidInputError as exc:
+                raise _fail(f, str(exc)) from None
+            if bar is not None:
+                bar.rows(batch.num_rows)
     _raise_checks(f, check, part, classes)
     return part
 
@@ -1238,14 +1336,15 @@ def _tally_files(plan: _Plan, files, classes, skip_bad_files: bool, batch_rows: 
             else:
                 # Straight into the running tally: no copy of the count array per file.
                 check = _FileCheck()
-                for batch in _read(f, fmt, plan.columns(), plan.text_columns(), plan.where,
-                                   batch_rows):
-                    try:
-                        acc.add(batch, check)
-                    except InvalidInputError as exc:
-                        raise _fail(f, str(exc)) from None
-                    if bar is not None:
-                        bar.rows(batch.num_rows)
+                with contextlib.closing(_read(f, fmt, plan.columns(), plan.text_columns(),
+                                              plan.where, batch_rows)) as batches:
+                    for batch in batches:
+                        try:
+                            acc.add(batch, check)
+                        except InvalidInputError as exc:
+                            raise _fail(f, str(exc)) from None
+                        if bar is not None:
+                            bar.rows(batch.num_rows)
                 _raise_checks(f, check, acc, classes)
             used.append(f)
         except _SkipFile as exc:
@@ -1257,9 +1356,64 @@ def _tally_files(plan: _Plan, files, classes, skip_bad_files: bool, batch_rows: 
     return acc, used, skipped
 
 
+def _prefetch(items, depth: int):
+    """The items of an iterator, read ahead by a background thread into a bounded queue.
+
+    The readers decode while the caller counts (numpy and pyarrow release the
+    GIL), and at most ``depth`` items wait, so memory stays bounded. An error
+    of the iterator is raised here, in the caller's thread, in its turn.
+    """
+    import queue
+    import threading
+
+    if depth <= 0:
+        yield from items
+        return
+    q: queue.Queue = queue.Queue(maxsize=depth)
+    stop = threading.Event()
+    end = object()
+
+    def put(entry) -> bool:
+        while not stop.is_set():
+            try:
+                q.put(entry, timeout=0.05)
+                return True
+            except queue.Full:
+                continue
+        return False
+
+    def produce():
+        try:
+            for item in items:
+                if not put((item, None)):
+                    return
+            put((end, None))
+        except BaseException as exc:  # handed to the caller, raised there
+            put((end, exc))
+
+    worker = threading.Thread(target=produce, name="foldcorr-read-ahead", daemon=True)
+    worker.start()
+    try:
+        while True:
+            item, exc = q.get()
+            if item is end:
+                if exc is not None:
+                    raise exc
+                return
+            yield item
+    finally:
+        stop.set()
+        worker.join()
+
+
 def _read(f, fmt, columns, text_cols, where, batch_rows):
     """Batches of one file; read errors become skippable errors naming the file."""
-    it = _batches(f, fmt, columns, text_cols, where, batch_rows)
+    with contextlib.closing(_prefetch(_batches(f, fmt, columns, text_cols, where, batch_rows),
+                                      PREFETCH)) as it:
+        yield from _checked_batches(f, fmt, it, where)
+
+
+def _checked_batches(f, fmt, it, where):
     while True:
         try:
             batch = next(it)

@@ -691,8 +691,10 @@ def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=No
         One float weight per row.
     out : numpy.ndarray, optional
         A C-contiguous array of shape ``shape`` to add the counts into, in
-        place (int64 for counts, float64 for weights); no array of the
-        size of ``shape`` is allocated then, which suits many small batches.
+        place (int64 or uint32 for counts, float64 for weights); no array of
+        the size of ``shape`` is allocated then, which suits many small
+        batches. The caller keeps a uint32 ``out`` from overflowing (it holds
+        at most 2**32 - 1 per cell).
 
     Returns
     -------
@@ -703,9 +705,12 @@ def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=No
     Notes
     -----
     The cell is found by the mixed-radix index
-    ``((c_0 * n_1 + c_1) * n_2 + c_2) ...`` and counted with one
-    ``numpy.bincount``, so the cost is O(rows + cells); with ``out`` it is
-    added in place with ``numpy.add.at``, O(rows).
+    ``((c_0 * n_1 + c_1) * n_2 + c_2) ...``, computed in int32 when the array
+    has fewer than 2**31 cells (half the memory traffic of int64), and counted
+    with one ``numpy.bincount``, so the cost is O(rows + cells); with ``out``
+    it is added in place with ``numpy.add.at``, O(rows), which beats a
+    ``bincount`` plus an array-wide add unless a batch has many more rows
+    than the array has cells.
 
     Examples
     --------
@@ -717,14 +722,23 @@ def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=No
     """
     if not codes:
         raise ValueError("count_codes needs at least one array of codes")
-    index = np.asarray(codes[0]).astype(np.int64)
-    for c, size in zip(codes[1:], shape[1:]):
-        index *= size
-        index += c
-    if out is not None:
-        np.add.at(out.reshape(-1), index, 1 if weights is None else weights)
-        return out
     total = int(np.prod(shape, dtype=np.int64))
+    itype = np.int32 if total <= np.iinfo(np.int32).max else np.int64
+    index = None
+    for c, size in zip(codes[1:], shape[1:]):
+        if index is None:  # a new array, built up in place below
+            index = np.multiply(codes[0], size, dtype=itype)
+        else:
+            index *= size
+        c = np.asarray(c)
+        index += c if c.dtype == itype or c.dtype.itemsize < index.dtype.itemsize \
+            else c.astype(itype)
+    if index is None:
+        index = np.array(codes[0], dtype=itype)
+    if out is not None:
+        # A one of out's own type keeps numpy on its fast indexed loop.
+        np.add.at(out.reshape(-1), index, out.dtype.type(1) if weights is None else weights)
+        return out
     counts = np.bincount(index, weights=weights, minlength=total)
     if weights is None:
         counts = counts.astype(np.int64, copy=False)
