@@ -651,8 +651,12 @@ def _shift_step(args, ev):
 #: evaluation unchanged when its options are not set.
 ANALYSES: list = [_shift_step]
 
-def _multilabel_intervals_step(args, ev):
-    """Bootstrap intervals per label and of micro/macro/weighted MCC when ``--ci`` is given."""
+
+def _interval_settings(args) -> dict | None:
+    """Bootstrap settings from ``--ci``/``--resamples``/``--ci-method``/``--seed``, checked.
+
+    None when ``--ci`` is not given (then the other two must not be either).
+    """
     level = getattr(args, "ci", None)
     resamples = getattr(args, "resamples", None)
     method = getattr(args, "ci_method", None)
@@ -663,18 +667,25 @@ def _multilabel_intervals_step(args, ev):
 
                 raise OptionError(f"`{flag}` needs `--ci LEVEL` (e.g. --ci 0.95); got {flag} "
                                   f"{value!r} without it")
-        return ev
-    from foldcorr.multilabel import multilabel_intervals
+        return None
     from foldcorr.uncertainty import check_level, check_resamples
 
     check_level(level, name="--ci")
     if resamples is not None:
         check_resamples(resamples, name="--resamples")
-    result = multilabel_intervals(ev.tensor, level=level,
-                                  n_resamples=2000 if resamples is None else resamples,
-                                  method=method or "percentile", seed=getattr(args, "seed", None),
-                                  undefined=ev.undefined)
-    return ev.with_extra("intervals", result)
+    return {"level": level, "n_resamples": 2000 if resamples is None else resamples,
+            "method": method or "percentile", "seed": getattr(args, "seed", None)}
+
+
+def _multilabel_intervals_step(args, ev):
+    """Bootstrap intervals per label and of micro/macro/weighted MCC when ``--ci`` is given."""
+    settings = _interval_settings(args)
+    if settings is None:
+        return ev
+    from foldcorr.multilabel import multilabel_intervals
+
+    return ev.with_extra("intervals", multilabel_intervals(ev.tensor, **settings,
+                                                           undefined=ev.undefined))
 
 
 #: The same for multilabel evaluations (``score`` with the multilabel flags).
@@ -695,27 +706,13 @@ ANALYSES.append(_repair_step)
 
 def _uncertainty_step(args, ev):
     """Attach bootstrap intervals and fold statistics when ``--ci`` is given."""
-    level = getattr(args, "ci", None)
-    resamples = getattr(args, "resamples", None)
-    method = getattr(args, "ci_method", None)
-    if level is None:
-        for flag, value in (("--resamples", resamples), ("--ci-method", method)):
-            if value is not None:
-                from foldcorr.errors import OptionError
-
-                raise OptionError(f"`{flag}` needs `--ci LEVEL` (e.g. --ci 0.95); got {flag} "
-                                  f"{value!r} without it")
+    settings = _interval_settings(args)
+    if settings is None:
         return ev
-    from foldcorr.uncertainty import check_level, check_resamples, summarise_uncertainty
+    from foldcorr.uncertainty import summarise_uncertainty
 
-    check_level(level, name="--ci")
-    if resamples is not None:
-        check_resamples(resamples, name="--resamples")
-    result = summarise_uncertainty(
-        ev.tensor, level=level, n_resamples=2000 if resamples is None else resamples,
-        method=method or "percentile", seed=getattr(args, "seed", None),
-        undefined=ev.undefined)
-    return ev.with_extra("uncertainty", result)
+    return ev.with_extra("uncertainty", summarise_uncertainty(ev.tensor, **settings,
+                                                              undefined=ev.undefined))
 
 
 ANALYSES.append(_uncertainty_step)

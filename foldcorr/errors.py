@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import importlib
 import importlib.util
+import warnings
 
 __all__ = [
     "FoldcorrError",
@@ -19,6 +20,7 @@ __all__ = [
     "EngineError",
     "UndefinedMetricWarning",
     "require",
+    "collect_undefined",
 ]
 
 
@@ -100,3 +102,43 @@ def check_choice(name: str, value, allowed) -> None:
     if value not in allowed:
         listed = ", ".join(repr(a) for a in allowed)
         raise OptionError(f"`{name}` must be one of {listed}; got {value!r}")
+
+
+def collect_undefined(notes: list, context: str, compute):
+    """Run ``compute()``, turning its undefined-value warnings into report notes.
+
+    Each :class:`UndefinedMetricWarning` raised inside becomes the line
+    ``"{context}: {message}"`` appended to ``notes``; other warnings pass on.
+
+    Parameters
+    ----------
+    notes : list of str
+        Where the notes go (appended in place).
+    context : str
+        Prefix naming what was computed, e.g. ``"per fold"``.
+    compute : callable
+        A function of no arguments.
+
+    Returns
+    -------
+    object
+        Whatever ``compute()`` returns.
+
+    Examples
+    --------
+    >>> notes = []
+    >>> def undefined():
+    ...     warnings.warn("R_K is undefined at fold=1", UndefinedMetricWarning)
+    ...     return 0.0
+    >>> collect_undefined(notes, "per fold", undefined), notes
+    (0.0, ['per fold: R_K is undefined at fold=1'])
+    """
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", UndefinedMetricWarning)
+        result = compute()
+    for w in caught:
+        if issubclass(w.category, UndefinedMetricWarning):
+            notes.append(f"{context}: {w.message}")
+        else:
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    return result

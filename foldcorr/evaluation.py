@@ -8,27 +8,19 @@ never compute.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field, replace
 
 import numpy as np
 import xarray as xr
 
 from foldcorr import metrics as m
-from foldcorr.errors import InvalidTensorError, UndefinedMetricWarning, check_choice
+from foldcorr.errors import InvalidTensorError, check_choice, collect_undefined
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, pool, validate_tensor
 
 __all__ = ["Evaluation", "FoldSummary", "evaluate", "POOLED_FIGURES"]
 
 #: Pooled figures, in report order, with the metric that computes each.
-POOLED_FIGURES = {
-    "rk": m.rk,
-    "accuracy": m.accuracy,
-    "balanced_accuracy": m.balanced_accuracy,
-    "kappa": m.cohen_kappa,
-    "macro_f1": m.macro_f1,
-    "macro_mcc": m.macro_mcc,
-}
+POOLED_FIGURES = m.SUMMARY_FIGURES
 
 #: Per-fold figures, in report order.
 FOLD_FIGURES = ("rk", "accuracy", "balanced_accuracy", "macro_mcc")
@@ -209,11 +201,11 @@ def evaluate(t, *, undefined: str = "zero") -> Evaluation:
         )
     notes: list[str] = []
     pooled_t = pool(t)
-    pooled = _collect(notes, "pooled", lambda: _pooled(pooled_t, undefined))
-    per_class = _collect(notes, "pooled", lambda: _per_class(pooled_t, undefined))
+    pooled = collect_undefined(notes, "pooled", lambda: _pooled(pooled_t, undefined))
+    per_class = collect_undefined(notes, "pooled", lambda: _per_class(pooled_t, undefined))
     folds = summary = None
     if FOLD in t.dims:
-        folds = _collect(notes, "per fold", lambda: _per_fold(t, undefined))
+        folds = collect_undefined(notes, "per fold", lambda: _per_fold(t, undefined))
         summary = FoldSummary.of(folds["rk"].values)
     notes.extend(_accuracy_hides(pooled, per_class))
     return Evaluation(
@@ -225,18 +217,6 @@ def evaluate(t, *, undefined: str = "zero") -> Evaluation:
         warnings=tuple(dict.fromkeys(notes)),
         undefined=undefined,
     )
-
-
-def _collect(notes: list, context: str, compute):
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", UndefinedMetricWarning)
-        result = compute()
-    for w in caught:
-        if issubclass(w.category, UndefinedMetricWarning):
-            notes.append(f"{context}: {w.message}")
-        else:
-            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
-    return result
 
 
 def _pooled(t, undefined) -> xr.Dataset:

@@ -28,6 +28,7 @@ from foldcorr.tensor import ACTUAL, CLASS, PREDICTED, validate_tensor
 
 __all__ = [
     "UNDEFINED_CHOICES",
+    "SUMMARY_FIGURES",
     "rk",
     "mcc",
     "ovr_mcc",
@@ -538,3 +539,14 @@ def top_confusion(t) -> xr.Dataset:
             "top_confusion_count": _wrap(s, count, "top_confusion_count", per_class=True),
         }
     )
+
+
+#: The summary figures of a confusion tensor, in report order, with the function of each.
+SUMMARY_FIGURES = {
+    "rk": rk,
+    "accuracy": accuracy,
+    "balanced_accuracy": balanced_accuracy,
+    "kappa": cohen_kappa,
+    "macro_f1": macro_f1,
+    "macro_mcc": macro_mcc,
+}

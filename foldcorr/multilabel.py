@@ -19,7 +19,7 @@ import pandas as pd
 import xarray as xr
 
 from foldcorr import metrics as m
-from foldcorr.errors import InvalidInputError, UndefinedMetricWarning, check_choice
+from foldcorr.errors import InvalidInputError, UndefinedMetricWarning, check_choice, collect_undefined
 from foldcorr.tensor import ACTUAL, COUNT, FOLD, LABEL, PREDICTED, validate_tensor
 
 __all__ = [
@@ -383,9 +383,9 @@ def evaluate_multilabel(t, *, undefined: str = "zero") -> MultilabelEvaluation:
     t = _check_multilabel(t)
     notes: list[str] = []
     pooled = t.sum(FOLD) if FOLD in t.dims else t
-    per_label = _collect(notes, "per label", lambda: _per_label(pooled, undefined))
+    per_label = collect_undefined(notes, "per label", lambda: _per_label(pooled, undefined))
     n_total = float(pooled.isel({LABEL: 0}).sum()) if pooled.sizes[LABEL] else 0.0
-    micro = _collect(notes, "micro", lambda: m.mcc(pooled.sum(LABEL), undefined=undefined))
+    micro = collect_undefined(notes, "micro", lambda: m.mcc(pooled.sum(LABEL), undefined=undefined))
     present = (per_label["support"] + per_label["predicted"]) > 0
     macro = _macro(per_label["mcc"], present, undefined)
     weight = per_label["support"].astype(float)
@@ -393,7 +393,7 @@ def evaluate_multilabel(t, *, undefined: str = "zero") -> MultilabelEvaluation:
                              undefined, notes, "support-weighted MCC (no label has a positive)")
     folds = None
     if FOLD in t.dims:
-        folds = _collect(notes, "per fold", lambda: _per_fold(t, undefined))
+        folds = collect_undefined(notes, "per fold", lambda: _per_fold(t, undefined))
     cost = ((1 - per_label["mcc"].fillna(0.0)) * per_label["support"]).rename("cost")
     per_label = per_label.assign(cost=cost)
     order = np.lexsort((np.arange(cost.size), -cost.values))
@@ -427,18 +427,6 @@ def _ratio_scalar(num, den, undefined, notes, what) -> float:
         notes.append(f"{what} is undefined; reported as {'0.0' if undefined == 'zero' else 'NaN'}")
         return 0.0 if undefined == "zero" else float("nan")
     return num / den
-
-
-def _collect(notes: list, context: str, compute):
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", UndefinedMetricWarning)
-        result = compute()
-    for w in caught:
-        if issubclass(w.category, UndefinedMetricWarning):
-            notes.append(f"{context}: {w.message}")
-        else:
-            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
-    return result
 
 
 def _per_label(t: xr.DataArray, undefined: str) -> xr.Dataset:

@@ -136,7 +136,7 @@ def test_table_options_are_refused_with_a_saved_file(saved, capsys, argv, flag):
     out, _ = saved
     code, printed, err = run(capsys, "score", out, *argv)
     assert code == 2 and printed == "" and len(err.strip().splitlines()) == 1
-    assert f"run.nc is a saved evaluation" in err and f"({flag}) cannot apply" in err
+    assert "run.nc is a saved evaluation" in err and f"({flag}) cannot apply" in err
     code, _, err = run(capsys, "gate", out, "--min-rk", "0", *argv[:2])
     if flag in ("--where", "--engine", "--skip-bad-files"):   # not gate options
         assert code == 2

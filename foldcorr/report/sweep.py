@@ -13,7 +13,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from foldcorr.report.tables import Column, Report, Table, format_value
+from foldcorr.report.tables import Column, Report, Table
 from foldcorr.thresholds import THRESHOLD, SweepResult
 
 __all__ = ["SWEEP_SCHEMA", "sweep_report", "sweep_dict", "curve_frame", "write_curve",
