@@ -1257,20 +1257,25 @@ def _skip_entry(exc: _SkipFile) -> tuple[str, str]:
 def _tally_file(plan: _Plan, f: Path, fmt: str, classes, batch_rows: int,
                 bar=None) -> StreamTally:
     """Tally one file on its own; raise _SkipFile when it cannot be read."""
-    part = plan.new_tally()
+    return _count_file_into(plan.new_tally(), plan, f, fmt, classes, batch_rows, bar)
+
+
+def _count_file_into(acc: StreamTally, plan: _Plan, f: Path, fmt: str, classes,
+                     batch_rows: int, bar=None) -> StreamTally:
+    """Add every batch of one file to ``acc``, then run the file's checks; return ``acc``."""
     check = _FileCheck()
     # closing: on an error the read-ahead thread stops now, not when the traceback goes
     with contextlib.closing(_read(f, fmt, plan.columns(), plan.text_columns(), plan.where,
                                   batch_rows)) as batches:
         for batch in batches:
             try:
-                part.add(batch, check)
+                acc.add(batch, check)
             except InvalidInputError as exc:
                 raise _fail(f, str(exc)) from None
             if bar is not None:
                 bar.rows(batch.num_rows)
-    _raise_checks(f, check, part, classes)
-    return part
+    _raise_checks(f, check, acc, classes)
+    return acc
 
 
 def _finish(plan: _Plan, acc: StreamTally, used, skipped, classes, batch_rows) -> StreamResult:
@@ -1335,17 +1340,7 @@ def _tally_files(plan: _Plan, files, classes, skip_bad_files: bool, batch_rows: 
                 acc = part if acc is None else acc.merge(part)
             else:
                 # Straight into the running tally: no copy of the count array per file.
-                check = _FileCheck()
-                with contextlib.closing(_read(f, fmt, plan.columns(), plan.text_columns(),
-                                              plan.where, batch_rows)) as batches:
-                    for batch in batches:
-                        try:
-                            acc.add(batch, check)
-                        except InvalidInputError as exc:
-                            raise _fail(f, str(exc)) from None
-                        if bar is not None:
-                            bar.rows(batch.num_rows)
-                _raise_checks(f, check, acc, classes)
+                _count_file_into(acc, plan, f, fmt, classes, batch_rows, bar)
             used.append(f)
         except _SkipFile as exc:
             if not skip_bad_files:

@@ -14,9 +14,9 @@ from __future__ import annotations
 
 import json
 import sys
-import time
 
 import numpy as np
+from _timing import best_of
 from sklearn.metrics import matthews_corrcoef
 
 import foldcorr as fc
@@ -31,11 +31,6 @@ def _data(rng, n, k, accuracy):
         return np.where(rng.random(n) < acc, truth, rng.integers(0, k, n))
     return truth, model(accuracy), model(accuracy + 0.03)
 
-
-def _clock(fn):
-    start = time.perf_counter()
-    out = fn()
-    return time.perf_counter() - start, out
 
 
 def _line(what, ours, ref, note=""):
@@ -52,19 +47,19 @@ def run(quick: bool = False) -> dict:
     folds = np.arange(n) % 5
     out = {"n": n, "k": k, "resamples": b, "reference_resamples_timed": few}
 
-    t_tally, t = _clock(lambda: tally(truth, pred_a))
+    t_tally, t = best_of(lambda: tally(truth, pred_a))
     out["tally_s"] = t_tally
     nnz = int((t.values > 0).sum())
     out["nonzero_cells"] = nnz
     print(f"data: N={n}, K={k}, B={b}, {nnz} nonzero cells; tally {t_tally:.3f} s")
 
-    ours, res = _clock(lambda: fc.bootstrap(t, n_resamples=b, seed=1))
+    ours, res = best_of(lambda: fc.bootstrap(t, n_resamples=b, seed=1))
     def reference_boot():
         r = np.random.default_rng(2)
         for _ in range(few):
             idx = r.integers(0, n, n)
             matthews_corrcoef(truth[idx], pred_a[idx])
-    per, _ = _clock(reference_boot)
+    per, _ = best_of(reference_boot)
     ref = per / few * b
     note = f" (extrapolated from {few} resamples)"
     out["bootstrap"] = {"ours_s": ours, "reference_s": ref, "extrapolated": True,
@@ -72,30 +67,30 @@ def run(quick: bool = False) -> dict:
                         "interval": [float(res.low), float(res.high)]}
 
     tf = tally(truth, pred_a, folds=folds)
-    ours_f, _ = _clock(lambda: fc.bootstrap(tf, n_resamples=b, seed=1))
+    ours_f, _ = best_of(lambda: fc.bootstrap(tf, n_resamples=b, seed=1))
     def reference_strat():
         r = np.random.default_rng(3)
         groups = [np.flatnonzero(folds == f) for f in range(5)]
         for _ in range(few):
             idx = np.concatenate([g[r.integers(0, len(g), len(g))] for g in groups])
             matthews_corrcoef(truth[idx], pred_a[idx])
-    per, _ = _clock(reference_strat)
+    per, _ = best_of(reference_strat)
     ref = per / few * b
     out["stratified"] = {"ours_s": ours_f, "reference_s": ref, "extrapolated": True,
                          "ratio": _line(f"stratified (5 folds) bootstrap of pooled R_K, B={b}",
                                         ours_f, ref, note)}
 
-    ours_bca, res_bca = _clock(lambda: fc.bootstrap(t, n_resamples=b, seed=1, method="bca"))
+    ours_bca, res_bca = best_of(lambda: fc.bootstrap(t, n_resamples=b, seed=1, method="bca"))
     out["bca"] = {"ours_s": ours_bca, "interval": [float(res_bca.low), float(res_bca.high)]}
     print(f"BCa bootstrap of R_K, B={b} (jackknife over {nnz} cells): ours {ours_bca:.3f} s "
           f"(per-sample jackknife would need {n} statistic evaluations; not timed)")
 
-    ours_mcc, _ = _clock(lambda: fc.bootstrap(t, fc.ovr_mcc, n_resamples=b, seed=1))
+    ours_mcc, _ = best_of(lambda: fc.bootstrap(t, fc.ovr_mcc, n_resamples=b, seed=1))
     print(f"percentile bootstrap of all {k} one-vs-rest MCC, B={b}: ours {ours_mcc:.3f} s")
     out["ovr_mcc_s"] = ours_mcc
 
-    joint_s, joint = _clock(lambda: fc.joint_tally(truth, pred_a, pred_b, folds=folds))
-    ours_c, cmp = _clock(lambda: fc.compare_models(joint, n_resamples=b, seed=4))
+    joint_s, joint = best_of(lambda: fc.joint_tally(truth, pred_a, pred_b, folds=folds))
+    ours_c, cmp = best_of(lambda: fc.compare_models(joint, n_resamples=b, seed=4))
     def reference_pair():
         r = np.random.default_rng(5)
         for _ in range(few):
@@ -105,7 +100,7 @@ def run(quick: bool = False) -> dict:
             swap = r.random(n) < 0.5
             a2, b2 = np.where(swap, pred_b, pred_a), np.where(swap, pred_a, pred_b)
             matthews_corrcoef(truth, b2) - matthews_corrcoef(truth, a2)
-    per, _ = _clock(reference_pair)
+    per, _ = best_of(reference_pair)
     ref = per / few * b
     out["compare"] = {
         "joint_tally_s": joint_s, "ours_s": ours_c, "reference_s": ref, "extrapolated": True,

@@ -15,6 +15,7 @@ import json
 import time
 
 import numpy as np
+from _timing import best_of
 
 from foldcorr.repair import class_gains, leave_class_out, pair_gains
 from foldcorr.tensor import confusion_tensor
@@ -29,13 +30,6 @@ def _rk(cells: np.ndarray) -> float:
     return float(num / den) if den > 0 else 0.0
 
 
-def _best(fn, repeat: int) -> tuple[float, object]:
-    best, out = float("inf"), None
-    for _ in range(repeat):
-        start = time.perf_counter()
-        out = fn()
-        best = min(best, time.perf_counter() - start)
-    return best, out
 
 
 def _line(what: str, ours: float, ref: float, note: str = "") -> None:
@@ -55,7 +49,7 @@ def run(quick: bool = False) -> dict:
     results: dict = {"k": k, "n": int(cells.sum())}
 
     # --- all pair gains
-    ours, gains = _best(lambda: pair_gains(t).values, 3)
+    ours, gains = best_of(lambda: pair_gains(t).values, 3)
     rows = rng.integers(0, k, sampled_pairs)
     cols = (rows + rng.integers(1, k, sampled_pairs)) % k  # off-diagonal
     work = dense.copy()
@@ -83,7 +77,7 @@ def run(quick: bool = False) -> dict:
         ("class_gains", lambda: class_gains(t).gain_fix_both.values, _fix_both),
         ("leave_class_out", lambda: leave_class_out(t).values, _without),
     ):
-        ours, values = _best(fn, 3)
+        ours, values = best_of(fn, 3)
         start = time.perf_counter()
         naive = [naive_one(dense, c) - base for c in picks]
         per_class = (time.perf_counter() - start) / sampled_classes

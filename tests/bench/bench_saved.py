@@ -12,19 +12,12 @@ from __future__ import annotations
 
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 import numpy as np
+from _timing import best_of
 
 
-def _best(fn, repeat):
-    times = []
-    for _ in range(repeat):
-        start = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - start)
-    return min(times), out
 
 
 def run(quick: bool = False) -> dict:
@@ -48,7 +41,7 @@ def run(quick: bool = False) -> dict:
     pd.DataFrame({"actual": names[truth], "predicted": names[pred],
                   "fold": rng.integers(1, folds + 1, n)}).to_csv(csv, index=False)
     nc = folder / "run.nc"
-    t_save, _ = _best(lambda: save_evaluation(nc, load_tensor(csv)), 1)
+    t_save, _ = best_of(lambda: save_evaluation(nc, load_tensor(csv)), 1)
 
     def ours():
         return evaluate(load_saved(nc).tensor)
@@ -61,8 +54,8 @@ def run(quick: bool = False) -> dict:
                            for _, g in df.groupby("fold", sort=True)])
         return evaluate(confusion_tensor(counts, labels, leading={"fold": fold_labels}))
 
-    t_ours, ev_ours = _best(ours, repeat)
-    t_ref, ev_ref = _best(reference, repeat)
+    t_ours, ev_ours = best_of(ours, repeat)
+    t_ref, ev_ref = best_of(reference, repeat)
     assert np.array_equal(ev_ours.tensor.values, ev_ref.tensor.values)
     assert abs(ev_ours.rk - ev_ref.rk) < 1e-12
     figures = {

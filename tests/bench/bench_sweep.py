@@ -18,15 +18,9 @@ import sys
 import time
 
 import numpy as np
+from _timing import best_of
 
 
-def _best(fn, repeat):
-    times = []
-    for _ in range(repeat):
-        start = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - start)
-    return min(times), out
 
 
 def _side_by_side(fns: dict, repeat: int) -> dict:
@@ -63,7 +57,7 @@ def run(quick: bool = False) -> dict:
     t_sort, t_argsort, t_sweep, result = best["sort"], best["argsort"], best["sweep"], outs["sweep"]
     n_thr = result.labels[0].n_thresholds
     folds = rng.integers(0, 5, n)
-    t_folds, _ = _best(lambda: sweep(truth, scores, folds=folds), 1)
+    t_folds, _ = best_of(lambda: sweep(truth, scores, folds=folds), 1)
 
     probe = np.quantile(scores, np.linspace(0.01, 0.99, 100))
 
@@ -80,10 +74,10 @@ def run(quick: bool = False) -> dict:
             out[i] = (tp * tn - fp * fn) / den if den else 0.0
         return out
 
-    t_naive100, naive_mcc = _best(naive, 1)
+    t_naive100, naive_mcc = best_of(naive, 1)
     t_naive_all = t_naive100 / probe.size * n_thr
     few = probe[::33]
-    t_ref_few, ref_mcc = _best(lambda: [matthews_corrcoef(truth, scores >= th) for th in few], 1)
+    t_ref_few, ref_mcc = best_of(lambda: [matthews_corrcoef(truth, scores >= th) for th in few], 1)
     t_ref_all = t_ref_few / few.size * n_thr
     # the sweep's MCC at the probe thresholds equals the naive loop's and the reference's
     curve = result.labels[0].curve
@@ -93,8 +87,8 @@ def run(quick: bool = False) -> dict:
 
     ml_truth = rng.random((n_ml, n_labels)) < np.linspace(0.005, 0.3, n_labels)
     ml_pred = ml_truth ^ (rng.random((n_ml, n_labels)) < 0.02)
-    t_ml, tensor = _best(lambda: multilabel_tally(ml_truth, ml_pred), repeat)
-    t_ml_ref, ref = _best(lambda: multilabel_confusion_matrix(ml_truth, ml_pred), 1)
+    t_ml, tensor = best_of(lambda: multilabel_tally(ml_truth, ml_pred), repeat)
+    t_ml_ref, ref = best_of(lambda: multilabel_confusion_matrix(ml_truth, ml_pred), 1)
     assert np.array_equal(tensor.values, ref)
 
     figures = {

@@ -6,18 +6,11 @@ Run: python tests/bench/bench_tally.py [--quick]
 from __future__ import annotations
 
 import sys
-import time
 
 import numpy as np
+from _timing import best_of
 
 
-def _best(fn, repeat):
-    times = []
-    for _ in range(repeat):
-        start = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - start)
-    return min(times), out
 
 
 def make_data(n, k, folds, seed=0):
@@ -65,10 +58,10 @@ def run(quick: bool = False) -> dict:
         return np.array(out)
 
     fc.rk(fc.tally(truth[:1000], pred[:1000], folds=fold[:1000]))  # warm up imports
-    t_ours, (per_fold, _) = _best(ours, repeat)
-    t_hash, _ = _best(ours_hashing, repeat)
-    t_numpy, numpy_rk = _best(bare_numpy, repeat)
-    t_ref, ref_rk = _best(reference, 1)
+    t_ours, (per_fold, _) = best_of(ours, repeat)
+    t_hash, _ = best_of(ours_hashing, repeat)
+    t_numpy, numpy_rk = best_of(bare_numpy, repeat)
+    t_ref, ref_rk = best_of(reference, 1)
     agree = float(np.max(np.abs(per_fold.values - ref_rk)))
     assert agree < 1e-10 and np.allclose(per_fold.values, numpy_rk)
     figures = {
