@@ -2,15 +2,10 @@
 
 from __future__ import annotations
 
-import importlib.util
-from pathlib import Path
 
 
-def test_bench_bootstrap_quick(capsys):
-    path = Path(__file__).parent / "bench" / "bench_bootstrap.py"
-    spec = importlib.util.spec_from_file_location("bench_bootstrap", path)
-    module = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(module)
+def test_bench_bootstrap_quick(capsys, load_bench):
+    module = load_bench("bootstrap")
     figures = module.run(quick=True)
     out = capsys.readouterr().out
     assert "extrapolated from" in out and "ratio" in out

@@ -1,15 +1,10 @@
 """Smoke test of the repair benchmark: it runs in quick mode and its checks hold."""
 
-import importlib.util
 import json
-from pathlib import Path
 
 
-def test_bench_repair_quick(capsys):
-    path = Path(__file__).parent / "bench" / "bench_repair.py"
-    spec = importlib.util.spec_from_file_location("bench_repair", path)
-    bench = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(bench)
+def test_bench_repair_quick(capsys, load_bench):
+    bench = load_bench("repair")
     result = bench.run(quick=True)
     json.dumps(result)
     out = capsys.readouterr().out
