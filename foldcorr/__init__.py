@@ -21,29 +21,29 @@ _EXPORTS = {
         "cohen_kappa", "recall", "precision", "f1", "macro_f1", "macro_mcc",
         "support", "predicted_count", "top_confusion",
     ],
-    "foldcorr.repair": [
+    "foldcorr.analysis.repair": [
         "pair_gains", "class_gains", "leave_class_out", "costliest_confusions",
         "fold_stability", "repair_analysis", "RepairAnalysis",
     ],
-    "foldcorr.uncertainty": [
+    "foldcorr.analysis.uncertainty": [
         "resample_cells", "bootstrap", "bootstrap_difference", "fold_statistics",
         "summarise_uncertainty", "drag", "BootstrapResult", "FoldStatistics", "Uncertainty",
     ],
-    "foldcorr.compare": ["joint_tally", "model_tensors", "compare_models", "Comparison"],
-    "foldcorr.crossval": ["cross_tally", "rk_score", "rk_scorer"],
+    "foldcorr.analysis.compare": ["joint_tally", "model_tensors", "compare_models", "Comparison"],
+    "foldcorr.analysis.crossval": ["cross_tally", "rk_score", "rk_scorer"],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
-    "foldcorr.samples": ["Samples"],
+    "foldcorr.tensor.samples": ["Samples"],
     "foldcorr.gate": ["GateRules", "GateResult", "check_gate"],
-    "foldcorr.saved": ["SavedEvaluation", "save_evaluation", "load_saved"],
+    "foldcorr.sources.saved": ["SavedEvaluation", "save_evaluation", "load_saved"],
     "foldcorr.report.plots": [
         "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
     ],
-    "foldcorr.streaming": ["tally_dataset", "stream_tensor", "parse_where", "StreamResult"],
-    "foldcorr.multilabel": [
+    "foldcorr.sources.stream": ["tally_dataset", "stream_tensor", "parse_where", "StreamResult"],
+    "foldcorr.analysis.multilabel": [
         "multilabel_tally", "indicators_from_sets", "evaluate_multilabel", "MultilabelEvaluation",
     ],
-    "foldcorr.thresholds": ["sweep", "threshold_curve", "SweepResult", "LabelSweep"],
-    "foldcorr.shift": ["shift_prevalence", "target_prevalence", "shifted_figures", "ShiftResult"],
+    "foldcorr.analysis.thresholds": ["sweep", "threshold_curve", "SweepResult", "LabelSweep"],
+    "foldcorr.analysis.shift": ["shift_prevalence", "target_prevalence", "shifted_figures", "ShiftResult"],
     "foldcorr.errors": [
         "FoldcorrError", "InvalidTensorError", "InvalidInputError", "OptionError",
         "MissingDependencyError", "EngineError", "UndefinedMetricWarning",

@@ -347,7 +347,7 @@ def main(argv=None) -> int:
 
 
 def _spec(args):
-    from foldcorr.sources import TableSpec
+    from foldcorr.sources.tables import TableSpec
 
     return TableSpec(truth=args.truth, pred=args.pred, fold=args.fold,
                      weight=args.weight, classes=args.classes)
@@ -355,7 +355,7 @@ def _spec(args):
 
 def _run_score(args) -> int:
     from foldcorr.evaluation import evaluate
-    from foldcorr.sources import load_tensor
+    from foldcorr.sources.tables import load_tensor
 
     if _multilabel_requested(args):
         return _run_score_multilabel(args)
@@ -376,7 +376,7 @@ def _run_score(args) -> int:
     request = _prepare_save(args, tensor, args.path)
     ev = evaluate(tensor, undefined=args.undefined)
     if tensor.attrs.get("skipped_files"):
-        from foldcorr.streaming import SkippedFiles
+        from foldcorr.sources.stream import SkippedFiles
 
         skipped = SkippedFiles.of(tensor)
         for line in skipped.warnings:
@@ -448,7 +448,7 @@ def _same_path(a, b) -> bool:
 def _check_save(args, source) -> None:
     """Refuse a ``--save`` target that is not NetCDF or is the input."""
     if getattr(args, "save", None):
-        from foldcorr.saved import check_save_target
+        from foldcorr.sources.saved import check_save_target
 
         check_save_target(args.save, source)
 
@@ -477,7 +477,7 @@ def _analysis_args(options: dict):
 
 def _prepare_save(args, tensor, source):
     """The ``--save`` request (None without it), checked; written by :func:`_write_save`."""
-    from foldcorr.saved import prepare_save
+    from foldcorr.sources.saved import prepare_save
 
     return prepare_save(getattr(args, "save", None), tensor, source,
                         id_column=getattr(args, "id_column", None),
@@ -494,7 +494,7 @@ def _write_save(request) -> None:
 
 def _run_show(args) -> int:
     from foldcorr.evaluation import evaluate
-    from foldcorr.saved import load_saved
+    from foldcorr.sources.saved import load_saved
 
     saved = load_saved(args.path)
     options = dict(saved.options)
@@ -512,8 +512,8 @@ def _gate_source(path, args, undefined, *, baseline=False):
     refused when both are saved, and --classes reorders a saved SOURCE.
     """
     from foldcorr.evaluation import evaluate
-    from foldcorr.saved import is_saved_path, load_saved, read_samples
-    from foldcorr.sources import TableSpec, check_saved_options, load_tensor
+    from foldcorr.sources.saved import is_saved_path, load_saved, read_samples
+    from foldcorr.sources.tables import TableSpec, check_saved_options, load_tensor
 
     if is_saved_path(path):
         if not any(p and not is_saved_path(p) for p in (args.path, args.baseline)):
@@ -534,7 +534,7 @@ def _gate_source(path, args, undefined, *, baseline=False):
 
 def _run_gate(args) -> int:
     from foldcorr.errors import OptionError
-    from foldcorr.floors import read_class_floors
+    from foldcorr.sources.floors import read_class_floors
     from foldcorr.gate import GateRules, check_gate
     from foldcorr.report.gate import gate_report, junit_xml, render_gate
 
@@ -543,7 +543,7 @@ def _run_gate(args) -> int:
     if args.confidence is not None and not args.baseline:
         raise OptionError("`--confidence` applies to a baseline; give --baseline FILE too")
     if args.confidence is not None:
-        from foldcorr.uncertainty import check_level, check_resamples
+        from foldcorr.analysis.uncertainty import check_level, check_resamples
 
         check_level(args.confidence, name="--confidence")
         check_resamples(args.resamples, name="--resamples")
@@ -582,8 +582,8 @@ def _run_gate(args) -> int:
 
 def _run_score_multilabel(args) -> int:
     from foldcorr.errors import OptionError
-    from foldcorr.multilabel import evaluate_multilabel
-    from foldcorr.sources_multilabel import MultilabelSpec, load_multilabel
+    from foldcorr.analysis.multilabel import evaluate_multilabel
+    from foldcorr.sources.multilabel import MultilabelSpec, load_multilabel
 
     if args.matrix:
         raise OptionError("--matrix reads a multiclass counts matrix; it does not combine with "
@@ -610,8 +610,8 @@ def _run_score_multilabel(args) -> int:
 
 
 def _run_sweep(args) -> int:
-    from foldcorr.sources_multilabel import ScoreSpec, load_scores
-    from foldcorr.thresholds import sweep
+    from foldcorr.sources.multilabel import ScoreSpec, load_scores
+    from foldcorr.analysis.thresholds import sweep
 
     spec = ScoreSpec(truth=args.truth, score=args.score, truth_cols=args.truth_cols,
                      score_cols=args.score_cols, truth_prefix=args.truth_prefix,
@@ -639,8 +639,8 @@ def _shift_step(args, ev):
     value = getattr(args, "prevalence", None)
     if value is None:
         return ev
-    from foldcorr.shift import shifted_figures
-    from foldcorr.sources_multilabel import read_prevalence
+    from foldcorr.analysis.shift import shifted_figures
+    from foldcorr.sources.multilabel import read_prevalence
 
     return ev.with_extra("shifted", shifted_figures(ev.tensor, read_prevalence(value),
                                                     undefined=ev.undefined))
@@ -668,7 +668,7 @@ def _interval_settings(args) -> dict | None:
                 raise OptionError(f"`{flag}` needs `--ci LEVEL` (e.g. --ci 0.95); got {flag} "
                                   f"{value!r} without it")
         return None
-    from foldcorr.uncertainty import check_level, check_resamples
+    from foldcorr.analysis.uncertainty import check_level, check_resamples
 
     check_level(level, name="--ci")
     if resamples is not None:
@@ -682,7 +682,7 @@ def _multilabel_intervals_step(args, ev):
     settings = _interval_settings(args)
     if settings is None:
         return ev
-    from foldcorr.multilabel import multilabel_intervals
+    from foldcorr.analysis.multilabel import multilabel_intervals
 
     return ev.with_extra("intervals", multilabel_intervals(ev.tensor, **settings,
                                                            undefined=ev.undefined))
@@ -694,7 +694,7 @@ MULTILABEL_ANALYSES: list = [_multilabel_intervals_step]
 
 def _repair_step(args, ev):
     """Always on: repair gains, costliest confusions, leave-class-out, fold stability."""
-    from foldcorr.repair import repair_analysis
+    from foldcorr.analysis.repair import repair_analysis
 
     result = repair_analysis(ev.tensor, top=getattr(args, "top", 20),
                              undefined=getattr(args, "undefined", "zero"))
@@ -709,7 +709,7 @@ def _uncertainty_step(args, ev):
     settings = _interval_settings(args)
     if settings is None:
         return ev
-    from foldcorr.uncertainty import summarise_uncertainty
+    from foldcorr.analysis.uncertainty import summarise_uncertainty
 
     return ev.with_extra("uncertainty", summarise_uncertainty(ev.tensor, **settings,
                                                               undefined=ev.undefined))
@@ -727,10 +727,10 @@ def _analyse(args, ev):
 def _run_demo(args) -> int:
     import tempfile
 
-    from foldcorr.demo import write_demo
+    from foldcorr.sources.demo import write_demo
     from foldcorr.errors import OptionError
     from foldcorr.evaluation import evaluate
-    from foldcorr.sources import TableSpec, load_tensor
+    from foldcorr.sources.tables import TableSpec, load_tensor
 
     if args.samples < 100:
         raise OptionError(f"`--samples` must be at least 100; got {args.samples!r}")
@@ -746,13 +746,13 @@ def _run_demo(args) -> int:
 
 
 def _run_compare(args) -> int:
-    from foldcorr.compare import compare_models
-    from foldcorr.paired import PairSpec, load_joint
+    from foldcorr.analysis.compare import compare_models
+    from foldcorr.sources.paired import PairSpec, load_joint
     from foldcorr.report.compare import compare_report, render_compare
 
     spec = PairSpec(truth=args.truth, pred_a=args.pred_a, pred_b=args.pred_b, pred=args.pred,
                     id=args.id, fold=args.fold, classes=args.classes)
-    from foldcorr.uncertainty import check_level, check_resamples
+    from foldcorr.analysis.uncertainty import check_level, check_resamples
 
     check_level(args.ci, name="--ci")
     check_resamples(args.resamples, name="--resamples")

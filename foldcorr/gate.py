@@ -35,7 +35,7 @@ import xarray as xr
 from foldcorr import metrics as m
 from foldcorr.errors import InvalidInputError, OptionError, UndefinedMetricWarning
 from foldcorr.evaluation import Evaluation
-from foldcorr.samples import Samples, align_samples
+from foldcorr.tensor.samples import Samples, align_samples
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, pool
 
 __all__ = ["GateRules", "RuleResult", "ClassShortfall", "GateResult", "check_gate",
@@ -445,7 +445,7 @@ def _drop_interval(ev, baseline, shared, rules: GateRules, samples, baseline_sam
         if order is None:
             notes.append(f"unpaired comparison: {reason}")
         else:
-            from foldcorr.compare import compare_models, joint_tally
+            from foldcorr.analysis.compare import compare_models, joint_tally
 
             truth = baseline_samples.actual
             pred_a, pred_b = baseline_samples.predicted, samples.predicted[order]
@@ -466,7 +466,7 @@ def _drop_interval(ev, baseline, shared, rules: GateRules, samples, baseline_sam
             return low, high, how, notes + list(comp.warnings)
     elif samples is not None or baseline_samples is not None:
         notes.append("unpaired comparison: only one side carries sample ids")
-    from foldcorr.uncertainty import bootstrap_difference
+    from foldcorr.analysis.uncertainty import bootstrap_difference
 
     def cut(t):
         return t.sel({ACTUAL: shared, PREDICTED: shared})

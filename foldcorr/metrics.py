@@ -110,7 +110,7 @@ def _correlation(num, dp, dt, undefined: str):
     """num / sqrt(dp dt) clipped to [-1, 1], the convention where 0/0; and the 0/0 mask.
 
     The one correlation formula behind R_K, one-vs-rest MCC and every
-    counterfactual R_K of :mod:`foldcorr.repair`. It does not warn; callers
+    counterfactual R_K of :mod:`foldcorr.analysis.repair`. It does not warn; callers
     name where the value is undefined.
     """
     den = np.sqrt(np.maximum(dp, 0.0)) * np.sqrt(np.maximum(dt, 0.0))

@@ -1,4 +1,4 @@
-"""Tests of foldcorr.compare (joint tensor, paired bootstrap, permutation test).
+"""Tests of foldcorr.analysis.compare (joint tensor, paired bootstrap, permutation test).
 
 References: pandas.crosstab and sklearn.metrics.confusion_matrix for counts,
 sklearn.metrics.matthews_corrcoef for R_K and one-vs-rest MCC, a per-sample
@@ -19,7 +19,7 @@ from scipy import stats
 from sklearn.metrics import confusion_matrix, matthews_corrcoef
 
 import foldcorr as fc
-from foldcorr.compare import _permutation_draws, model_tensors, validate_joint
+from foldcorr.analysis.compare import _permutation_draws, model_tensors, validate_joint
 from foldcorr.errors import InvalidInputError, InvalidTensorError, OptionError
 from foldcorr.tensor import tally
 

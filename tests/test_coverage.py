@@ -17,7 +17,7 @@ import pytest
 
 from foldcorr.metrics import rk
 from foldcorr.tensor import confusion_tensor
-from foldcorr.uncertainty import bootstrap
+from foldcorr.analysis.uncertainty import bootstrap
 
 P = np.array([[0.22, 0.05, 0.03, 0.01],
               [0.04, 0.16, 0.05, 0.01],

@@ -1,4 +1,4 @@
-"""Tests of foldcorr.crossval against scikit-learn's own cross-validation."""
+"""Tests of foldcorr.analysis.crossval against scikit-learn's own cross-validation."""
 
 from __future__ import annotations
 

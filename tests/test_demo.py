@@ -7,8 +7,8 @@ import pandas as pd
 import pytest
 
 import foldcorr as fc
-from foldcorr.demo import SYSTEMATIC, TAXA, make_demo
-from foldcorr.sources import load_tensor
+from foldcorr.sources.demo import SYSTEMATIC, TAXA, make_demo
+from foldcorr.sources.tables import load_tensor
 
 FIXTURES = pathlib.Path(__file__).parent.parent / "fixtures"
 
@@ -38,7 +38,7 @@ def test_demo_shape_of_the_scenario():
 
 def test_demo_out_on_an_existing_file_is_one_error_line(tmp_path, capsys):
     from foldcorr.cli import main
-    from foldcorr.demo import write_demo
+    from foldcorr.sources.demo import write_demo
     from foldcorr.errors import InvalidInputError
 
     taken = tmp_path / "notes.txt"

@@ -22,7 +22,7 @@ import dask  # noqa: E402
 
 from foldcorr.cli import main  # noqa: E402
 from foldcorr.errors import EngineError, InvalidInputError  # noqa: E402
-from foldcorr.streaming import tally_dataset  # noqa: E402
+from foldcorr.sources.stream import tally_dataset  # noqa: E402
 
 
 @pytest.fixture(scope="module")
@@ -129,8 +129,8 @@ def test_lost_worker_fails_cleanly_without_a_tensor(client):
 
 
 def test_unreachable_scheduler(monkeypatch):
-    import foldcorr.distributed
+    import foldcorr.sources.cluster
 
-    monkeypatch.setattr(foldcorr.distributed, "CONNECT_TIMEOUT", 1.0)
+    monkeypatch.setattr(foldcorr.sources.cluster, "CONNECT_TIMEOUT", 1.0)
     with pytest.raises(EngineError, match="cannot reach the Dask scheduler"):
         tally_dataset(".", engine="dask", scheduler="tcp://127.0.0.1:9")

@@ -209,9 +209,9 @@ def test_incompatible_baseline_schema(capsys, good, tmp_path):
     base = tmp_path / "base.nc"
     run(capsys, "score", path, "--save", base)
     with h5py.File(base, "a") as h5:
-        h5.attrs["schema"] = "foldcorr.saved/2"
+        h5.attrs["schema"] = "foldcorr.sources.saved/2"
     code, _, err = run(capsys, "gate", path, "--baseline", base)
-    assert code == 2 and "saved with schema 'foldcorr.saved/2'" in err
+    assert code == 2 and "saved with schema 'foldcorr.sources.saved/2'" in err
 
 
 def test_junit_report(capsys, good, tmp_path):
@@ -312,7 +312,7 @@ def _batch_rk(y, p, k=len(CLASSES)):
 
 def test_confidence_paired_interval_against_scipy(capsys, tmp_path):
     # Reference: scipy.stats.bootstrap (paired, percentile) of the per-sample difference in MCC.
-    pytest.importorskip("foldcorr.compare")
+    pytest.importorskip("foldcorr.analysis.compare")
     from scipy.stats import bootstrap
 
     base, new = _two_runs(tmp_path, n=500, seed=21, skill_a=0.8, skill_b=0.7)
@@ -352,7 +352,7 @@ def test_confidence_paired_interval_against_scipy(capsys, tmp_path):
 
 
 def test_confidence_spares_a_drop_within_noise(capsys, tmp_path):
-    pytest.importorskip("foldcorr.uncertainty")
+    pytest.importorskip("foldcorr.analysis.uncertainty")
     base, new = _two_runs(tmp_path, n=120, seed=5, skill_a=0.72, skill_b=0.70,
                           ids_b=[f"g{i:04d}" for i in range(120)])
     drop = matthews_corrcoef(base.actual, base.predicted) - matthews_corrcoef(new.actual,
@@ -369,7 +369,7 @@ def test_confidence_spares_a_drop_within_noise(capsys, tmp_path):
 
 
 def test_confidence_options_are_checked(capsys, good, tmp_path):
-    pytest.importorskip("foldcorr.uncertainty")
+    pytest.importorskip("foldcorr.analysis.uncertainty")
     path, _ = good
     code, _, err = run(capsys, "gate", path, "--baseline", path, "--confidence", 1.5)
     assert code == 2 and "--confidence" in err and err.count("\n") == 1

@@ -7,7 +7,7 @@ import pytest
 from sklearn.metrics import matthews_corrcoef, multilabel_confusion_matrix
 
 from foldcorr.errors import InvalidInputError, UndefinedMetricWarning
-from foldcorr.multilabel import evaluate_multilabel, indicators_from_sets, multilabel_tally
+from foldcorr.analysis.multilabel import evaluate_multilabel, indicators_from_sets, multilabel_tally
 
 
 def _random(n=300, n_labels=7, seed=0):
@@ -135,7 +135,7 @@ def test_intervals_match_per_sample_bootstrap():
     # Tibshirani 1993). Labels are drawn independently here, so micro MCC matches too.
     from scipy.stats import bootstrap as scipy_bootstrap
 
-    from foldcorr.multilabel import multilabel_intervals
+    from foldcorr.analysis.multilabel import multilabel_intervals
 
     rng = np.random.default_rng(21)
     n = 400
@@ -163,7 +163,7 @@ def test_intervals_match_per_sample_bootstrap():
 
 def test_intervals_refuse_weighted_tensors():
     from foldcorr.errors import FoldcorrError
-    from foldcorr.multilabel import multilabel_intervals
+    from foldcorr.analysis.multilabel import multilabel_intervals
 
     t = multilabel_tally([[1, 0], [0, 1]], [[1, 0], [0, 1]], weights=[0.5, 1.5])
     with pytest.raises(FoldcorrError, match="weight"):
@@ -217,7 +217,7 @@ def test_weighted_mcc_ignores_an_undefined_label_without_support():
 
 
 def test_macro_interval_propagates_nan_in_resamples():
-    from foldcorr.multilabel import _macro_of, _weighted_of
+    from foldcorr.analysis.multilabel import _macro_of, _weighted_of
 
     truth, pred, _ = _random(n=200, n_labels=2, seed=6)
     truth = np.column_stack([truth, np.ones(len(truth), dtype=bool)])

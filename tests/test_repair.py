@@ -21,7 +21,7 @@ from hypothesis import strategies as st
 from scipy.stats import rankdata
 from sklearn.metrics import matthews_corrcoef
 
-from foldcorr import repair
+from foldcorr.analysis import repair
 from foldcorr.errors import InvalidTensorError, OptionError, UndefinedMetricWarning
 from foldcorr.metrics import decompose
 from foldcorr.tensor import confusion_tensor, tally
@@ -231,7 +231,7 @@ def test_repair_analysis_gathers_everything():
 
 
 def test_the_analysis_layer_loads_no_plotting_or_terminal_library():
-    code = ("import sys, foldcorr.repair, foldcorr.metrics; "
+    code = ("import sys, foldcorr.analysis.repair, foldcorr.metrics; "
             "print(sorted(m for m in ('matplotlib', 'rich', 'dask') if m in sys.modules))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"

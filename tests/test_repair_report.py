@@ -8,7 +8,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from foldcorr import repair
+from foldcorr.analysis import repair
 from foldcorr.cli import main
 from foldcorr.evaluation import evaluate
 from foldcorr.report import render_score

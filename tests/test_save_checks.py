@@ -6,7 +6,7 @@ import pytest
 
 from foldcorr.cli import main
 from foldcorr.errors import OptionError
-from foldcorr.saved import check_save_target
+from foldcorr.sources.saved import check_save_target
 
 pytest.importorskip("h5netcdf")
 
@@ -100,7 +100,7 @@ def test_successful_save_matches_the_report(tmp_path, table, capsys):
     # The saved counts are those of the table: sklearn.metrics.confusion_matrix as reference.
     from sklearn.metrics import confusion_matrix
 
-    from foldcorr.saved import file_sha256, load_saved
+    from foldcorr.sources.saved import file_sha256, load_saved
 
     path, df = table
     out = tmp_path / "run.nc"
@@ -164,7 +164,7 @@ def test_classes_reorder_a_saved_file(saved, capsys):
     doc = json.loads(printed)
     assert doc["classes"] == order
     assert abs(doc["pooled"]["rk"] - matthews_corrcoef(df.actual, df.predicted)) < 1e-12
-    from foldcorr.sources import TableSpec, load_tensor
+    from foldcorr.sources.tables import TableSpec, load_tensor
 
     t = load_tensor(out, TableSpec(classes=tuple(order))).sum("fold")
     assert (t.values == confusion_matrix(df.actual, df.predicted, labels=order)).all()

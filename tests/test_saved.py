@@ -10,9 +10,9 @@ import xarray as xr
 
 from foldcorr.cli import main
 from foldcorr.errors import InvalidInputError
-from foldcorr.samples import Samples
-from foldcorr.saved import SAVED_SCHEMA, file_sha256, load_saved, save_evaluation
-from foldcorr.sources import load_tensor
+from foldcorr.tensor.samples import Samples
+from foldcorr.sources.saved import SAVED_SCHEMA, file_sha256, load_saved, save_evaluation
+from foldcorr.sources.tables import load_tensor
 from foldcorr.tensor import confusion_tensor, tally
 from foldcorr.testing import assert_tensor_equal
 
@@ -181,10 +181,10 @@ def test_foreign_and_future_files(tmp_path):
     future = tmp_path / "future.nc"
     save_evaluation(future, confusion_tensor([[1, 0], [0, 1]], ["a", "b"]))
     with h5py.File(future, "a") as h5:
-        h5.attrs["schema"] = "foldcorr.saved/9"
+        h5.attrs["schema"] = "foldcorr.sources.saved/9"
     with pytest.raises(InvalidInputError,
-                       match=r"future.nc: saved with schema 'foldcorr.saved/9'.*expected "
-                             r"'foldcorr.saved/1'"):
+                       match=r"future.nc: saved with schema 'foldcorr.sources.saved/9'.*expected "
+                             r"'foldcorr.sources.saved/1'"):
         load_saved(future)
 
 
@@ -230,7 +230,7 @@ def test_benchmark_quick_run():
 
 def test_show_repeats_the_analyses_with_their_options(tmp_path, table, capsys):
     # Intervals depend on --ci, --resamples and --seed: show must rerun them with the saved ones.
-    pytest.importorskip("foldcorr.uncertainty")
+    pytest.importorskip("foldcorr.analysis.uncertainty")
     path, _ = table
     out = tmp_path / "run.nc"
     argv = ["--ci", "0.9", "--resamples", "300", "--seed", "5", "--ci-method", "bca"]

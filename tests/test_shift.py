@@ -6,7 +6,7 @@ from sklearn.metrics import confusion_matrix, matthews_corrcoef, precision_score
 
 from foldcorr import metrics as m
 from foldcorr.errors import InvalidInputError
-from foldcorr.shift import shift_prevalence, shifted_figures, target_prevalence
+from foldcorr.analysis.shift import shift_prevalence, shifted_figures, target_prevalence
 from foldcorr.tensor import confusion_tensor, tally
 
 

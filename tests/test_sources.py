@@ -6,7 +6,7 @@ import pytest
 from sklearn.metrics import confusion_matrix
 
 from foldcorr import InvalidInputError
-from foldcorr.sources import TableSpec, load_tensor, read_matrix
+from foldcorr.sources.tables import TableSpec, load_tensor, read_matrix
 
 
 @pytest.fixture

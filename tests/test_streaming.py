@@ -15,8 +15,8 @@ from sklearn.metrics import confusion_matrix
 
 from foldcorr.cli import main
 from foldcorr.errors import InvalidInputError
-from foldcorr.sources import TableSpec, _load_in_memory, load_tensor
-from foldcorr.streaming import StreamTally, parse_where, resolve_paths, stream_tensor
+from foldcorr.sources.tables import TableSpec, _load_in_memory, load_tensor
+from foldcorr.sources.stream import StreamTally, parse_where, resolve_paths, stream_tensor
 from foldcorr.tensor import tally_frame
 
 

@@ -17,10 +17,10 @@ import pyarrow.parquet as pq
 import pytest
 from sklearn.metrics import confusion_matrix
 
-import foldcorr.streaming as streaming
+import foldcorr.sources.stream as streaming
 from foldcorr.errors import InvalidInputError
-from foldcorr.sources import TableSpec, _load_in_memory
-from foldcorr.streaming import StreamTally, stream_tensor
+from foldcorr.sources.tables import TableSpec, _load_in_memory
+from foldcorr.sources.stream import StreamTally, stream_tensor
 from foldcorr.tensor import count_codes
 
 

@@ -5,10 +5,10 @@ import pandas as pd
 import pytest
 from sklearn.metrics import confusion_matrix
 
-import foldcorr.streaming as streaming
+import foldcorr.sources.stream as streaming
 from foldcorr.cli import main
 from foldcorr.errors import InvalidInputError
-from foldcorr.streaming import tally_dataset
+from foldcorr.sources.stream import tally_dataset
 
 LABELS = ["diatom", "copepod", "larva"]
 

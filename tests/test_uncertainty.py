@@ -1,4 +1,4 @@
-"""Tests of foldcorr.uncertainty against outside references.
+"""Tests of foldcorr.analysis.uncertainty against outside references.
 
 Monte Carlo tolerances: the standard error of an estimated q-quantile from B
 draws is sqrt(q (1 - q) / B) / f(x_q) (asymptotic order statistics; e.g.
@@ -25,7 +25,7 @@ import foldcorr as fc
 # `foldcorr.tensor` names both a module and a function; import the function directly
 from foldcorr.tensor import confusion_tensor, tally
 from foldcorr.errors import InvalidTensorError, OptionError, UndefinedMetricWarning
-from foldcorr.uncertainty import _jack_moments
+from foldcorr.analysis.uncertainty import _jack_moments
 
 
 def _labels(rng, n, k, acc):

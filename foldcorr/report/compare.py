@@ -1,6 +1,6 @@
-"""Report of ``foldcorr compare``: text, Markdown and the ``foldcorr.compare/1`` JSON.
+"""Report of ``foldcorr compare``: text, Markdown and the ``foldcorr.analysis.compare/1`` JSON.
 
-The renderers take a :class:`foldcorr.compare.Comparison` and never compute;
+The renderers take a :class:`foldcorr.analysis.compare.Comparison` and never compute;
 the verdict sentence only reads its fields.
 """
 
@@ -14,7 +14,7 @@ from foldcorr.report.uncertainty import percent
 
 __all__ = ["COMPARE_SCHEMA", "verdict", "compare_report", "compare_dict", "render_compare"]
 
-COMPARE_SCHEMA = "foldcorr.compare/1"
+COMPARE_SCHEMA = "foldcorr.analysis.compare/1"
 
 
 def _m(value) -> str:
@@ -31,7 +31,7 @@ def verdict(c, labels=("A", "B")) -> str:
     Examples
     --------
     >>> import numpy as np
-    >>> from foldcorr.compare import compare_models, joint_tally
+    >>> from foldcorr.analysis.compare import compare_models, joint_tally
     >>> y = np.array([0, 1, 2] * 60)
     >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
     >>> verdict(c)[:26]
@@ -63,7 +63,7 @@ def compare_report(c, *, labels=("A", "B"), names=None, top: int | None = 20,
     Examples
     --------
     >>> import numpy as np
-    >>> from foldcorr.compare import compare_models, joint_tally
+    >>> from foldcorr.analysis.compare import compare_models, joint_tally
     >>> y = np.array([0, 1, 2] * 60)
     >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
     >>> [t.title for t in compare_report(c).tables]
@@ -126,17 +126,17 @@ def _label(value):
 
 
 def compare_dict(c, *, labels=("A", "B"), names=None, source: str | None = None) -> dict:
-    """The ``foldcorr.compare/1`` document of a comparison.
+    """The ``foldcorr.analysis.compare/1`` document of a comparison.
 
     Examples
     --------
     >>> import numpy as np
-    >>> from foldcorr.compare import compare_models, joint_tally
+    >>> from foldcorr.analysis.compare import compare_models, joint_tally
     >>> y = np.array([0, 1, 2] * 60)
     >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
     >>> doc = compare_dict(c)
     >>> doc["schema"], doc["b"]["rk"], doc["difference"]["p_value"] < 0.01
-    ('foldcorr.compare/1', 1.0, True)
+    ('foldcorr.analysis.compare/1', 1.0, True)
     """
     pc = c.per_class
     per_class = [
@@ -177,7 +177,7 @@ def render_compare(c, fmt: str, *, labels=("A", "B"), names=None, top: int | Non
     Examples
     --------
     >>> import numpy as np
-    >>> from foldcorr.compare import compare_models, joint_tally
+    >>> from foldcorr.analysis.compare import compare_models, joint_tally
     >>> y = np.array([0, 1, 2] * 60)
     >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
     >>> render_compare(c, "markdown").splitlines()[0]

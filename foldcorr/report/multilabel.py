@@ -1,6 +1,6 @@
 """Reports of a multilabel evaluation: tables for text and Markdown, and JSON.
 
-``foldcorr.multilabel/1`` keys: ``schema``, ``source``, ``undefined``,
+``foldcorr.analysis.multilabel/1`` keys: ``schema``, ``source``, ``undefined``,
 ``labels``, ``n``, ``micro_mcc``, ``macro_mcc``, ``weighted_mcc``,
 ``per_label`` (sorted by cost, largest first), ``folds`` and ``warnings``;
 with intervals also ``ci``, ``micro_mcc_ci``, ``macro_mcc_ci``,
@@ -9,13 +9,13 @@ with intervals also ``ci``, ``micro_mcc_ci``, ``macro_mcc_ci``,
 
 from __future__ import annotations
 
-from foldcorr.multilabel import MultilabelEvaluation
+from foldcorr.analysis.multilabel import MultilabelEvaluation
 from foldcorr.report.documents import render_report
 from foldcorr.report.tables import Column, Report, Table, format_value
 
 __all__ = ["MULTILABEL_SCHEMA", "multilabel_report", "multilabel_dict", "render_multilabel"]
 
-MULTILABEL_SCHEMA = "foldcorr.multilabel/1"
+MULTILABEL_SCHEMA = "foldcorr.analysis.multilabel/1"
 
 LABEL_KEYS = ("support", "predicted", "prevalence", "mcc", "recall", "precision")
 
@@ -34,7 +34,7 @@ def multilabel_report(ev: MultilabelEvaluation, *, top: int | None = 20,
 
     Examples
     --------
-    >>> from foldcorr.multilabel import evaluate_multilabel, multilabel_tally
+    >>> from foldcorr.analysis.multilabel import evaluate_multilabel, multilabel_tally
     >>> ev = evaluate_multilabel(multilabel_tally([[1, 0], [0, 1]], [[1, 0], [1, 1]],
     ...                                           labels=["gull", "tern"]))
     >>> [t.title for t in multilabel_report(ev).tables]
@@ -96,16 +96,16 @@ def multilabel_report(ev: MultilabelEvaluation, *, top: int | None = 20,
 
 
 def multilabel_dict(ev: MultilabelEvaluation) -> dict:
-    """The ``foldcorr.multilabel/1`` document.
+    """The ``foldcorr.analysis.multilabel/1`` document.
 
     Examples
     --------
-    >>> from foldcorr.multilabel import evaluate_multilabel, multilabel_tally
+    >>> from foldcorr.analysis.multilabel import evaluate_multilabel, multilabel_tally
     >>> ev = evaluate_multilabel(multilabel_tally([[1, 0], [0, 1]], [[1, 0], [1, 1]],
     ...                                           labels=["gull", "tern"]))
     >>> doc = multilabel_dict(ev)
     >>> doc["schema"], doc["labels"], [r["label"] for r in doc["per_label"]]
-    ('foldcorr.multilabel/1', ['gull', 'tern'], ['gull', 'tern'])
+    ('foldcorr.analysis.multilabel/1', ['gull', 'tern'], ['gull', 'tern'])
     """
     from foldcorr.report.json import plain
 
@@ -147,7 +147,7 @@ def render_multilabel(ev: MultilabelEvaluation, fmt: str, *, top: int | None = 2
 
     Examples
     --------
-    >>> from foldcorr.multilabel import evaluate_multilabel, multilabel_tally
+    >>> from foldcorr.analysis.multilabel import evaluate_multilabel, multilabel_tally
     >>> ev = evaluate_multilabel(multilabel_tally([[1, 0], [0, 1]], [[1, 0], [1, 1]]))
     >>> render_multilabel(ev, "markdown").splitlines()[0]
     '## foldcorr score (multilabel)'

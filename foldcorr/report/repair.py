@@ -5,7 +5,7 @@ per-class table, a "costliest confusions" table, and the JSON keys
 ``confusions`` and ``per_class[].gain_fix_fn``, ``gain_fix_fp``,
 ``gain_fix_both``, ``leave_out_delta``, ``top5_folds`` (plus ``drag_fold_sd``).
 Nothing here computes: every figure comes from a
-:class:`foldcorr.repair.RepairAnalysis`.
+:class:`foldcorr.analysis.repair.RepairAnalysis`.
 """
 
 from __future__ import annotations
@@ -47,7 +47,7 @@ def class_columns(ev) -> list:
     --------
     >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
-    >>> from foldcorr.repair import repair_analysis
+    >>> from foldcorr.analysis.repair import repair_analysis
     >>> t = confusion_tensor([[5, 1], [2, 6]], ["a", "b"])
     >>> ev = evaluate(t).with_extra("repair", repair_analysis(t))
     >>> [c.title for c, _ in class_columns(ev)]
@@ -72,7 +72,7 @@ def confusion_table(ra, top: int | None = 20) -> Table:
     Examples
     --------
     >>> from foldcorr.tensor import confusion_tensor
-    >>> from foldcorr.repair import repair_analysis
+    >>> from foldcorr.analysis.repair import repair_analysis
     >>> ra = repair_analysis(confusion_tensor([[5, 1], [2, 6]], ["a", "b"]))
     >>> confusion_table(ra).cells()
     [['1', 'b', 'a', '2', '0.283'], ['2', 'a', 'b', '1', '0.173']]
@@ -103,7 +103,7 @@ def tables(ev, top) -> list:
     --------
     >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
-    >>> from foldcorr.repair import repair_analysis
+    >>> from foldcorr.analysis.repair import repair_analysis
     >>> t = confusion_tensor([[5, 1], [2, 6]], ["a", "b"])
     >>> [tb.title for tb in tables(evaluate(t).with_extra("repair", repair_analysis(t)), 1)]
     ['Costliest confusions (top 1 by repair gain)']
@@ -118,7 +118,7 @@ def json(ev, doc: dict) -> None:
     --------
     >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
-    >>> from foldcorr.repair import repair_analysis
+    >>> from foldcorr.analysis.repair import repair_analysis
     >>> from foldcorr.report.json import score_dict
     >>> t = confusion_tensor([[5, 1], [2, 6]], ["a", "b"])
     >>> doc = score_dict(evaluate(t).with_extra("repair", repair_analysis(t)))
@@ -156,7 +156,7 @@ def render_rich(ra):
     >>> import io
     >>> from rich.console import Console
     >>> from foldcorr.tensor import confusion_tensor
-    >>> from foldcorr.repair import repair_analysis
+    >>> from foldcorr.analysis.repair import repair_analysis
     >>> console = Console(file=io.StringIO(), width=100, color_system=None)
     >>> console.print(repair_analysis(confusion_tensor([[5, 1], [2, 6]], ["a", "b"])))
     >>> "Costliest confusions" in console.file.getvalue()

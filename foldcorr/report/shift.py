@@ -26,7 +26,7 @@ def tables(ev, top):
     --------
     >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
-    >>> from foldcorr.shift import shifted_figures
+    >>> from foldcorr.analysis.shift import shifted_figures
     >>> t = confusion_tensor([[80, 20], [1, 9]], ["cod", "hake"])
     >>> ev = evaluate(t).with_extra("shifted", shifted_figures(t, "uniform"))
     >>> [x.title[:30] for x in tables(ev, 20)]
@@ -74,7 +74,7 @@ def json(ev, doc) -> None:
     --------
     >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
-    >>> from foldcorr.shift import shifted_figures
+    >>> from foldcorr.analysis.shift import shifted_figures
     >>> t = confusion_tensor([[80, 20], [1, 9]], ["cod", "hake"])
     >>> doc = {}
     >>> json(evaluate(t).with_extra("shifted", shifted_figures(t, "uniform")), doc)

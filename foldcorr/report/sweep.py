@@ -14,7 +14,7 @@ from pathlib import Path
 import pandas as pd
 
 from foldcorr.report.tables import Column, Report, Table
-from foldcorr.thresholds import THRESHOLD, SweepResult
+from foldcorr.analysis.thresholds import THRESHOLD, SweepResult
 
 __all__ = ["SWEEP_SCHEMA", "sweep_report", "sweep_dict", "curve_frame", "write_curve",
            "CURVE_SUFFIXES"]
@@ -37,7 +37,7 @@ def sweep_report(result: SweepResult, *, top: int | None = 20, source: str | Non
 
     Examples
     --------
-    >>> from foldcorr.thresholds import sweep
+    >>> from foldcorr.analysis.thresholds import sweep
     >>> r = sweep([0, 1, 1, 0], [0.1, 0.8, 0.6, 0.3], folds=[1, 1, 2, 2], at=0.5)
     >>> [t.title for t in sweep_report(r).tables]
     ['Thresholds', 'Cross-fold choice']
@@ -90,7 +90,7 @@ def sweep_dict(result: SweepResult, *, source: str | None = None) -> dict:
 
     Examples
     --------
-    >>> from foldcorr.thresholds import sweep
+    >>> from foldcorr.analysis.thresholds import sweep
     >>> doc = sweep_dict(sweep([0, 1, 1, 0], [0.1, 0.8, 0.6, 0.3]))
     >>> doc["schema"], doc["labels"][0]["best_threshold"], doc["labels"][0]["best_mcc"]
     ('foldcorr.sweep/1', 0.6, 1.0)
@@ -122,7 +122,7 @@ def curve_frame(result: SweepResult) -> pd.DataFrame:
 
     Examples
     --------
-    >>> from foldcorr.thresholds import sweep
+    >>> from foldcorr.analysis.thresholds import sweep
     >>> curve_frame(sweep([0, 1, 1], [0.2, 0.5, 0.9])).columns.tolist()[:4]
     ['label', 'threshold', 'tp', 'fp']
     """
@@ -147,7 +147,7 @@ def write_curve(result: SweepResult, path) -> None:
     Examples
     --------
     >>> import tempfile, pathlib
-    >>> from foldcorr.thresholds import sweep
+    >>> from foldcorr.analysis.thresholds import sweep
     >>> out = pathlib.Path(tempfile.mkdtemp()) / "curve.csv"
     >>> write_curve(sweep([0, 1, 1], [0.2, 0.5, 0.9]), out)
     >>> out.read_text().splitlines()[0]
@@ -174,7 +174,7 @@ def render_sweep(result: SweepResult, fmt: str, *, top: int | None = 20,
 
     Examples
     --------
-    >>> from foldcorr.thresholds import sweep
+    >>> from foldcorr.analysis.thresholds import sweep
     >>> render_sweep(sweep([0, 1, 1, 0], [0.1, 0.8, 0.6, 0.3]), "markdown").splitlines()[0]
     '## foldcorr sweep'
     """

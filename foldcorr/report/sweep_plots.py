@@ -11,7 +11,7 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
-from foldcorr.thresholds import THRESHOLD, SweepResult
+from foldcorr.analysis.thresholds import THRESHOLD, SweepResult
 
 __all__ = ["plot_sweep", "MAX_POINTS"]
 
@@ -45,7 +45,7 @@ def plot_sweep(result: SweepResult, folder) -> list[Path]:
     Examples
     --------
     >>> import tempfile
-    >>> from foldcorr.thresholds import sweep
+    >>> from foldcorr.analysis.thresholds import sweep
     >>> r = sweep([0, 1, 1, 0, 1, 0], [0.1, 0.8, 0.6, 0.3, 0.4, 0.5], folds=[1, 1, 1, 2, 2, 2])
     >>> paths = plot_sweep(r, tempfile.mkdtemp())  # doctest: +SKIP
     >>> [p.name for p in paths]  # doctest: +SKIP

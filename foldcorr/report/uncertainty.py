@@ -1,7 +1,7 @@
 """Report section ``uncertainty``: bootstrap intervals and fold statistics.
 
 Shown when an evaluation carries ``ev.extras["uncertainty"]``, an
-:class:`foldcorr.uncertainty.Uncertainty` (``foldcorr score --ci LEVEL``).
+:class:`foldcorr.analysis.uncertainty.Uncertainty` (``foldcorr score --ci LEVEL``).
 Adds an interval beside pooled R_K, an interval column to the fold table, a
 per-class interval table, a fold statistics table, and the JSON keys
 ``pooled.rk_ci``, ``folds[].rk_ci``, ``per_class[].mcc_ci``, ``per_class[].drag_ci``,

@@ -17,7 +17,7 @@ from _datasets import in_child, write_parquet_dataset
 
 TALLY = """
 import time
-from foldcorr.streaming import stream_tensor
+from foldcorr.sources.stream import stream_tensor
 from foldcorr.tensor import confusion_tensor
 confusion_tensor([[1]], ["a"])        # one-time imports (xarray's array backends) before timing
 def measure(path):
@@ -32,7 +32,7 @@ def measure(path):
 READ = """
 import time
 import pyarrow.dataset as ds
-from foldcorr.streaming import BATCH_ROWS
+from foldcorr.sources.stream import BATCH_ROWS
 def measure(paths):
     start = time.perf_counter()
     rows = 0
@@ -48,7 +48,7 @@ BARE = """
 import time
 import numpy as np
 import pyarrow.dataset as ds
-from foldcorr.streaming import BATCH_ROWS
+from foldcorr.sources.stream import BATCH_ROWS
 def measure(paths, classes, folds):
     counts = np.zeros((folds + 1) * classes * classes, dtype=np.int64)
     start = time.perf_counter()
@@ -72,7 +72,7 @@ LEAN = """
 import time
 import numpy as np
 import pyarrow.dataset as ds
-from foldcorr.streaming import BATCH_ROWS
+from foldcorr.sources.stream import BATCH_ROWS
 def measure(paths, classes, folds):
     counts = np.zeros((folds + 1) * classes * classes, dtype=np.uint32)
     one = np.uint32(1)

@@ -40,8 +40,8 @@ def run(quick: bool = False) -> dict:
     """Time the sweep and the multilabel tally; print the ratios; return the figures."""
     from sklearn.metrics import matthews_corrcoef, multilabel_confusion_matrix
 
-    from foldcorr.multilabel import multilabel_tally
-    from foldcorr.thresholds import sweep
+    from foldcorr.analysis.multilabel import multilabel_tally
+    from foldcorr.analysis.thresholds import sweep
 
     n = 200_000 if quick else 10_000_000
     n_ml, n_labels = (20_000, 50) if quick else (1_000_000, 500)

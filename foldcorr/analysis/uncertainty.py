@@ -125,7 +125,7 @@ def whole_counts(t, *, what: str = "the bootstrap") -> xr.DataArray:
     :func:`foldcorr.tensor.validate_tensor`) and it records no
     ``weight_column``. A weighted tally has float64 counts and records its
     weight column (:func:`foldcorr.tensor.tally`, ``tally_frame``,
-    ``foldcorr.streaming``); it is refused even when every weight happens to
+    ``foldcorr.sources.stream``); it is refused even when every weight happens to
     be a whole number, since a cell of weight 10 is not 10 samples.
 
     Parameters
@@ -680,7 +680,7 @@ def bootstrap_difference(t_a, t_b, statistic=rk, *, n_resamples: int = 2000,
 
     For two evaluations on *different* samples (a new run against a stored
     baseline); for two models on the same samples use
-    :func:`foldcorr.compare.compare_models`, whose paired interval is narrower.
+    :func:`foldcorr.analysis.compare.compare_models`, whose paired interval is narrower.
 
     Parameters
     ----------

@@ -15,9 +15,9 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from foldcorr.compare import joint_tally
+from foldcorr.analysis.compare import joint_tally
 from foldcorr.errors import InvalidInputError
-from foldcorr.sources import _as_text, _coerce_classes, _fail, read_table
+from foldcorr.sources.tables import _as_text, _coerce_classes, _fail, read_table
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_columns
 
 __all__ = ["PairSpec", "load_joint"]
@@ -98,7 +98,7 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
     InvalidInputError
         On a missing column, a missing ``--id`` with two tables, ids that
         repeat or differ between the tables (with counts), truth that differs
-        between the tables, or labels as :func:`foldcorr.compare.joint_tally`.
+        between the tables, or labels as :func:`foldcorr.analysis.compare.joint_tally`.
 
     Examples
     --------

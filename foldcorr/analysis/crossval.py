@@ -2,8 +2,8 @@
 
 :func:`cross_tally` fits a fresh copy of an estimator on every training split
 and tallies its predictions on the held-out split into one fold tensor, ready
-for :func:`foldcorr.evaluation.evaluate`, :func:`foldcorr.uncertainty.bootstrap`
-and :func:`foldcorr.uncertainty.fold_statistics`. :data:`rk_scorer` lets
+for :func:`foldcorr.evaluation.evaluate`, :func:`foldcorr.analysis.uncertainty.bootstrap`
+and :func:`foldcorr.analysis.uncertainty.fold_statistics`. :data:`rk_scorer` lets
 scikit-learn's own model selection (``cross_validate``, ``GridSearchCV``) rank
 models by R_K.
 

@@ -18,8 +18,8 @@ import pandas as pd
 import xarray as xr
 
 from foldcorr.errors import InvalidInputError, OptionError
-from foldcorr.multilabel import indicators_from_sets, multilabel_tally
-from foldcorr.sources import read_table
+from foldcorr.analysis.multilabel import indicators_from_sets, multilabel_tally
+from foldcorr.sources.tables import read_table
 from foldcorr.tensor import FOLD
 
 __all__ = ["MultilabelSpec", "ScoreSpec", "load_multilabel", "load_scores", "ScoreTable",

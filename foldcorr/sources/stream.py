@@ -15,7 +15,7 @@ come (codes stay stable while new labels appear) and the column types are
 settled once at the end, the way pandas would settle them for the whole
 column: text read from CSV becomes integers, floats or booleans when every
 value of the column reads so, and a numeric column beside a text column is
-turned to text (see ``foldcorr.sources``).
+turned to text (see ``foldcorr.sources.tables``).
 """
 
 from __future__ import annotations
@@ -35,9 +35,9 @@ from foldcorr.tensor import (
     ACTUAL,
     FOLD,
     PREDICTED,
-    _fixed_classes,
-    _py,
-    _sorted_codes,
+    fixed_classes,
+    py_value,
+    sorted_codes,
     confusion_tensor,
     count_codes,
     bad_weight_message,
@@ -575,7 +575,7 @@ def _settle(coder: _Coder, codes: np.ndarray) -> tuple[str, list]:
 
 
 def _as_text(kind: str, values: list) -> list:
-    """Text labels, as ``foldcorr.sources`` turns a numeric column into text."""
+    """Text labels, as ``foldcorr.sources.tables`` turns a numeric column into text."""
     if kind == "float" and all(math.isfinite(v) and float(v).is_integer() for v in values):
         return [str(int(v)) for v in values]
     return [v if isinstance(v, str) else str(v) for v in values]
@@ -829,7 +829,7 @@ class StreamTally:
         lab = self.labels()
         (ct, kt, vt), (cp, _, vp) = lab["truth"], lab["pred"]
         if classes is not None:
-            labels = _fixed_classes(_coerce(classes, kt))
+            labels = fixed_classes(_coerce(classes, kt))
             position = {_key(v): i for i, v in enumerate(labels)}
             for role, codes, values in (("truth", ct, vt), ("pred", cp, vp)):
                 bad = [c for c, v in zip(codes, values) if _key(v) not in position]
@@ -849,19 +849,19 @@ class StreamTally:
                     where[k] = len(union)
                     union.append(v)
             codes = np.arange(len(union))
-            rank, ordered = _sorted_codes(codes, np.asarray(union + [None], dtype=object)[:-1])
-            labels = [_py(v) for v in ordered]
+            rank, ordered = sorted_codes(codes, np.asarray(union + [None], dtype=object)[:-1])
+            labels = [py_value(v) for v in ordered]
             map_t = np.array([rank[where[_key(v)]] for v in vt], dtype=np.int64)
             map_p = np.array([rank[where[_key(v)]] for v in vp], dtype=np.int64)
         k = len(labels)
         leading = {}
         if "fold" in lab:
             cf, _, vf = lab["fold"]
-            rank_f, fold_values = _sorted_codes(np.arange(len(vf)),
+            rank_f, fold_values = sorted_codes(np.arange(len(vf)),
                                                 np.asarray(vf + [None], dtype=object)[:-1])
             # rank_f[i] is where fold code cf[i] goes; gather by its inverse.
             folds = _take(self._source(), np.argsort(rank_f, kind="stable"), 0, cf)
-            leading[FOLD] = [_py(v) for v in fold_values]
+            leading[FOLD] = [py_value(v) for v in fold_values]
         else:
             folds = self._source()[:1]
         src = _take(_take(folds, ct, 1), cp, 2)
@@ -912,7 +912,7 @@ def _key(value):
 
 
 def _coerce(classes, kind: str) -> tuple:
-    """Class names given as text, as the truth column's type (see foldcorr.sources)."""
+    """Class names given as text, as the truth column's type (see foldcorr.sources.tables)."""
     if kind in ("int", "float"):
         caster = int if kind == "int" else float
         try:
@@ -1551,7 +1551,7 @@ def tally_dataset(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
     engine : {"local", "dask"}, default "local"
         ``"local"`` streams in this process; ``"dask"`` tallies each piece
         on the workers of a Dask cluster and sums the partial tallies in a
-        tree (see :func:`foldcorr.distributed.dask_tally`).
+        tree (see :func:`foldcorr.sources.cluster.dask_tally`).
     scheduler : str, optional
         Address of a running Dask scheduler, e.g. ``"tcp://scheduler.example:8786"``.
         Without it a ``distributed.LocalCluster`` on 127.0.0.1 with one
@@ -1592,7 +1592,7 @@ def tally_dataset(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
         return stream_tensor(data, truth=truth, pred=pred, fold=fold, weight=weight,
                              classes=classes, where=where, skip_bad_files=skip_bad_files,
                              progress=progress, batch_rows=batch_rows)
-    from foldcorr.distributed import dask_tally
+    from foldcorr.sources.cluster import dask_tally
 
     return dask_tally(data, truth=truth, pred=pred, fold=fold, weight=weight, classes=classes,
                       where=where, skip_bad_files=skip_bad_files, progress=progress,

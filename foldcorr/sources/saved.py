@@ -10,7 +10,7 @@ A saved evaluation is a NetCDF-4 (HDF5-based) file written through xarray's
   (the ids), ``sample_actual`` and ``sample_predicted`` (indices into the
   class coordinate) and ``sample_fold`` (index into the fold coordinate),
   which a paired comparison needs;
-* global attributes: ``schema`` (``foldcorr.saved/1``), ``created`` (UTC,
+* global attributes: ``schema`` (``foldcorr.sources.saved/1``), ``created`` (UTC,
   ISO 8601), ``foldcorr_version``, ``source``, ``source_sha256``, ``seed``
   where one was used, ``id_column`` when samples are stored, and ``options``,
   a JSON object with the options that shaped the report (the undefined
@@ -37,7 +37,7 @@ import xarray as xr
 from foldcorr._files import atomic_target
 from foldcorr._version import __version__
 from foldcorr.errors import InvalidInputError, OptionError
-from foldcorr.samples import Samples
+from foldcorr.tensor.samples import Samples
 from foldcorr.tensor import ACTUAL, COUNT, FOLD, PREDICTED, validate_tensor
 
 __all__ = [
@@ -55,7 +55,7 @@ __all__ = [
 ]
 
 #: Schema name and version written into every saved evaluation.
-SAVED_SCHEMA = "foldcorr.saved/1"
+SAVED_SCHEMA = "foldcorr.sources.saved/1"
 #: File endings read as saved evaluations wherever a prediction file is accepted.
 SAVED_SUFFIXES = (".nc", ".nc4")
 #: The xarray engine used for reading and writing (NetCDF-4 on HDF5, int64 exact).
@@ -224,7 +224,7 @@ def prepare_save(target, tensor, source, *, id_column: str | None = None,
     Examples
     --------
     >>> import tempfile, pathlib
-    >>> from foldcorr.sources import load_tensor
+    >>> from foldcorr.sources.tables import load_tensor
     >>> d = pathlib.Path(tempfile.mkdtemp())
     >>> _ = (d / "p.csv").write_text("id,actual,predicted\\nu1,a,a\\nu2,b,a\\n")
     >>> t = load_tensor(d / "p.csv")
@@ -244,7 +244,7 @@ def prepare_save(target, tensor, source, *, id_column: str | None = None,
     provenance = {"source": source.name}
     if is_saved_path(source):
         if id_column:
-            from foldcorr.sources import check_saved_options
+            from foldcorr.sources.tables import check_saved_options
 
             check_saved_options(source, id_column=id_column)
         saved = load_saved(source)
@@ -476,7 +476,7 @@ def load_saved(path) -> SavedEvaluation:
     ...                     options={"undefined": "nan"})
     >>> saved = load_saved(out)
     >>> saved.tensor.dtype, saved.options, saved.provenance["schema"]
-    (dtype('int64'), {'undefined': 'nan'}, 'foldcorr.saved/1')
+    (dtype('int64'), {'undefined': 'nan'}, 'foldcorr.sources.saved/1')
     """
     path = Path(path)
     name = path.name
@@ -568,13 +568,13 @@ def read_samples(path, tensor: xr.DataArray, id_column: str) -> Samples:
     Examples
     --------
     >>> import tempfile, pathlib
-    >>> from foldcorr.sources import load_tensor
+    >>> from foldcorr.sources.tables import load_tensor
     >>> p = pathlib.Path(tempfile.mkdtemp()) / "p.csv"
     >>> _ = p.write_text("id,actual,predicted\\nu1,a,a\\nu2,b,a\\n")
     >>> read_samples(p, load_tensor(p), "id").predicted.tolist()
     ['a', 'a']
     """
-    from foldcorr.sources import read_table
+    from foldcorr.sources.tables import read_table
 
     path = Path(path)
     truth = tensor.attrs.get("truth_column", ACTUAL)

@@ -2,7 +2,7 @@
 
 Each piece of the dataset (a file, or a partition of a Dask DataFrame) is
 tallied on a worker into a small count array over its own label codes (folds x
-K x K, a :class:`foldcorr.streaming.StreamTally`); partial tallies are merged
+K x K, a :class:`foldcorr.sources.stream.StreamTally`); partial tallies are merged
 pairwise up a tree (fan-in :data:`FAN_IN`), and the labels are settled once on
 the last worker with the same code as the local engine. Only the tensor comes
 back to the client, so the result equals the local one.
@@ -17,7 +17,7 @@ import os
 from pathlib import Path
 
 from foldcorr.errors import EngineError, FoldcorrError, InvalidInputError, require
-from foldcorr.streaming import (
+from foldcorr.sources.stream import (
     ACTUAL,
     PREDICTED,
     StreamResult,
@@ -60,7 +60,7 @@ def dask_tally(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | 
         readable by every worker, e.g. on a shared file system), or a Dask
         DataFrame with the named columns.
     truth, pred, fold, weight, classes, where, skip_bad_files, progress, batch_rows
-        As in :func:`foldcorr.streaming.stream_tensor`.
+        As in :func:`foldcorr.sources.stream.stream_tensor`.
     scheduler : str or distributed.Client, optional
         Address of a running scheduler (``"tcp://host:8786"``) or a client.
         Without it, a ``distributed.LocalCluster`` on 127.0.0.1 with one
@@ -259,7 +259,7 @@ def _finish_piece(piece: _Piece, *, plan, classes, batch_rows) -> StreamResult:
 
 def _run_frame(client, frame, truth, pred, fold, weight, classes, where, progress
                ) -> StreamResult:
-    from foldcorr.streaming import _Plan
+    from foldcorr.sources.stream import _Plan
 
     names = list(frame.columns)
     for name in (truth, pred, weight, None if fold == "auto" else fold):

@@ -523,7 +523,7 @@ def multilabel_intervals(t, *, n_resamples: int = 2000, level: float = 0.95,
     level : float, default 0.95
         Confidence level.
     method : {"percentile", "bca"}, default "percentile"
-        Interval method (see :func:`foldcorr.uncertainty.bootstrap`).
+        Interval method (see :func:`foldcorr.analysis.uncertainty.bootstrap`).
     seed : int, numpy.random.Generator or None
         Seed; the same seed gives the same intervals.
     undefined : {"zero", "nan"}, default "zero"
@@ -538,11 +538,11 @@ def multilabel_intervals(t, *, n_resamples: int = 2000, level: float = 0.95,
     InvalidInputError
         When ``t`` is not a multilabel tensor.
     InvalidTensorError, OptionError
-        As :func:`foldcorr.uncertainty.bootstrap` (weighted tensors, bad options).
+        As :func:`foldcorr.analysis.uncertainty.bootstrap` (weighted tensors, bad options).
 
     Notes
     -----
-    :func:`foldcorr.uncertainty.bootstrap` draws each slice of the tensor (each
+    :func:`foldcorr.analysis.uncertainty.bootstrap` draws each slice of the tensor (each
     fold and each label) as :math:`\mathrm{Multinomial}(N, C/N)` on its own,
     and the statistic is applied to every resampled tensor at once. For one
     label that is exactly the distribution of resampling the samples, so the
@@ -563,7 +563,7 @@ def multilabel_intervals(t, *, n_resamples: int = 2000, level: float = 0.95,
     """
     from functools import partial
 
-    from foldcorr.uncertainty import bootstrap
+    from foldcorr.analysis.uncertainty import bootstrap
 
     t = _check_multilabel(t)
     common = {"n_resamples": n_resamples, "level": level, "method": method}

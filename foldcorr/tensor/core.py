@@ -36,6 +36,9 @@ __all__ = [
     "unknown_label_message",
     "missing_label_message",
     "bad_weight_message",
+    "fixed_classes",
+    "sorted_codes",
+    "py_value",
 ]
 
 ACTUAL = "actual"
@@ -164,14 +167,14 @@ def validate_tensor(t) -> xr.DataArray:
         bad = ~np.isfinite(values)
         if bad.any():
             raise InvalidTensorError(
-                f"counts must be finite; found {_py(values[bad][0])!r} at {_where(t, bad)}"
+                f"counts must be finite; found {py_value(values[bad][0])!r} at {_where(t, bad)}"
             )
     else:
         values = values.astype(np.int64, copy=False)
     neg = values < 0
     if neg.any():
         raise InvalidTensorError(
-            f"counts must be non-negative; found {_py(values[neg][0])!r} at {_where(t, neg)}"
+            f"counts must be non-negative; found {py_value(values[neg][0])!r} at {_where(t, neg)}"
         )
     # A new object sharing the counts (no copy of a possibly large array).
     return xr.DataArray(values, coords=t.coords, dims=t.dims, name=COUNT, attrs=dict(t.attrs))
@@ -198,7 +201,7 @@ def _with_class_coords(t: xr.DataArray) -> xr.DataArray:
 def _where(t: xr.DataArray, mask: np.ndarray) -> str:
     index = np.argwhere(mask)[0]
     return ", ".join(
-        f"{dim}={_py(t.coords[dim].values[i])!r}" if dim in t.coords else f"{dim}={i}"
+        f"{dim}={py_value(t.coords[dim].values[i])!r}" if dim in t.coords else f"{dim}={i}"
         for dim, i in zip(t.dims, index)
     )
 
@@ -411,7 +414,7 @@ def tally_columns(columns, *, leading=None, weights=None, classes=None, attrs=No
     if not fixed:
         seen = None if w is None else _occurring(codes, len(labels))
         counts, labels = _drop_unseen(counts, labels, len(dims), seen)
-    coords = {**group_coords, **{d: [_py(x) for x in labels] for d in dims}}
+    coords = {**group_coords, **{d: [py_value(x) for x in labels] for d in dims}}
     out = xr.DataArray(counts, dims=(*group_coords, *dims), coords=coords, name=COUNT)
     out.attrs.update({**(attrs or {}), "n_rows": n, "foldcorr_version": __version__})
     return out
@@ -453,7 +456,7 @@ def _encode_labels(arrays, names, classes):
     list was fixed by the caller.
     """
     if classes is not None:
-        labels = _fixed_classes(classes)
+        labels = fixed_classes(classes)
         index = pd.Index(labels)
         codes = [index.get_indexer(pd.Index(_plain(v))) for v in arrays]
         for name, values, c in zip(names, arrays, codes):
@@ -468,7 +471,7 @@ def _encode_labels(arrays, names, classes):
         plain = [p.astype(object) for p in plain]
     codes, uniques = pd.factorize(np.concatenate(plain), use_na_sentinel=True)
     _raise_missing(codes, [len(p) for p in plain], names)
-    codes, uniques = _sorted_codes(codes, np.asarray(uniques, dtype=object))
+    codes, uniques = sorted_codes(codes, np.asarray(uniques, dtype=object))
     return _split(codes, [len(p) for p in plain]), list(uniques), False
 
 
@@ -482,7 +485,7 @@ def _plain(values) -> np.ndarray:
     return np.asarray(values)
 
 
-def _fixed_classes(classes) -> list:
+def fixed_classes(classes) -> list:
     labels = list(classes)
     if not labels:
         raise InvalidInputError("`classes` must name at least one class")
@@ -497,7 +500,7 @@ def _raise_unknown(name, values, codes, labels) -> None:
     bad = np.flatnonzero(codes < 0)
     if bad.size:
         row = int(bad[0])
-        value = _py(np.asarray(values)[row])
+        value = py_value(np.asarray(values)[row])
         raise InvalidInputError(unknown_label_message(name, row, value, bad.size, labels))
 
 
@@ -618,7 +621,7 @@ def _categorical(values):
     return None
 
 
-def _sorted_codes(codes: np.ndarray, uniques: np.ndarray):
+def sorted_codes(codes: np.ndarray, uniques: np.ndarray):
     try:
         order = np.argsort(uniques, kind="stable")
     except TypeError:
@@ -633,13 +636,13 @@ def _encode_one(values, name: str):
     direct = _direct_codes([values])
     if direct is not None:
         (codes,), labels = direct
-        return codes, [_py(v) for v in labels], True
+        return codes, [py_value(v) for v in labels], True
     codes, uniques = pd.factorize(_plain(values), use_na_sentinel=True)
     bad = np.flatnonzero(codes < 0)
     if bad.size:
         raise InvalidInputError(f"column {name!r} row {int(bad[0]) + 1}: missing value")
-    codes, uniques = _sorted_codes(codes, np.asarray(uniques, dtype=object))
-    return codes, [_py(u) for u in uniques], False
+    codes, uniques = sorted_codes(codes, np.asarray(uniques, dtype=object))
+    return codes, [py_value(u) for u in uniques], False
 
 
 def _drop_unseen_groups(counts, groups: list, weights):
@@ -660,7 +663,7 @@ def _drop_unseen_groups(counts, groups: list, weights):
     return counts, coords
 
 
-def _py(value):
+def py_value(value):
     return value.item() if isinstance(value, np.generic) else value
 
 

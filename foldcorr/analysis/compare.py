@@ -32,7 +32,7 @@ from foldcorr.errors import (
 from foldcorr.metrics import ovr_mcc, rk
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED
 from foldcorr.tensor import COUNT, tally_columns, validate_tensor
-from foldcorr.uncertainty import (
+from foldcorr.analysis.uncertainty import (
     RESAMPLE,
     _blocks,
     _interval,

@@ -22,7 +22,7 @@ from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, confusion_tensor, tally_fra
 __all__ = ["TableSpec", "read_table", "read_matrix", "load_tensor", "check_saved_options",
            "TABLE_SUFFIXES"]
 
-from foldcorr.streaming import TABLE_SUFFIXES  # noqa: E402  (one list for both paths)
+from foldcorr.sources.stream import TABLE_SUFFIXES  # noqa: E402  (one list for both paths)
 
 
 @dataclass(frozen=True)
@@ -133,7 +133,7 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
     """Read a prediction table (or a dataset of them) or a counts matrix into a tensor.
 
     Prediction tables are streamed batch by batch (see
-    :func:`foldcorr.streaming.stream_tensor`): memory is bounded by the batch
+    :func:`foldcorr.sources.stream.stream_tensor`): memory is bounded by the batch
     size and the tensor, not by the number of rows, and the result is the
     tensor :func:`foldcorr.tensor.tally_frame` gives on the whole table.
 
@@ -142,7 +142,7 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
     path : str or path-like
         Prediction table, a folder or a glob of them, a counts matrix CSV
         when ``matrix`` is true, or a saved evaluation (``.nc``, see
-        :mod:`foldcorr.saved`).
+        :mod:`foldcorr.sources.saved`).
     spec : TableSpec
         Column roles (ignored for a matrix, except ``classes``). With a saved
         evaluation only ``classes`` applies (it reorders the saved classes);
@@ -151,13 +151,13 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
         Read ``path`` as a counts matrix.
     where : str, optional
         Row filter, e.g. ``'split == "test"'`` (see
-        :func:`foldcorr.streaming.parse_where`).
+        :func:`foldcorr.sources.stream.parse_where`).
     skip_bad_files : bool, default False
         Skip unreadable files of a dataset (listed in ``attrs["skipped_files"]``).
     progress : bool or None, default False
         Progress bar on stderr; None shows it when stderr is a terminal.
     engine : {"local", "dask"}
-        Where the tally runs (see :func:`foldcorr.streaming.tally_dataset`).
+        Where the tally runs (see :func:`foldcorr.sources.stream.tally_dataset`).
     scheduler : str, optional
         Address of a Dask scheduler (engine "dask").
 
@@ -181,7 +181,7 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
     >>> load_tensor(p).dims
     ('fold', 'actual', 'predicted')
     """
-    from foldcorr.saved import is_saved_path, load_saved
+    from foldcorr.sources.saved import is_saved_path, load_saved
 
     if is_saved_path(path):  # a saved evaluation (NetCDF) stands wherever a table can
         check_saved_options(path, spec, matrix=matrix, where=where,
@@ -194,7 +194,7 @@ def load_tensor(path, spec: TableSpec = TableSpec(), *, matrix: bool = False, wh
         if spec.classes is not None:
             t = _reorder_matrix(path, t, spec.classes)
         return t
-    from foldcorr.streaming import tally_dataset
+    from foldcorr.sources.stream import tally_dataset
 
     return tally_dataset(path, truth=spec.truth, pred=spec.pred, fold=spec.fold,
                          weight=spec.weight, classes=spec.classes, where=where,
