@@ -50,7 +50,7 @@ def test_multilabel_json_matches_reference(capsys, tags, layout):
     code, out, err = run(capsys, "score", path, *layout, "--format", "json")
     assert code == 0, err
     doc = json.loads(out)
-    assert doc["schema"] == "foldcorr.analysis.multilabel/1"
+    assert doc["schema"] == "foldcorr.multilabel/1"
     # with --truth-cols the labels are the truth column names
     doc["labels"] = [lab.removeprefix("y_") for lab in doc["labels"]]
     for row in doc["per_label"]:

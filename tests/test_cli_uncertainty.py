@@ -112,7 +112,7 @@ def test_whole_weights_refuse_intervals_too(tables, capsys, tmp_path, weight):
 def test_compare_one_table_json(tables, capsys):
     doc = _json(capsys, ["compare", str(tables["one"]), "--pred-a", "old", "--pred-b", "new",
                          "--resamples", "300", "--seed", "2", "--format", "json"])
-    assert doc["schema"] == "foldcorr.analysis.compare/1"
+    assert doc["schema"] == "foldcorr.compare/1"
     truth, a, b = tables["truth"], tables["pa"], tables["pb"]
     assert doc["a"]["rk"] == pytest.approx(matthews_corrcoef(truth, a))
     assert doc["b"]["rk"] == pytest.approx(matthews_corrcoef(truth, b))

@@ -49,7 +49,7 @@ def test_every_offered_format_renders(table, capsys, tmp_path, fmt):
     rk_b = matthews_corrcoef(df.label, df.new)
     if fmt == "json":
         doc = json.loads(text)
-        assert doc["schema"] == "foldcorr.analysis.compare/1"
+        assert doc["schema"] == "foldcorr.compare/1"
     else:
         assert f"{rk_a:.3f}" in text and f"{rk_b:.3f}" in text
     if fmt == "html":

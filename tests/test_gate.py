@@ -209,9 +209,9 @@ def test_incompatible_baseline_schema(capsys, good, tmp_path):
     base = tmp_path / "base.nc"
     run(capsys, "score", path, "--save", base)
     with h5py.File(base, "a") as h5:
-        h5.attrs["schema"] = "foldcorr.sources.saved/2"
+        h5.attrs["schema"] = "foldcorr.saved/2"
     code, _, err = run(capsys, "gate", path, "--baseline", base)
-    assert code == 2 and "saved with schema 'foldcorr.sources.saved/2'" in err
+    assert code == 2 and "saved with schema 'foldcorr.saved/2'" in err
 
 
 def test_junit_report(capsys, good, tmp_path):

@@ -181,10 +181,10 @@ def test_foreign_and_future_files(tmp_path):
     future = tmp_path / "future.nc"
     save_evaluation(future, confusion_tensor([[1, 0], [0, 1]], ["a", "b"]))
     with h5py.File(future, "a") as h5:
-        h5.attrs["schema"] = "foldcorr.sources.saved/9"
+        h5.attrs["schema"] = "foldcorr.saved/9"
     with pytest.raises(InvalidInputError,
-                       match=r"future.nc: saved with schema 'foldcorr.sources.saved/9'.*expected "
-                             r"'foldcorr.sources.saved/1'"):
+                       match=r"future.nc: saved with schema 'foldcorr.saved/9'.*expected "
+                             r"'foldcorr.saved/1'"):
         load_saved(future)
 
 

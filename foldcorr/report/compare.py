@@ -1,4 +1,4 @@
-"""Report of ``foldcorr compare``: text, Markdown and the ``foldcorr.analysis.compare/1`` JSON.
+"""Report of ``foldcorr compare``: text, Markdown and the ``foldcorr.compare/1`` JSON.
 
 The renderers take a :class:`foldcorr.analysis.compare.Comparison` and never compute;
 the verdict sentence only reads its fields.
@@ -14,7 +14,7 @@ from foldcorr.report.uncertainty import percent
 
 __all__ = ["COMPARE_SCHEMA", "verdict", "compare_report", "compare_dict", "render_compare"]
 
-COMPARE_SCHEMA = "foldcorr.analysis.compare/1"
+COMPARE_SCHEMA = "foldcorr.compare/1"
 
 
 def _m(value) -> str:
@@ -126,7 +126,7 @@ def _label(value):
 
 
 def compare_dict(c, *, labels=("A", "B"), names=None, source: str | None = None) -> dict:
-    """The ``foldcorr.analysis.compare/1`` document of a comparison.
+    """The ``foldcorr.compare/1`` document of a comparison.
 
     Examples
     --------
@@ -136,7 +136,7 @@ def compare_dict(c, *, labels=("A", "B"), names=None, source: str | None = None)
     >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
     >>> doc = compare_dict(c)
     >>> doc["schema"], doc["b"]["rk"], doc["difference"]["p_value"] < 0.01
-    ('foldcorr.analysis.compare/1', 1.0, True)
+    ('foldcorr.compare/1', 1.0, True)
     """
     pc = c.per_class
     per_class = [

@@ -1,6 +1,6 @@
 """Reports of a multilabel evaluation: tables for text and Markdown, and JSON.
 
-``foldcorr.analysis.multilabel/1`` keys: ``schema``, ``source``, ``undefined``,
+``foldcorr.multilabel/1`` keys: ``schema``, ``source``, ``undefined``,
 ``labels``, ``n``, ``micro_mcc``, ``macro_mcc``, ``weighted_mcc``,
 ``per_label`` (sorted by cost, largest first), ``folds`` and ``warnings``;
 with intervals also ``ci``, ``micro_mcc_ci``, ``macro_mcc_ci``,
@@ -15,7 +15,7 @@ from foldcorr.report.tables import Column, Report, Table, format_value
 
 __all__ = ["MULTILABEL_SCHEMA", "multilabel_report", "multilabel_dict", "render_multilabel"]
 
-MULTILABEL_SCHEMA = "foldcorr.analysis.multilabel/1"
+MULTILABEL_SCHEMA = "foldcorr.multilabel/1"
 
 LABEL_KEYS = ("support", "predicted", "prevalence", "mcc", "recall", "precision")
 
@@ -96,7 +96,7 @@ def multilabel_report(ev: MultilabelEvaluation, *, top: int | None = 20,
 
 
 def multilabel_dict(ev: MultilabelEvaluation) -> dict:
-    """The ``foldcorr.analysis.multilabel/1`` document.
+    """The ``foldcorr.multilabel/1`` document.
 
     Examples
     --------
@@ -105,7 +105,7 @@ def multilabel_dict(ev: MultilabelEvaluation) -> dict:
     ...                                           labels=["gull", "tern"]))
     >>> doc = multilabel_dict(ev)
     >>> doc["schema"], doc["labels"], [r["label"] for r in doc["per_label"]]
-    ('foldcorr.analysis.multilabel/1', ['gull', 'tern'], ['gull', 'tern'])
+    ('foldcorr.multilabel/1', ['gull', 'tern'], ['gull', 'tern'])
     """
     from foldcorr.report.json import plain
 

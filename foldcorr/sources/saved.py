@@ -10,7 +10,7 @@ A saved evaluation is a NetCDF-4 (HDF5-based) file written through xarray's
   (the ids), ``sample_actual`` and ``sample_predicted`` (indices into the
   class coordinate) and ``sample_fold`` (index into the fold coordinate),
   which a paired comparison needs;
-* global attributes: ``schema`` (``foldcorr.sources.saved/1``), ``created`` (UTC,
+* global attributes: ``schema`` (``foldcorr.saved/1``), ``created`` (UTC,
   ISO 8601), ``foldcorr_version``, ``source``, ``source_sha256``, ``seed``
   where one was used, ``id_column`` when samples are stored, and ``options``,
   a JSON object with the options that shaped the report (the undefined
@@ -55,7 +55,7 @@ __all__ = [
 ]
 
 #: Schema name and version written into every saved evaluation.
-SAVED_SCHEMA = "foldcorr.sources.saved/1"
+SAVED_SCHEMA = "foldcorr.saved/1"
 #: File endings read as saved evaluations wherever a prediction file is accepted.
 SAVED_SUFFIXES = (".nc", ".nc4")
 #: The xarray engine used for reading and writing (NetCDF-4 on HDF5, int64 exact).
@@ -476,7 +476,7 @@ def load_saved(path) -> SavedEvaluation:
     ...                     options={"undefined": "nan"})
     >>> saved = load_saved(out)
     >>> saved.tensor.dtype, saved.options, saved.provenance["schema"]
-    (dtype('int64'), {'undefined': 'nan'}, 'foldcorr.sources.saved/1')
+    (dtype('int64'), {'undefined': 'nan'}, 'foldcorr.saved/1')
     """
     path = Path(path)
     name = path.name
