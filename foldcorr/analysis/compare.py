@@ -1,8 +1,9 @@
 r"""The analysis layer: two models scored on the same samples, compared pair by pair.
 
-The joint tensor counts samples by (fold, actual, predicted by A, predicted by
-B). Both models' confusion tensors are its margins, so everything about the
-pair lives in its cells:
+The joint tensor (:func:`foldcorr.tensor.joint_tally`) counts samples by
+(fold, actual, predicted by A, predicted by B). Both models' confusion tensors
+are its margins, so everything about the pair lives in its cells (resampled,
+and intervals read, with :mod:`foldcorr.analysis.resampling`):
 
 - the *paired bootstrap* resamples the joint cells (stratified by fold), which
   keeps each sample's two predictions together, and reads the difference of R_K
@@ -38,6 +39,7 @@ from foldcorr.analysis.resampling import (
 )
 
 __all__ = ["Comparison", "compare_models"]
+
 
 @dataclass(frozen=True)
 class Comparison:

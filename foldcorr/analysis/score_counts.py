@@ -259,7 +259,8 @@ def curve_counts(truth: np.ndarray, scores: np.ndarray):
     Examples
     --------
     >>> import numpy as np
-    >>> grid, tp, fp, pos, n = curve_counts(np.array([False, True, True]), np.array([0.2, 0.9, 0.2]))
+    >>> truth, scores = np.array([False, True, True]), np.array([0.2, 0.9, 0.2])
+    >>> grid, tp, fp, pos, n = curve_counts(truth, scores)
     >>> grid.thresholds.tolist(), tp.tolist(), fp.tolist(), pos, n
     ([0.2, 0.9], [2, 1], [1, 0], 2, 3)
     """
@@ -381,7 +382,8 @@ def best_index(mcc: np.ndarray, allowed: np.ndarray | None = None) -> int:
     return i + 1 + int(later[-1]) if later.size else i
 
 
-def crossfold_thresholds(grid: ScoreGrid, tp, s, y, total_pos, codes, fold_labels, undefined) -> xr.Dataset:
+def crossfold_thresholds(grid: ScoreGrid, tp, s, y, total_pos, codes, fold_labels,
+                         undefined) -> xr.Dataset:
     """Per fold: the best threshold on the other folds, and its MCC on the fold.
 
     Each fold's scores are sorted with their truth (the folds together are one

@@ -7,7 +7,8 @@ ties included exactly. The curve is an ordinary confusion tensor with a leading
 ``threshold`` dim, so MCC, accuracy, F1, recall and precision come from
 :mod:`foldcorr.metrics` unchanged. The cross-fold choice picks, for each fold,
 the threshold that maximises MCC on the *other* folds and scores it on the
-held-out fold, which removes the optimism of the in-sample best.
+held-out fold, which removes the optimism of the in-sample best. The sort
+and the counts behind it are :mod:`foldcorr.analysis.score_counts`.
 """
 
 from __future__ import annotations

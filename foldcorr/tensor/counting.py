@@ -287,6 +287,17 @@ def _plain(values) -> np.ndarray:
 
 
 def fixed_classes(classes) -> list:
+    """A caller's class list, refused when empty or naming a class twice.
+
+    Examples
+    --------
+    >>> fixed_classes(("b", "a"))
+    ['b', 'a']
+    >>> fixed_classes(["a", "a"])
+    Traceback (most recent call last):
+    ...
+    foldcorr.errors.InvalidInputError: `classes` lists 'a' more than once
+    """
     labels = list(classes)
     if not labels:
         raise InvalidInputError("`classes` must name at least one class")
@@ -423,6 +434,17 @@ def _categorical(values):
 
 
 def sorted_codes(codes: np.ndarray, uniques: np.ndarray):
+    """Recode factorised labels so the codes follow the sorted labels.
+
+    Labels that do not compare with each other (say 1 and "1") are sorted by
+    type name, then text.
+
+    Examples
+    --------
+    >>> codes, labels = sorted_codes(np.array([0, 1, 0]), np.array(["dog", "cat"], dtype=object))
+    >>> codes.tolist(), labels.tolist()
+    ([1, 0, 1], ['cat', 'dog'])
+    """
     try:
         order = np.argsort(uniques, kind="stable")
     except TypeError:
