@@ -15,21 +15,23 @@ _EXPORTS = {
     "foldcorr.tensor": [
         "tally", "tally_frame", "confusion_tensor", "validate_tensor", "pool",
         "ACTUAL", "PREDICTED", "FOLD", "CLASS", "LABEL",
+        "joint_tally", "model_tensors", "multilabel_tally", "indicators_from_sets",
     ],
     "foldcorr.metrics": [
         "rk", "mcc", "ovr_mcc", "decompose", "accuracy", "balanced_accuracy",
         "cohen_kappa", "recall", "precision", "f1", "macro_f1", "macro_mcc",
         "support", "predicted_count", "top_confusion",
     ],
-    "foldcorr.analysis.repair": [
+    "foldcorr.analysis.gains": [
         "pair_gains", "class_gains", "leave_class_out", "costliest_confusions",
-        "fold_stability", "repair_analysis", "RepairAnalysis",
     ],
+    "foldcorr.analysis.repair": ["fold_stability", "repair_analysis", "RepairAnalysis"],
+    "foldcorr.analysis.resampling": ["resample_cells"],
     "foldcorr.analysis.uncertainty": [
-        "resample_cells", "bootstrap", "bootstrap_difference", "fold_statistics",
+        "bootstrap", "bootstrap_difference", "fold_statistics",
         "summarise_uncertainty", "drag", "BootstrapResult", "FoldStatistics", "Uncertainty",
     ],
-    "foldcorr.analysis.compare": ["joint_tally", "model_tensors", "compare_models", "Comparison"],
+    "foldcorr.analysis.compare": ["compare_models", "Comparison"],
     "foldcorr.analysis.crossval": ["cross_tally", "rk_score", "rk_scorer"],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
     "foldcorr.tensor.samples": ["Samples"],
@@ -39,9 +41,7 @@ _EXPORTS = {
         "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
     ],
     "foldcorr.sources.stream": ["tally_dataset", "stream_tensor", "parse_where", "StreamResult"],
-    "foldcorr.analysis.multilabel": [
-        "multilabel_tally", "indicators_from_sets", "evaluate_multilabel", "MultilabelEvaluation",
-    ],
+    "foldcorr.analysis.multilabel": ["evaluate_multilabel", "MultilabelEvaluation"],
     "foldcorr.analysis.thresholds": ["sweep", "threshold_curve", "SweepResult", "LabelSweep"],
     "foldcorr.analysis.shift": ["shift_prevalence", "target_prevalence", "shifted_figures", "ShiftResult"],
     "foldcorr.errors": [

@@ -543,7 +543,7 @@ def _run_gate(args) -> int:
     if args.confidence is not None and not args.baseline:
         raise OptionError("`--confidence` applies to a baseline; give --baseline FILE too")
     if args.confidence is not None:
-        from foldcorr.analysis.uncertainty import check_level, check_resamples
+        from foldcorr.analysis.resampling import check_level, check_resamples
 
         check_level(args.confidence, name="--confidence")
         check_resamples(args.resamples, name="--resamples")
@@ -668,7 +668,7 @@ def _interval_settings(args) -> dict | None:
                 raise OptionError(f"`{flag}` needs `--ci LEVEL` (e.g. --ci 0.95); got {flag} "
                                   f"{value!r} without it")
         return None
-    from foldcorr.analysis.uncertainty import check_level, check_resamples
+    from foldcorr.analysis.resampling import check_level, check_resamples
 
     check_level(level, name="--ci")
     if resamples is not None:
@@ -752,7 +752,7 @@ def _run_compare(args) -> int:
 
     spec = PairSpec(truth=args.truth, pred_a=args.pred_a, pred_b=args.pred_b, pred=args.pred,
                     id=args.id, fold=args.fold, classes=args.classes)
-    from foldcorr.analysis.uncertainty import check_level, check_resamples
+    from foldcorr.analysis.resampling import check_level, check_resamples
 
     check_level(args.ci, name="--ci")
     check_resamples(args.resamples, name="--resamples")

@@ -445,7 +445,8 @@ def _drop_interval(ev, baseline, shared, rules: GateRules, samples, baseline_sam
         if order is None:
             notes.append(f"unpaired comparison: {reason}")
         else:
-            from foldcorr.analysis.compare import compare_models, joint_tally
+            from foldcorr.analysis.compare import compare_models
+            from foldcorr.tensor import joint_tally
 
             truth = baseline_samples.actual
             pred_a, pred_b = baseline_samples.predicted, samples.predicted[order]

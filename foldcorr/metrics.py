@@ -29,6 +29,9 @@ from foldcorr.tensor import ACTUAL, CLASS, PREDICTED, validate_tensor
 __all__ = [
     "UNDEFINED_CHOICES",
     "SUMMARY_FIGURES",
+    "Sums",
+    "rk_parts",
+    "correlation",
     "rk",
     "mcc",
     "ovr_mcc",
@@ -50,8 +53,19 @@ UNDEFINED_CHOICES = ("zero", "nan")
 
 
 @dataclass(frozen=True)
-class _Sums:
-    """Float64 margins of a tensor in normal form, plus its labels."""
+class Sums:
+    """Float64 margins of a tensor in normal form, plus its labels.
+
+    The sums every figure is made of: total s, trace c, diagonal, row sums t_k
+    (``actual``) and column sums p_k (``predicted``), over any leading dims.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> s = Sums.of(confusion_tensor([[3, 1], [0, 4]], ["a", "b"]))
+    >>> float(s.total), float(s.trace), s.actual.tolist(), s.predicted.tolist()
+    (8.0, 7.0, [4.0, 4.0], [3.0, 5.0])
+    """
 
     tensor: xr.DataArray
     cells: np.ndarray  # (..., K, K)
@@ -62,7 +76,7 @@ class _Sums:
     predicted: np.ndarray  # (..., K) column sums p_k
 
     @classmethod
-    def of(cls, t) -> _Sums:
+    def of(cls, t) -> Sums:
         t = validate_tensor(t)
         cells = t.values.astype(np.float64)
         diag = np.diagonal(cells, axis1=-2, axis2=-1)
@@ -77,8 +91,8 @@ class _Sums:
         )
 
     def rk_parts(self):
-        """Numerator and denominator sums of R_K over the leading dims (see :func:`_rk_parts`)."""
-        return _rk_parts(self.trace, self.total, self.actual, self.predicted)
+        """Numerator and denominator sums of R_K over the leading dims (see :func:`rk_parts`)."""
+        return rk_parts(self.trace, self.total, self.actual, self.predicted)
 
     def spread_actual(self) -> np.ndarray:
         """b_k = t_k (s - t_k), per class."""
@@ -89,7 +103,7 @@ class _Sums:
         return self.predicted * (self.total[..., None] - self.predicted)
 
 
-def _rk_parts(trace, total, actual, predicted):
+def rk_parts(trace, total, actual, predicted):
     """R_K's numerator and denominator sums from margins (Gorodkin 2004).
 
     ``N = c s - sum_k t_k p_k``, ``D_p = sum_k p_k (s - p_k)`` and
@@ -98,6 +112,13 @@ def _rk_parts(trace, total, actual, predicted):
     ``actual`` and ``predicted`` with the class axis last), so counterfactual
     margins (a repaired or reduced matrix) go through the same formula. The
     sums p_k (s - p_k) keep their digits where s^2 - sum p_k^2 would cancel.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> num, dp, dt = rk_parts(7.0, 8.0, np.array([4.0, 4.0]), np.array([3.0, 5.0]))
+    >>> float(num), float(dp), float(dt)
+    (24.0, 30.0, 32.0)
     """
     s = np.asarray(total, dtype=np.float64)[..., None]
     num = trace * total - (actual * predicted).sum(axis=-1)
@@ -106,12 +127,20 @@ def _rk_parts(trace, total, actual, predicted):
     return num, dp, dt
 
 
-def _correlation(num, dp, dt, undefined: str):
+def correlation(num, dp, dt, undefined: str):
     """num / sqrt(dp dt) clipped to [-1, 1], the convention where 0/0; and the 0/0 mask.
 
     The one correlation formula behind R_K, one-vs-rest MCC and every
     counterfactual R_K of :mod:`foldcorr.analysis.repair`. It does not warn; callers
     name where the value is undefined.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> value, bad = correlation(np.array([24.0, 1.0]), np.array([30.0, 0.0]),
+    ...                          np.array([32.0, 4.0]), "zero")
+    >>> value.round(4).tolist(), bad.tolist()
+    ([0.7746, 0.0], [False, True])
     """
     den = np.sqrt(np.maximum(dp, 0.0)) * np.sqrt(np.maximum(dt, 0.0))
     bad = den == 0
@@ -127,7 +156,7 @@ def _lead(t: xr.DataArray):
     return dims, coords
 
 
-def _wrap(sums: _Sums, values: np.ndarray, name: str, *, per_class: bool = False):
+def _wrap(sums: Sums, values: np.ndarray, name: str, *, per_class: bool = False):
     dims, coords = _lead(sums.tensor)
     if per_class:
         dims = [*dims, CLASS]
@@ -135,7 +164,7 @@ def _wrap(sums: _Sums, values: np.ndarray, name: str, *, per_class: bool = False
     return xr.DataArray(values, dims=dims, coords=coords, name=name)
 
 
-def _ratio(num, den, sums: _Sums, what: str, undefined: str, *, per_class=False):
+def _ratio(num, den, sums: Sums, what: str, undefined: str, *, per_class=False):
     """num / den with the undefined convention applied where den == 0."""
     check_choice("undefined", undefined, UNDEFINED_CHOICES)
     num, den = np.broadcast_arrays(np.asarray(num, float), np.asarray(den, float))
@@ -147,7 +176,7 @@ def _ratio(num, den, sums: _Sums, what: str, undefined: str, *, per_class=False)
     return out
 
 
-def _warn_undefined(sums: _Sums, bad: np.ndarray, what: str, undefined: str, *, per_class,
+def _warn_undefined(sums: Sums, bad: np.ndarray, what: str, undefined: str, *, per_class,
                     stacklevel: int = 4):
     dims, _ = _lead(sums.tensor)
     names = [*dims, CLASS] if per_class else dims
@@ -219,8 +248,8 @@ def rk(t, *, undefined: str = "zero") -> xr.DataArray:
     0.478091
     """
     check_choice("undefined", undefined, UNDEFINED_CHOICES)
-    s = _Sums.of(t)
-    out, bad = _correlation(*s.rk_parts(), undefined)
+    s = Sums.of(t)
+    out, bad = correlation(*s.rk_parts(), undefined)
     if bad.any():
         _warn_undefined(s, bad, "R_K", undefined, per_class=False, stacklevel=3)
     return _wrap(s, out, "rk")
@@ -267,9 +296,9 @@ def ovr_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
     [0.7, 0.6591, 0.7222]
     """
     check_choice("undefined", undefined, UNDEFINED_CHOICES)
-    s = _Sums.of(t)
+    s = Sums.of(t)
     num = s.total[..., None] * s.diag - s.actual * s.predicted
-    out, bad = _correlation(num, s.spread_predicted(), s.spread_actual(), undefined)
+    out, bad = correlation(num, s.spread_predicted(), s.spread_actual(), undefined)
     if bad.any():
         _warn_undefined(s, bad, "one-vs-rest MCC", undefined, per_class=True, stacklevel=3)
     return _wrap(s, out, "mcc", per_class=True)
@@ -315,7 +344,7 @@ def decompose(t, *, undefined: str = "zero") -> xr.Dataset:
     >>> round(float(d.drag.sum("class") + d.marginal_mismatch + d.rk), 12)
     1.0
     """
-    s = _Sums.of(t)
+    s = Sums.of(t)
     a, b = s.spread_predicted(), s.spread_actual()
     scale = np.sqrt(a.sum(axis=-1)) * np.sqrt(b.sum(axis=-1))
     defined = (scale > 0)[..., None]
@@ -348,7 +377,7 @@ def accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
     >>> float(accuracy(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
     0.75
     """
-    s = _Sums.of(t)
+    s = Sums.of(t)
     return _wrap(s, _ratio(s.trace, s.total, s, "accuracy", undefined), "accuracy")
 
 
@@ -361,7 +390,7 @@ def recall(t, *, undefined: str = "zero") -> xr.DataArray:
     >>> recall(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).values.tolist()
     [0.75, 0.75]
     """
-    s = _Sums.of(t)
+    s = Sums.of(t)
     out = _ratio(s.diag, s.actual, s, "recall", undefined, per_class=True)
     return _wrap(s, out, "recall", per_class=True)
 
@@ -375,7 +404,7 @@ def precision(t, *, undefined: str = "zero") -> xr.DataArray:
     >>> precision(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).round(4).values.tolist()
     [0.8571, 0.6]
     """
-    s = _Sums.of(t)
+    s = Sums.of(t)
     out = _ratio(s.diag, s.predicted, s, "precision", undefined, per_class=True)
     return _wrap(s, out, "precision", per_class=True)
 
@@ -389,7 +418,7 @@ def f1(t, *, undefined: str = "zero") -> xr.DataArray:
     >>> f1(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).round(4).values.tolist()
     [0.8, 0.6667]
     """
-    s = _Sums.of(t)
+    s = Sums.of(t)
     out = _ratio(2 * s.diag, s.actual + s.predicted, s, "F1", undefined, per_class=True)
     return _wrap(s, out, "f1", per_class=True)
 
@@ -408,7 +437,7 @@ def balanced_accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
     >>> float(balanced_accuracy(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
     0.75
     """
-    s = _Sums.of(t)
+    s = Sums.of(t)
     with np.errstate(divide="ignore", invalid="ignore"):
         per_class = s.diag / s.actual
     out = _present_mean(per_class, s.actual > 0, s, "balanced accuracy", undefined)
@@ -424,7 +453,7 @@ def macro_f1(t, *, undefined: str = "zero") -> xr.DataArray:
     >>> round(float(macro_f1(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))), 4)
     0.7333
     """
-    s = _Sums.of(t)
+    s = Sums.of(t)
     present = (s.actual + s.predicted) > 0
     with np.errstate(divide="ignore", invalid="ignore"):
         per_class = 2 * s.diag / (s.actual + s.predicted)
@@ -441,7 +470,7 @@ def macro_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
     >>> round(float(macro_mcc(t)), 4)
     0.6938
     """
-    s = _Sums.of(t)
+    s = Sums.of(t)
     per_class = ovr_mcc(s.tensor, undefined=undefined).values
     present = (s.actual + s.predicted) > 0
     return _wrap(s, _present_mean(per_class, present, s, "macro MCC", undefined), "macro_mcc")
@@ -456,7 +485,7 @@ def cohen_kappa(t, *, undefined: str = "zero") -> xr.DataArray:
     >>> round(float(cohen_kappa(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))), 6)
     0.470588
     """
-    s = _Sums.of(t)
+    s = Sums.of(t)
     chance = (s.actual * s.predicted).sum(axis=-1)
     out = _ratio(s.trace * s.total - chance, s.total**2 - chance, s, "Cohen's kappa", undefined)
     return _wrap(s, out, "kappa")
@@ -525,7 +554,7 @@ def top_confusion(t) -> xr.Dataset:
     >>> top.top_confusion.values[:2].tolist(), top.top_confusion_count.values.tolist()
     (['b', 'c'], [1, 1, 0])
     """
-    s = _Sums.of(t)
+    s = Sums.of(t)
     k = s.cells.shape[-1]
     off = np.where(np.eye(k, dtype=bool), -1, s.tensor.values)
     index = off.argmax(axis=-1)

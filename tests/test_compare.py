@@ -19,7 +19,8 @@ from scipy import stats
 from sklearn.metrics import confusion_matrix, matthews_corrcoef
 
 import foldcorr as fc
-from foldcorr.analysis.compare import _permutation_draws, model_tensors, validate_joint
+from foldcorr.analysis.compare import _permutation_draws
+from foldcorr.tensor import model_tensors, validate_joint
 from foldcorr.errors import InvalidInputError, InvalidTensorError, OptionError
 from foldcorr.tensor import tally
 
@@ -68,8 +69,11 @@ def test_validate_joint_refuses_malformed_tensors():
         validate_joint(j.rename(predicted_b="other"))
     with pytest.raises(InvalidTensorError, match=r"class coordinates of 'actual' and 'predicted_b' differ"):
         validate_joint(j.assign_coords(predicted_b=[5, 6]))
+    with pytest.raises(InvalidTensorError, match=r"joint counts must be non-negative"):
+        validate_joint(-j)
+    assert validate_joint(j * 0.5).dtype == np.float64  # sums of weights are a joint tensor
     with pytest.raises(InvalidTensorError, match=r"needs whole counts"):
-        validate_joint(j * 0.5)
+        fc.compare_models(j * 0.5)
 
 
 def test_figures_match_sklearn_per_model_per_class_and_per_fold():

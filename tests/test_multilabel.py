@@ -7,7 +7,8 @@ import pytest
 from sklearn.metrics import matthews_corrcoef, multilabel_confusion_matrix
 
 from foldcorr.errors import InvalidInputError, UndefinedMetricWarning
-from foldcorr.analysis.multilabel import evaluate_multilabel, indicators_from_sets, multilabel_tally
+from foldcorr.analysis.multilabel import evaluate_multilabel
+from foldcorr.tensor import indicators_from_sets, multilabel_tally
 
 
 def _random(n=300, n_labels=7, seed=0):

@@ -21,6 +21,7 @@ from hypothesis import strategies as st
 from scipy.stats import rankdata
 from sklearn.metrics import matthews_corrcoef
 
+from foldcorr.analysis import gains as repair_gains
 from foldcorr.analysis import repair
 from foldcorr.errors import InvalidTensorError, OptionError, UndefinedMetricWarning
 from foldcorr.metrics import decompose
@@ -59,7 +60,7 @@ def quiet(fn, *args, **kw):
 def test_pair_gains_equal_relabelled_reference(cells):
     k = len(cells)
     t = confusion_tensor(cells, [f"c{i}" for i in range(k)])
-    gains = quiet(repair.pair_gains, t).values
+    gains = quiet(repair_gains.pair_gains, t).values
     a, p = samples(cells)
     base = reference(a, p)
     for i in range(k):
@@ -74,8 +75,8 @@ def test_pair_gains_equal_relabelled_reference(cells):
 def test_class_gains_and_leave_out_equal_relabelled_reference(cells):
     k = len(cells)
     t = confusion_tensor(cells, list(range(k)))
-    g = quiet(repair.class_gains, t)
-    out = quiet(repair.leave_class_out, t).values
+    g = quiet(repair_gains.class_gains, t)
+    out = quiet(repair_gains.leave_class_out, t).values
     a, p = samples(cells)
     base = reference(a, p)
     for c in range(k):
@@ -96,24 +97,24 @@ def test_functions_broadcast_over_leading_dims(stack):
     k = cells.shape[-1]
     t = confusion_tensor(cells, list(range(k)), leading={"fold": list(range(len(stack)))})
     whole = {name: quiet(fn, t) for name, fn in
-             (("pair", repair.pair_gains), ("out", repair.leave_class_out))}
-    fix = quiet(repair.class_gains, t)
+             (("pair", repair_gains.pair_gains), ("out", repair_gains.leave_class_out))}
+    fix = quiet(repair_gains.class_gains, t)
     for f in range(len(stack)):
         one = t.isel(fold=f)
-        np.testing.assert_allclose(whole["pair"].isel(fold=f), quiet(repair.pair_gains, one))
-        np.testing.assert_allclose(whole["out"].isel(fold=f), quiet(repair.leave_class_out, one))
+        np.testing.assert_allclose(whole["pair"].isel(fold=f), quiet(repair_gains.pair_gains, one))
+        np.testing.assert_allclose(whole["out"].isel(fold=f), quiet(repair_gains.leave_class_out, one))
         np.testing.assert_allclose(fix.gain_fix_both.isel(fold=f),
-                                   quiet(repair.class_gains, one).gain_fix_both)
+                                   quiet(repair_gains.class_gains, one).gain_fix_both)
 
 
 def test_labels_and_dims():
     t = confusion_tensor([[5, 1, 0], [2, 6, 0], [0, 3, 3]], ["a", "b", "c"])
-    g = repair.pair_gains(t)
+    g = repair_gains.pair_gains(t)
     assert g.dims == ("actual", "predicted") and g.name == "gain"
     assert g.coords["actual"].values.tolist() == ["a", "b", "c"]
     assert np.all(np.diag(g.values) == 0)  # moving nothing gains nothing
-    assert repair.class_gains(t).gain_fix_fn.dims == ("class",)
-    assert repair.leave_class_out(t).coords["class"].values.tolist() == ["a", "b", "c"]
+    assert repair_gains.class_gains(t).gain_fix_fn.dims == ("class",)
+    assert repair_gains.leave_class_out(t).coords["class"].values.tolist() == ["a", "b", "c"]
 
 
 def test_undefined_after_repair_follows_the_convention():
@@ -121,10 +122,10 @@ def test_undefined_after_repair_follows_the_convention():
     # (a, b) to (a, a) leaves every prediction 'a': R_K is 0/0 after the repair.
     t = confusion_tensor([[0, 3], [2, 0]], ["a", "b"])
     with pytest.warns(UndefinedMetricWarning, match=r"after moving.*actual='a' predicted='b'"):
-        zero = repair.pair_gains(t)
+        zero = repair_gains.pair_gains(t)
     assert float(zero.sel(actual="a", predicted="b")) == pytest.approx(1.0)  # -1 -> 0.0
     with pytest.warns(UndefinedMetricWarning, match=r"taken as NaN"):
-        nan = repair.pair_gains(t, undefined="nan")
+        nan = repair_gains.pair_gains(t, undefined="nan")
     assert np.isnan(float(nan.sel(actual="a", predicted="b")))
     # the other cell is the mirror case (every prediction 'b' afterwards)
     assert np.isnan(float(nan.sel(actual="b", predicted="a")))
@@ -134,12 +135,12 @@ def test_undefined_after_repair_follows_the_convention():
 def test_one_class_has_nothing_to_repair():
     t = confusion_tensor([[7]], ["only"])
     with pytest.warns(UndefinedMetricWarning, match="before repair"):
-        g = repair.pair_gains(t)
+        g = repair_gains.pair_gains(t)
     assert g.values.tolist() == [[0.0]]
     ra = repair.repair_analysis(t)
     assert any("one class" in w for w in ra.warnings)
     assert ra.confusions.sizes["rank"] == 0 and ra.confusion_rows() == []
-    assert quiet(repair.class_gains, t, undefined="nan").gain_fix_fn.isnull().all()
+    assert quiet(repair_gains.class_gains, t, undefined="nan").gain_fix_fn.isnull().all()
 
 
 def test_class_without_support_is_defined():
@@ -147,7 +148,7 @@ def test_class_without_support_is_defined():
     # fixing its false positives moves its column to the diagonal.
     cells = np.array([[4, 1, 1], [0, 5, 2], [0, 0, 0]])
     t = confusion_tensor(cells, ["a", "b", "c"])
-    g = repair.class_gains(t)
+    g = repair_gains.class_gains(t)
     assert float(g.gain_fix_fn.sel({"class": "c"})) == 0.0
     a, p = samples(cells)
     expected = reference(a, np.where(p == 2, a, p)) - reference(a, p)
@@ -158,15 +159,15 @@ def test_costliest_confusions_rank_every_nonempty_cell():
     rng = np.random.default_rng(3)
     cells = rng.integers(0, 6, (7, 7))
     t = confusion_tensor(cells, list("abcdefg"))
-    gains = repair.pair_gains(t).values
-    everything = repair.costliest_confusions(t, top=None)
+    gains = repair_gains.pair_gains(t).values
+    everything = repair_gains.costliest_confusions(t, top=None)
     off = [(i, j) for i in range(7) for j in range(7) if i != j and cells[i, j] > 0]
     assert everything.sizes["rank"] == len(off)
     expected = sorted(off, key=lambda ij: (-gains[ij], -cells[ij], ij))
     got = list(zip(everything.actual.values, everything.predicted.values))
     assert got == [("abcdefg"[i], "abcdefg"[j]) for i, j in expected]
     assert np.all(np.diff(everything.gain.values) <= 1e-15)
-    top3 = repair.costliest_confusions(t, top=3)
+    top3 = repair_gains.costliest_confusions(t, top=3)
     assert top3.sizes["rank"] == 3 and top3.actual.values.tolist() == list(
         everything.actual.values[:3])
 
@@ -175,12 +176,12 @@ def test_costliest_confusions_rank_every_nonempty_cell():
 def test_costliest_confusions_reject_bad_top(bad):
     t = confusion_tensor([[1, 1], [1, 1]], [0, 1])
     with pytest.raises(OptionError, match=r"`top` must be a positive whole number or None; got"):
-        repair.costliest_confusions(t, top=bad)
+        repair_gains.costliest_confusions(t, top=bad)
 
 
 def test_costliest_confusions_pad_across_leading_dims():
     t = confusion_tensor([[[3, 1], [0, 2]], [[3, 1], [2, 2]]], ["a", "b"], leading={"fold": [1, 2]})
-    c = repair.costliest_confusions(t)
+    c = repair_gains.costliest_confusions(t)
     assert dict(c.sizes) == {"fold": 2, "rank": 2}
     first = c.actual.sel(fold=1).values
     assert first[0] == "a" and pd.isna(first[1])
@@ -222,7 +223,7 @@ def test_repair_analysis_gathers_everything():
     assert set(ra.per_class.data_vars) >= {"gain_fix_fn", "gain_fix_fp", "gain_fix_both",
                                            "leave_out_delta", "top_folds", "drag_sd"}
     pooled = t.sum("fold")
-    xr.testing.assert_allclose(ra.pair_gain, repair.pair_gains(pooled))
+    xr.testing.assert_allclose(ra.pair_gain, repair_gains.pair_gains(pooled))
     assert ra.rk == pytest.approx(reference(*samples(pooled.values)))
     with pytest.raises(InvalidTensorError, match="select or pool"):
         repair.repair_analysis(t.expand_dims(model=["m"]))
@@ -261,9 +262,9 @@ def test_repairs_match_exact_arithmetic_on_a_dominant_class():
     for k in range(3):
         keep = [i for i in range(3) if i != k]
         expected = _exact_rk(counts[np.ix_(keep, keep)]) - before
-        got = float(repair.leave_class_out(t).isel({"class": k}))
+        got = float(repair_gains.leave_class_out(t).isel({"class": k}))
         assert abs(got - expected) < 1e-12, (k, got, expected)
-    gains = repair.pair_gains(t).values
+    gains = repair_gains.pair_gains(t).values
     for i in range(3):
         for j in range(3):
             if i != j:

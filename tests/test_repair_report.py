@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from foldcorr.analysis import gains as repair_gains
 from foldcorr.analysis import repair
 from foldcorr.cli import main
 from foldcorr.evaluation import evaluate
@@ -45,7 +46,7 @@ def test_json_has_confusions_and_per_class_repair_keys():
             assert entry[key] == pytest.approx(float(ra.per_class[key].sel({"class": label})))
         assert entry["top5_folds"] == int(ra.per_class["top_folds"].sel({"class": label}))
     # the costliest confusion of the document is the largest pair gain of the pooled tensor
-    gains = repair.pair_gains(t.sum("fold"))
+    gains = repair_gains.pair_gains(t.sum("fold"))
     best = doc["confusions"][0]
     assert best["gain"] == pytest.approx(float(gains.max()))
     assert best["gain"] == pytest.approx(float(gains.sel(actual=best["actual"],

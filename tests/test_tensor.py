@@ -166,3 +166,14 @@ def test_integer_folds_with_gaps_keep_only_folds_that_occur():
     weighted = tally([0, 1, 1], [0, 1, 0], folds=[2, 2, 5], weights=[1.0, 0.0, 0.0])
     assert weighted.coords["fold"].values.tolist() == [2, 5]  # zero weight still occurs
     assert weighted.sel(fold=5).values.sum() == 0.0
+
+
+def test_the_tensor_package_offers_every_public_name_of_its_modules():
+    import foldcorr.tensor as tensor
+    from foldcorr.tensor import counting, dims, joint, multilabel, samples
+
+    for module in (dims, counting, joint, multilabel, samples):
+        for name in module.__all__:
+            assert getattr(tensor, name) is getattr(module, name), (module.__name__, name)
+    assert sorted(tensor.__all__) == sorted(
+        n for m in (dims, counting, joint, multilabel, samples) for n in m.__all__)

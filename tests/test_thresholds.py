@@ -128,7 +128,7 @@ def test_fast_curve_mcc_equals_metrics_mcc():
 
 def test_blocked_search_equals_searchsorted():
     # numpy.searchsorted is the reference for the blocked search used on long arrays
-    from foldcorr.analysis.thresholds import _locate
+    from foldcorr.analysis.score_counts import _locate
 
     rng = np.random.default_rng(12)
     values = np.sort(np.round(rng.random(50_000), 3))
@@ -224,7 +224,7 @@ def test_sweep_equals_a_straightforward_reference(rows):
 def test_wide_mixed_sign_scores_are_sorted_in_two_parts():
     # scores whose integer keys span more than 2**63 take the two-part path of the packed sort;
     # the curve must still equal the direct count (common practice: admit every score >= t)
-    from foldcorr.analysis.thresholds import _sort_with_truth
+    from foldcorr.analysis.score_counts import _sort_with_truth
 
     rng = np.random.default_rng(13)
     s = np.concatenate([rng.normal(size=120) * 1e200, [-0.0, 0.0, 1e308, -1e308]])

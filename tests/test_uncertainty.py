@@ -25,7 +25,7 @@ import foldcorr as fc
 # `foldcorr.tensor` names both a module and a function; import the function directly
 from foldcorr.tensor import confusion_tensor, tally
 from foldcorr.errors import InvalidTensorError, OptionError, UndefinedMetricWarning
-from foldcorr.analysis.uncertainty import _jack_moments
+from foldcorr.analysis.resampling import jackknife_moments
 
 
 def _labels(rng, n, k, acc):
@@ -128,7 +128,7 @@ def test_cell_jackknife_equals_per_sample_jackknife():
     a_ref = (d**3).sum() / (6 * (d**2).sum() ** 1.5)
     t = tally(truth, pred)
     est = fc.rk(t)
-    num, den = _jack_moments(t, fc.rk, True, est, "R_K")
+    num, den = jackknife_moments(t, fc.rk, True, est, "R_K")
     assert float(num) / (6 * float(den) ** 1.5) == pytest.approx(a_ref, rel=1e-9)
 
 

@@ -1,8 +1,9 @@
 r"""The analysis layer: two models scored on the same samples, compared pair by pair.
 
-The joint tensor counts samples by (fold, actual, predicted by A, predicted by
-B). Both models' confusion tensors are its margins, so everything about the
-pair lives in its cells:
+The joint tensor (:func:`foldcorr.tensor.joint_tally`) counts samples by
+(fold, actual, predicted by A, predicted by B). Both models' confusion tensors
+are its margins, so everything about the pair lives in its cells (resampled,
+and intervals read, with :mod:`foldcorr.analysis.resampling`):
 
 - the *paired bootstrap* resamples the joint cells (stratified by fold), which
   keeps each sample's two predictions together, and reads the difference of R_K
@@ -24,150 +25,20 @@ from functools import partial
 import numpy as np
 import xarray as xr
 
-from foldcorr.errors import (
-    InvalidTensorError,
-    UndefinedMetricWarning,
-    check_choice,
-)
+from foldcorr.errors import UndefinedMetricWarning, check_choice
 from foldcorr.metrics import ovr_mcc, rk
-from foldcorr.tensor import ACTUAL, FOLD, PREDICTED
-from foldcorr.tensor import COUNT, tally_columns, validate_tensor
-from foldcorr.analysis.uncertainty import (
+from foldcorr.tensor import ACTUAL, FOLD, JOINT_DIMS, PREDICTED, model_tensors, validate_joint
+from foldcorr.analysis.resampling import (
     RESAMPLE,
-    _blocks,
-    _interval,
-    _Strata,
+    Strata,
     check_level,
     check_resamples,
+    interval,
+    resample_blocks,
     whole_counts,
 )
 
-__all__ = [
-    "PREDICTED_A",
-    "PREDICTED_B",
-    "Comparison",
-    "joint_tally",
-    "validate_joint",
-    "model_tensors",
-    "compare_models",
-]
-
-PREDICTED_A = "predicted_a"
-PREDICTED_B = "predicted_b"
-JOINT_DIMS = (ACTUAL, PREDICTED_A, PREDICTED_B)
-
-
-def joint_tally(truth, pred_a, pred_b, *, folds=None, classes=None,
-                names=("truth", "pred_a", "pred_b")) -> xr.DataArray:
-    """Count (actual, prediction of A, prediction of B) triples into a joint tensor.
-
-    Parameters
-    ----------
-    truth, pred_a, pred_b : array_like
-        One label per sample; the two predictions are of the same samples.
-    folds : array_like, optional
-        One fold label per sample; adds a leading dim ``fold``.
-    classes : sequence, optional
-        Fixed class order; labels outside it are an error. Without it, every
-        label seen in any of the three arrays, sorted.
-    names : tuple of 3 str, default ("truth", "pred_a", "pred_b")
-        Names of ``truth``, ``pred_a`` and ``pred_b`` used in messages, e.g.
-        the table's column names.
-
-    Returns
-    -------
-    xarray.DataArray
-        Int64 counts named ``count``, dims ``([fold,] actual, predicted_a,
-        predicted_b)``, the same class coordinate on the three class dims.
-
-    Raises
-    ------
-    InvalidInputError
-        On arrays of different length, missing labels or labels outside
-        ``classes``.
-
-    Notes
-    -----
-    Counted by :func:`foldcorr.tensor.tally_columns`: one factorisation codes
-    the three columns over one class list, and one ``numpy.bincount`` over
-    ``((fold K + actual) K + a) K + b`` counts them.
-    The tensor is dense: K^3 cells per fold.
-
-    Examples
-    --------
-    >>> j = joint_tally(["x", "x", "y"], ["x", "y", "y"], ["x", "x", "x"])
-    >>> j.dims
-    ('actual', 'predicted_a', 'predicted_b')
-    >>> int(j.sel(actual="x", predicted_a="y", predicted_b="x"))
-    1
-    """
-    columns = {ACTUAL: (names[0], truth), PREDICTED_A: (names[1], pred_a),
-               PREDICTED_B: (names[2], pred_b)}
-    leading = {} if folds is None else {FOLD: folds}
-    return tally_columns(columns, leading=leading, classes=classes)
-
-
-def validate_joint(j) -> xr.DataArray:
-    """Check a joint tensor and return it in normal form.
-
-    Normal form: dims ``([fold,] actual, predicted_a, predicted_b)``, the same
-    class coordinate on the three class dims, whole non-negative int64 counts.
-
-    Raises
-    ------
-    InvalidTensorError
-        On other dims, differing class coordinates, or counts that are
-        negative or not whole.
-
-    Examples
-    --------
-    >>> j = joint_tally([0, 1], [0, 1], [1, 1], folds=["f1", "f2"])
-    >>> validate_joint(j).dims
-    ('fold', 'actual', 'predicted_a', 'predicted_b')
-    """
-    if not isinstance(j, xr.DataArray):
-        raise InvalidTensorError(
-            f"a joint tensor must be an xarray.DataArray; got {type(j).__name__!r}")
-    missing = [d for d in JOINT_DIMS if d not in j.dims]
-    other = [d for d in j.dims if d not in (*JOINT_DIMS, FOLD)]
-    if missing or other:
-        raise InvalidTensorError(
-            f"a joint tensor has dims ([fold,] {', '.join(JOINT_DIMS)}); got {j.dims!r}")
-    lead = [FOLD] if FOLD in j.dims else []
-    j = j.transpose(*lead, *JOINT_DIMS)
-    k = j.sizes[ACTUAL]
-    if j.sizes[PREDICTED_A] != k or j.sizes[PREDICTED_B] != k:
-        raise InvalidTensorError(
-            f"the three class dims of a joint tensor must have one size; got {j.shape[-3:]!r}")
-    ref = j.coords[ACTUAL].values if ACTUAL in j.coords else np.arange(k)
-    for d in JOINT_DIMS:
-        got = j.coords[d].values if d in j.coords else np.arange(k)
-        if not np.array_equal(got, ref):
-            raise InvalidTensorError(
-                f"the class coordinates of {ACTUAL!r} and {d!r} differ: {ref.tolist()!r} "
-                f"and {got.tolist()!r}")
-    j = j.assign_coords({d: ref for d in JOINT_DIMS})
-    values = np.asarray(j.values)
-    if not np.issubdtype(values.dtype, np.number) or (values < 0).any():
-        raise InvalidTensorError("joint counts must be non-negative numbers")
-    j = whole_counts(j, what="the paired comparison")
-    return j.rename(COUNT)
-
-
-def model_tensors(j) -> tuple[xr.DataArray, xr.DataArray]:
-    """Each model's confusion tensor: the margins of the joint tensor.
-
-    Examples
-    --------
-    >>> j = joint_tally(["x", "x", "y"], ["x", "y", "y"], ["x", "x", "x"])
-    >>> a, b = model_tensors(j)
-    >>> a.values.tolist(), b.values.tolist()
-    ([[1, 1], [0, 1]], [[2, 0], [1, 0]])
-    """
-    j = validate_joint(j)
-    a = j.sum(PREDICTED_B).rename({PREDICTED_A: PREDICTED})
-    b = j.sum(PREDICTED_A).rename({PREDICTED_B: PREDICTED})
-    return validate_tensor(a), validate_tensor(b)
+__all__ = ["Comparison", "compare_models"]
 
 
 @dataclass(frozen=True)
@@ -247,7 +118,7 @@ class _Cells:
 
     def __init__(self, j: xr.DataArray):
         self.k = j.sizes[ACTUAL]
-        self.strata = _Strata.of(j, JOINT_DIMS)
+        self.strata = Strata.of(j, JOINT_DIMS)
         index = np.where(self.strata.index >= self.k**3, 0, self.strata.index)
         self.actual = index // (self.k * self.k)
         self.a = (index // self.k) % self.k
@@ -277,7 +148,7 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     Parameters
     ----------
     joint : xarray.DataArray
-        Joint tensor from :func:`joint_tally`.
+        Joint tensor from :func:`foldcorr.tensor.joint_tally`.
     n_resamples : int, default 2000
         Paired bootstrap resamples (at least 100).
     level : float, default 0.95
@@ -330,6 +201,7 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     >>> truth = rng.integers(0, 3, 400)
     >>> a = np.where(rng.random(400) < 0.5, truth, rng.integers(0, 3, 400))
     >>> b = np.where(rng.random(400) < 0.9, truth, rng.integers(0, 3, 400))
+    >>> from foldcorr.tensor import joint_tally
     >>> c = compare_models(joint_tally(truth, a, b), n_resamples=500, seed=1)
     >>> c.difference > 0, c.ci[0] > 0, c.p_value < 0.01, c.better
     (True, True, True, 'b')
@@ -339,7 +211,7 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     n_perm = n if n_permutations is None else check_resamples(n_permutations,
                                                               name="n_permutations")
     check_choice("undefined", undefined, ("zero", "nan"))
-    j = validate_joint(joint)
+    j = whole_counts(validate_joint(joint), what="the paired comparison")
     stat_rk = partial(rk, undefined=undefined)
     stat_mcc = partial(ovr_mcc, undefined=undefined)
     rng = np.random.default_rng(seed)
@@ -365,10 +237,10 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     tol = 1e-12 * max(1.0, abs(difference))
     p_value = (1 + int(np.sum(np.abs(perm) >= abs(difference) - tol))) / (1 + n_perm)
     est = xr.DataArray(difference)
-    low, high, undefined_mask = _interval(d_rk, est, level, "percentile")
+    low, high, undefined_mask = interval(d_rk, est, level, "percentile")
     ci = (float(low), float(high))
     est_c = (mcc_b - mcc_a).rename("difference")
-    low_c, high_c, _ = _interval(d_mcc, est_c, level, "percentile")
+    low_c, high_c, _ = interval(d_mcc, est_c, level, "percentile")
     per_class = xr.Dataset({
         "mcc_a": mcc_a, "mcc_b": mcc_b, "difference": est_c,
         "low": est_c.copy(data=low_c), "high": est_c.copy(data=high_c),
@@ -376,7 +248,7 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     folds = None
     if fold_a is not None:
         est_f = (fold_b - fold_a).rename("difference")
-        low_f, high_f, _ = _interval(d_fold, est_f, level, "percentile")
+        low_f, high_f, _ = interval(d_fold, est_f, level, "percentile")
         folds = xr.Dataset({"rk_a": fold_a, "rk_b": fold_b, "difference": est_f,
                             "low": est_f.copy(data=low_f), "high": est_f.copy(data=high_f)})
     if undefined_mask.any():
@@ -398,7 +270,7 @@ def _paired_draws(j, rng, n, stat_rk, stat_mcc):
     k = cells.k
     per = cells.strata.index.shape[0] * k * k
     rks, mccs, folds = [], [], []
-    for size in _blocks(n, per):
+    for size in resample_blocks(n, per):
         ta, tb = cells.tensors(cells.strata.draw(rng, size), coords, lead)
         pa, pb = (ta.sum(FOLD), tb.sum(FOLD)) if lead else (ta, tb)
         rks.append(stat_rk(pb) - stat_rk(pa))
@@ -421,7 +293,7 @@ def _permutation_draws(j, rng, n, stat_rk, t_a, t_b) -> np.ndarray:
     base_b = (t_b.sum(FOLD) if FOLD in t_b.dims else t_b).values
     classes = pooled.coords[ACTUAL].values
     out = []
-    for size in _blocks(n, max(k * k, counts.size)):
+    for size in resample_blocks(n, max(k * k, counts.size)):
         swapped = rng.binomial(counts, 0.5, size=(size, counts.size))
         rows = np.arange(size)[:, None] * k * k
         into_b = (rows + i * k + b).ravel()

@@ -31,7 +31,8 @@ def verdict(c, labels=("A", "B")) -> str:
     Examples
     --------
     >>> import numpy as np
-    >>> from foldcorr.analysis.compare import compare_models, joint_tally
+    >>> from foldcorr.analysis.compare import compare_models
+    >>> from foldcorr.tensor import joint_tally
     >>> y = np.array([0, 1, 2] * 60)
     >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
     >>> verdict(c)[:26]
@@ -63,7 +64,8 @@ def compare_report(c, *, labels=("A", "B"), names=None, top: int | None = 20,
     Examples
     --------
     >>> import numpy as np
-    >>> from foldcorr.analysis.compare import compare_models, joint_tally
+    >>> from foldcorr.analysis.compare import compare_models
+    >>> from foldcorr.tensor import joint_tally
     >>> y = np.array([0, 1, 2] * 60)
     >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
     >>> [t.title for t in compare_report(c).tables]
@@ -131,7 +133,8 @@ def compare_dict(c, *, labels=("A", "B"), names=None, source: str | None = None)
     Examples
     --------
     >>> import numpy as np
-    >>> from foldcorr.analysis.compare import compare_models, joint_tally
+    >>> from foldcorr.analysis.compare import compare_models
+    >>> from foldcorr.tensor import joint_tally
     >>> y = np.array([0, 1, 2] * 60)
     >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
     >>> doc = compare_dict(c)
@@ -177,7 +180,8 @@ def render_compare(c, fmt: str, *, labels=("A", "B"), names=None, top: int | Non
     Examples
     --------
     >>> import numpy as np
-    >>> from foldcorr.analysis.compare import compare_models, joint_tally
+    >>> from foldcorr.analysis.compare import compare_models
+    >>> from foldcorr.tensor import joint_tally
     >>> y = np.array([0, 1, 2] * 60)
     >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
     >>> render_compare(c, "markdown").splitlines()[0]

@@ -34,7 +34,8 @@ def multilabel_report(ev: MultilabelEvaluation, *, top: int | None = 20,
 
     Examples
     --------
-    >>> from foldcorr.analysis.multilabel import evaluate_multilabel, multilabel_tally
+    >>> from foldcorr.analysis.multilabel import evaluate_multilabel
+    >>> from foldcorr.tensor import multilabel_tally
     >>> ev = evaluate_multilabel(multilabel_tally([[1, 0], [0, 1]], [[1, 0], [1, 1]],
     ...                                           labels=["gull", "tern"]))
     >>> [t.title for t in multilabel_report(ev).tables]
@@ -100,7 +101,8 @@ def multilabel_dict(ev: MultilabelEvaluation) -> dict:
 
     Examples
     --------
-    >>> from foldcorr.analysis.multilabel import evaluate_multilabel, multilabel_tally
+    >>> from foldcorr.analysis.multilabel import evaluate_multilabel
+    >>> from foldcorr.tensor import multilabel_tally
     >>> ev = evaluate_multilabel(multilabel_tally([[1, 0], [0, 1]], [[1, 0], [1, 1]],
     ...                                           labels=["gull", "tern"]))
     >>> doc = multilabel_dict(ev)
@@ -147,7 +149,8 @@ def render_multilabel(ev: MultilabelEvaluation, fmt: str, *, top: int | None = 2
 
     Examples
     --------
-    >>> from foldcorr.analysis.multilabel import evaluate_multilabel, multilabel_tally
+    >>> from foldcorr.analysis.multilabel import evaluate_multilabel
+    >>> from foldcorr.tensor import multilabel_tally
     >>> ev = evaluate_multilabel(multilabel_tally([[1, 0], [0, 1]], [[1, 0], [1, 1]]))
     >>> render_multilabel(ev, "markdown").splitlines()[0]
     '## foldcorr score (multilabel)'

@@ -18,7 +18,7 @@ import pandas as pd
 import xarray as xr
 
 from foldcorr.errors import InvalidInputError, OptionError
-from foldcorr.analysis.multilabel import indicators_from_sets, multilabel_tally
+from foldcorr.tensor import indicators_from_sets, multilabel_tally
 from foldcorr.sources.tables import read_table
 from foldcorr.tensor import FOLD
 

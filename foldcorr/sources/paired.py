@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from foldcorr.analysis.compare import joint_tally
+from foldcorr.tensor import joint_tally
 from foldcorr.errors import InvalidInputError
 from foldcorr.sources.tables import _as_text, _coerce_classes, _fail, read_table
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_columns

@@ -3,10 +3,19 @@
 A confusion tensor is an :class:`xarray.DataArray` named ``count`` with dims
 ``(..., "actual", "predicted")``; both class dims carry the same ordered class
 coordinate and every leading dim (``fold``, ``split``, ``model``, ``label``)
-is free. Nothing in this layer computes a metric.
+is free. The tensor kinds: multiclass (:mod:`~foldcorr.tensor.dims`,
+counted by :mod:`~foldcorr.tensor.counting`), multilabel
+(:mod:`~foldcorr.tensor.multilabel`) and joint (:mod:`~foldcorr.tensor.joint`);
+per-sample records are in :mod:`~foldcorr.tensor.samples`. Nothing in this
+layer computes a metric.
 """
 
-from foldcorr.tensor.core import *  # noqa: F401,F403
-from foldcorr.tensor.core import __all__ as _core_all
+from foldcorr.tensor import counting, dims, joint, multilabel, samples
+from foldcorr.tensor.counting import *  # noqa: F401,F403
+from foldcorr.tensor.dims import *  # noqa: F401,F403
+from foldcorr.tensor.joint import *  # noqa: F401,F403
+from foldcorr.tensor.multilabel import *  # noqa: F401,F403
+from foldcorr.tensor.samples import *  # noqa: F401,F403
 
-__all__ = list(_core_all)
+__all__ = [name for module in (dims, counting, multilabel, joint, samples)
+           for name in module.__all__]

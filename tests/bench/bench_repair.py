@@ -17,7 +17,7 @@ import time
 import numpy as np
 from _timing import best_of
 
-from foldcorr.analysis.repair import class_gains, leave_class_out, pair_gains
+from foldcorr.analysis.gains import class_gains, leave_class_out, pair_gains
 from foldcorr.tensor import confusion_tensor
 
 

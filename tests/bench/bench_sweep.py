@@ -40,7 +40,7 @@ def run(quick: bool = False) -> dict:
     """Time the sweep and the multilabel tally; print the ratios; return the figures."""
     from sklearn.metrics import matthews_corrcoef, multilabel_confusion_matrix
 
-    from foldcorr.analysis.multilabel import multilabel_tally
+    from foldcorr.tensor import multilabel_tally
     from foldcorr.analysis.thresholds import sweep
 
     n = 200_000 if quick else 10_000_000
