@@ -69,6 +69,8 @@ def test_tensor_in_memory_goes_through_the_same_pipeline(table):
         render_score(from_file, "json")
     with pytest.raises(OptionError, match="describe a file"):
         foldcorr.score(tensor, truth="y")
+    with pytest.raises(OptionError, match=r"unknown option 'ci'; expected table options .*'level'"):
+        foldcorr.score(table, ci=0.9)
 
 
 def test_analyses_can_be_chosen(table):
@@ -131,6 +133,11 @@ def test_command_line_passes_only_what_the_user_gave():
     assert not pipeline & set(vars(parser.parse_args(["score", "x.csv"])))
     assert not pipeline & set(vars(parser.parse_args(["gate", "x.csv"])))
     assert not {"top"} & set(vars(parser.parse_args(["show", "x.nc"])))
+    # the other verbs leave the defaults to the library too
+    assert not {"top", "undefined", "truth", "score", "fold"} & set(vars(parser.parse_args(
+        ["sweep", "x.csv"])))
+    assert not {"top", "undefined", "truth", "pred", "fold", "ci", "resamples"} & set(vars(
+        parser.parse_args(["compare", "x.csv", "--pred-a", "a", "--pred-b", "b"])))
 
 
 def test_saved_options_are_named_and_versioned(capsys, table, tmp_path):

@@ -77,13 +77,13 @@ def _add_output_options(p: argparse.ArgumentParser, formats=FORMATS) -> None:
                    help="write the report to FILE (replaced whole, never half-written)")
 
 
-def _add_report_options(p: argparse.ArgumentParser, *, pipeline: bool = False) -> None:
-    """Output options with ``--top`` and ``--undefined``: unset for the score pipeline."""
+def _add_report_options(p: argparse.ArgumentParser) -> None:
+    """Output options with ``--top`` and ``--undefined`` (unset unless given)."""
     _add_output_options(p)
     top, undefined = ScoreOptions.default("top"), ScoreOptions.default("undefined")
-    p.add_argument("--top", type=_top, default=UNSET if pipeline else top, metavar="N|all",
+    p.add_argument("--top", type=_top, default=UNSET, metavar="N|all",
                    help=f"per-class rows shown in text and Markdown (default: {top})")
-    p.add_argument("--undefined", choices=("zero", "nan"), default=UNSET if pipeline else undefined,
+    p.add_argument("--undefined", choices=("zero", "nan"), default=UNSET,
                    help=f"value of 0/0 metrics: zero or nan (null in JSON; default: {undefined})")
 
 
@@ -196,7 +196,7 @@ def get_parser() -> argparse.ArgumentParser:
                             "or a counts matrix")
     _add_table_options(score)
     _add_source_options(score)
-    _add_report_options(score, pipeline=True)
+    _add_report_options(score)
     _add_save_options(score)
     _add_analysis_options(score)
     _add_multilabel_options(score)
@@ -258,11 +258,11 @@ def get_parser() -> argparse.ArgumentParser:
                     "in-sample and, with folds, the threshold chosen on the other folds and "
                     "scored on each held-out fold.")
     sweep.add_argument("path", metavar="PATH", help="table of truth and scores")
-    sweep.add_argument("--truth", default="actual", metavar="COL",
+    sweep.add_argument("--truth", default=UNSET, metavar="COL",
                        help="binary truth column (default: actual)")
-    sweep.add_argument("--score", default="score", metavar="COL",
+    sweep.add_argument("--score", default=UNSET, metavar="COL",
                        help="score column (default: score)")
-    sweep.add_argument("--fold", default="auto", metavar="COL",
+    sweep.add_argument("--fold", default=UNSET, metavar="COL",
                        help="column of fold labels (default: 'fold' when present)")
     sweep.add_argument("--positive", metavar="VALUE",
                        help="truth value meaning positive (needed unless truth is 0/1 or "
@@ -292,7 +292,7 @@ def get_parser() -> argparse.ArgumentParser:
                       help="number of images (default: 24000)")
     demo.add_argument("--seed", type=int, default=20261201, metavar="S",
                       help="seed of the generator (default gives the bundled demo)")
-    _add_report_options(demo, pipeline=True)
+    _add_report_options(demo)
     _add_save_options(demo)
     _add_analysis_options(demo)
 
@@ -304,20 +304,20 @@ def get_parser() -> argparse.ArgumentParser:
     compare.add_argument("path", metavar="PATH", help="table with truth (and both predictions)")
     compare.add_argument("path_b", metavar="PATH_B", nargs="?",
                          help="second table with model B's predictions, joined on --id")
-    compare.add_argument("--truth", default="actual", metavar="COL",
+    compare.add_argument("--truth", default=UNSET, metavar="COL",
                          help="column of actual labels (default: actual)")
     compare.add_argument("--pred-a", metavar="COL", help="prediction column of model A")
     compare.add_argument("--pred-b", metavar="COL", help="prediction column of model B")
-    compare.add_argument("--pred", default="predicted", metavar="COL",
+    compare.add_argument("--pred", default=UNSET, metavar="COL",
                          help="prediction column of each of two tables (default: predicted)")
     compare.add_argument("--id", metavar="COL", help="id column joining two tables")
-    compare.add_argument("--fold", default="auto", metavar="COL",
+    compare.add_argument("--fold", default=UNSET, metavar="COL",
                          help="column of fold labels (default: 'fold' when present)")
     compare.add_argument("--classes", type=_class_list, metavar="A,B,...",
                          help="fixed class order; labels outside it are an error")
-    compare.add_argument("--ci", type=float, default=0.95, metavar="LEVEL",
+    compare.add_argument("--ci", type=float, default=UNSET, metavar="LEVEL",
                          help="level of the intervals (default: 0.95)")
-    compare.add_argument("--resamples", type=int, default=2000, metavar="B",
+    compare.add_argument("--resamples", type=int, default=UNSET, metavar="B",
                          help="paired bootstrap resamples (default: 2000, at least 100)")
     compare.add_argument("--permutations", type=int, metavar="P",
                          help="sign-flip permutations (default: as many as --resamples)")

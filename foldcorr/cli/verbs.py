@@ -14,7 +14,7 @@ import sys
 from foldcorr.cli.args import OPTION_OF_DEST, flag_names
 
 __all__ = ["VERBS", "EXIT_OK", "EXIT_FAILED", "EXIT_USAGE", "check_targets", "given_options",
-           "emit", "write_out"]
+           "present", "emit", "write_out"]
 
 EXIT_OK, EXIT_FAILED, EXIT_USAGE = 0, 1, 2
 
@@ -137,7 +137,7 @@ def run_gate(args) -> int:
     from foldcorr.report.text import render_rich
     from foldcorr.sources.floors import read_class_floors
 
-    given = {k: getattr(args, k) for k in ("resamples", "seed") if hasattr(args, k)}
+    given = present(args, ("resamples", "seed"))
     for flag, dest, does in (("--max-drop", "max_drop", "compares with"),
                              ("--confidence", "confidence", "applies to"),
                              ("--allow-new-classes", "allow_new_classes", "applies to")):
@@ -230,15 +230,14 @@ def _same_path(a, b) -> bool:
 
 
 def run_sweep(args) -> int:
-    from foldcorr.sources.multilabel import ScoreSpec, load_scores
     from foldcorr.analysis.thresholds import sweep
+    from foldcorr.sources.multilabel import ScoreSpec, load_scores
 
-    spec = ScoreSpec(truth=args.truth, score=args.score, truth_cols=args.truth_cols,
-                     score_cols=args.score_cols, truth_prefix=args.truth_prefix,
-                     score_prefix=args.score_prefix, fold=args.fold, positive=args.positive)
+    spec = ScoreSpec(**present(args, ("truth", "score", "truth_cols", "score_cols", "truth_prefix",
+                                      "score_prefix", "fold", "positive")))
     table = load_scores(args.path, spec)
     result = sweep(table.truth, table.scores, labels=table.labels, folds=table.folds,
-                   at=args.at, undefined=args.undefined)
+                   at=args.at, **present(args, ("undefined",)))
     if args.curve:
         from foldcorr.report.sweep import write_curve
 
@@ -250,39 +249,57 @@ def run_sweep(args) -> int:
         print(f"{len(paths)} figure(s) written to {args.plot}", file=sys.stderr)
     from foldcorr.report.sweep import sweep_dict, sweep_report
 
-    emit_report(args, sweep_report(result, top=args.top, source=table.source),
+    emit_report(args, sweep_report(result, **present(args, ("top",)), source=table.source),
                 lambda: sweep_dict(result, source=table.source))
     return EXIT_OK
 
 
+#: Options of ``compare`` given to :func:`foldcorr.analysis.compare.compare_models`, by flag.
+COMPARE_SETTINGS = {"ci": "level", "resamples": "n_resamples", "permutations": "n_permutations",
+                    "seed": "seed", "undefined": "undefined"}
+
+
 def run_compare(args) -> int:
     from foldcorr.analysis.compare import compare_models
-    from foldcorr.sources.paired import PairSpec, load_joint
+    from foldcorr.analysis.uncertainty import check_level, check_resamples
     from foldcorr.report.compare import compare_report, render_compare
     from foldcorr.report.text import render_rich
+    from foldcorr.sources.paired import PairSpec, load_joint
 
-    spec = PairSpec(truth=args.truth, pred_a=args.pred_a, pred_b=args.pred_b, pred=args.pred,
-                    id=args.id, fold=args.fold, classes=args.classes)
-    from foldcorr.analysis.uncertainty import check_level, check_resamples
-
-    check_level(args.ci, name="--ci")
-    check_resamples(args.resamples, name="--resamples")
-    if args.permutations is not None:
-        check_resamples(args.permutations, name="--permutations")
+    spec = PairSpec(**present(args, ("truth", "pred_a", "pred_b", "pred", "id", "fold", "classes")))
+    settings = {key: value for dest, key in COMPARE_SETTINGS.items()
+                if (value := getattr(args, dest, None)) is not None}
+    if "level" in settings:
+        check_level(settings["level"], name="--ci")
+    for dest in ("resamples", "permutations"):
+        if COMPARE_SETTINGS[dest] in settings:
+            check_resamples(settings[COMPARE_SETTINGS[dest]], name=f"--{dest}")
     joint = load_joint(args.path, spec, path_b=args.path_b)
-    result = compare_models(joint, n_resamples=args.resamples, level=args.ci, seed=args.seed,
-                            n_permutations=args.permutations, undefined=args.undefined)
+    result = compare_models(joint, **settings)
     if args.path_b is None:
-        names = (f"column {args.pred_a!r}", f"column {args.pred_b!r}")
+        names = (f"column {spec.pred_a!r}", f"column {spec.pred_b!r}")
     else:
         from pathlib import Path
 
-        names = (f"{Path(args.path).name}, column {args.pred_a or args.pred!r}",
-                 f"{Path(args.path_b).name}, column {args.pred_b or args.pred!r}")
+        names = (f"{Path(args.path).name}, column {spec.pred_a or spec.pred!r}",
+                 f"{Path(args.path_b).name}, column {spec.pred_b or spec.pred!r}")
     source = joint.attrs.get("source")
-    emit(args, lambda fmt: render_compare(result, fmt, names=names, top=args.top, source=source),
-         lambda: render_rich(compare_report(result, names=names, top=args.top, source=source)))
+    top = present(args, ("top",))
+    emit(args, lambda fmt: render_compare(result, fmt, names=names, **top, source=source),
+         lambda: render_rich(compare_report(result, names=names, **top, source=source)))
     return EXIT_OK
+
+
+def present(args, names) -> dict:
+    """The arguments among ``names`` that are in the namespace (given, or defaulting to None).
+
+    Examples
+    --------
+    >>> import argparse
+    >>> present(argparse.Namespace(truth="y"), ("truth", "fold"))
+    {'truth': 'y'}
+    """
+    return {name: getattr(args, name) for name in names if hasattr(args, name)}
 
 
 def _console():

@@ -248,7 +248,11 @@ def score(source, *, names: Mapping | None = None, **options):
     >>> ev.fold_summary.count, ev.undefined
     (2, 'nan')
     """
-    keys = {f.name for f in fields(ScoreOptions)}
+    keys = [f.name for f in fields(ScoreOptions)]
+    unknown = sorted(set(options) - set(keys) - set(TABLE_OPTIONS))
+    if unknown:
+        raise OptionError(f"unknown option {unknown[0]!r}; expected table options "
+                          f"{list(TABLE_OPTIONS)!r} or options of ScoreOptions {keys!r}")
     given = {k: v for k, v in options.items() if k in keys}
     table = {k: v for k, v in options.items() if k not in keys}
     _check_multilabel(table, given, option_namer(names))
