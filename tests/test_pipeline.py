@@ -92,7 +92,7 @@ def test_multilabel_goes_through_the_same_call(capsys, tmp_path):
 
     ev = foldcorr.score(path, truth_prefix="y_", pred_prefix="p_")
     assert code == 0 and dumps(multilabel_dict(ev)) == printed
-    with pytest.raises(OptionError, match="prevalence applies to multiclass scoring"):
+    with pytest.raises(OptionError, match="`prevalence` applies to multiclass scoring"):
         foldcorr.score(path, truth_prefix="y_", pred_prefix="p_", prevalence="uniform")
 
 
@@ -123,7 +123,7 @@ def test_options_take_the_library_defaults():
 def test_command_line_passes_only_what_the_user_gave():
     parser = get_parser()
     assert given_options(parser.parse_args(["score", "x.csv"])) == {}
-    assert given_options(parser.parse_args(["demo"])) == {"seed": 20261201}  # the demo's data seed
+    assert given_options(parser.parse_args(["demo"])) == {}
     args = parser.parse_args(["score", "x.csv", "--top", "all", "--resamples", "300",
                               "--truth", "y", "--matrix"])
     assert given_options(args) == {"top": None, "n_resamples": 300, "truth": "y", "matrix": True}
@@ -188,3 +188,21 @@ def test_gate_reads_saved_and_table_sources_through_the_pipeline(capsys, table, 
     code, printed, _ = run(capsys, "gate", table, "--baseline", out, "--max-drop", "0",
                            "--format", "json")
     assert code == 0 and json.loads(printed)["passed"] is True
+
+
+@pytest.mark.parametrize("argv, message", [
+    (["--truth-prefix", "y_", "--pred-prefix", "p_", "--matrix"],
+     "`--matrix` reads a multiclass counts matrix"),
+    (["--truth-prefix", "y_", "--pred-prefix", "p_", "--prevalence", "uniform"],
+     "`--prevalence` applies to multiclass scoring"),
+    (["--truth-prefix", "y_", "--pred-prefix", "p_", "--plot", "."],
+     "`--plot` applies to multiclass scoring"),
+    (["--truth-prefix", "y_", "--pred-prefix", "p_", "--engine", "dask"],
+     "`--engine` and `--skip-bad-files` apply to multiclass scoring"),
+    (["--scheduler", "tcp://127.0.0.1:1"], "`--scheduler` needs `--engine dask`; got --engine 'local'"),
+    (["--matrix", "--where", "fold == 1"],
+     "`--where` and `--engine` apply to prediction tables, not to `--matrix`"),
+])
+def test_options_that_do_not_combine_exit_2_with_flag_names(capsys, table, argv, message):
+    code, out, err = run(capsys, "score", table, *argv)
+    assert code == 2 and out == "" and err.count("\n") == 1 and message in err

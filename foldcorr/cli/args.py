@@ -288,9 +288,9 @@ def get_parser() -> argparse.ArgumentParser:
                                         "5 folds) to a folder and score it.")
     demo.add_argument("--out", metavar="DIR",
                       help="folder for the demo files (default: a new temporary folder)")
-    demo.add_argument("--samples", type=int, default=24_000, metavar="N",
+    demo.add_argument("--samples", type=int, default=UNSET, metavar="N",
                       help="number of images (default: 24000)")
-    demo.add_argument("--seed", type=int, default=20261201, metavar="S",
+    demo.add_argument("--seed", type=int, default=UNSET, metavar="S",
                       help="seed of the generator (default gives the bundled demo)")
     _add_report_options(demo)
     _add_save_options(demo)

@@ -60,8 +60,8 @@ def run_score(args) -> int:
     if any(key in given for key in MULTILABEL_OPTIONS):
         for flag in ("plot", "save"):
             if getattr(args, flag, None) is not None:
-                raise OptionError(f"--{flag} applies to multiclass scoring; it does not combine "
-                                  "with the multilabel flags")
+                raise OptionError(f"`--{flag}` applies to multiclass scoring; it does not combine "
+                                  "with the multilabel options")
     options, table = _split(given)
     _check_save(args, args.path)
     ev = score(args.path, names=flag_names(), progress=False if args.quiet else None, **table,
@@ -79,14 +79,16 @@ def run_demo(args) -> int:
 
     from foldcorr.errors import OptionError
     from foldcorr.pipeline import score
-    from foldcorr.sources.demo import write_demo
+    from foldcorr.sources.demo import DEMO_SAMPLES, DEMO_SEED, write_demo
 
-    if args.samples < 100:
-        raise OptionError(f"`--samples` must be at least 100; got {args.samples!r}")
-    options, _ = _split(given_options(args))  # the demo's --seed also seeds the resamples
+    data = {"n": getattr(args, "samples", DEMO_SAMPLES), "seed": getattr(args, "seed", DEMO_SEED)}
+    if data["n"] < 100:
+        raise OptionError(f"`--samples` must be at least 100; got {data['n']!r}")
+    # the demo's seed also seeds the resamples
+    options, _ = _split({**given_options(args), "seed": data["seed"]})
     _check_save(args, None)
     folder = args.out or tempfile.mkdtemp(prefix="foldcorr-demo-")
-    path = write_demo(folder, n=args.samples, seed=args.seed)
+    path = write_demo(folder, **data)
     print(f"demo data written to {path}", file=sys.stderr)
     ev = score(path, **options.to_dict())
     request = _prepare_save(args, ev, options, source=path)

@@ -189,7 +189,7 @@ def load_source(source, *, names: Mapping | None = None, **table):
                           f"{given_text(name('engine'), engine or 'local')}")
     if table.get("matrix") and (table.get("where") is not None or engine not in (None, "local")):
         raise OptionError(f"`{name('where')}` and `{name('engine')}` apply to prediction tables, "
-                          f"not to {name('matrix')}")
+                          f"not to `{name('matrix')}`")
     from foldcorr.sources.tables import TableSpec, load_tensor
 
     spec = TableSpec(**{k: table[k] for k in _SPEC_KEYS if k in table})
@@ -201,14 +201,14 @@ def _check_multilabel(table: dict, given: dict, name) -> None:
     if not any(table.get(key) is not None for key in MULTILABEL_OPTIONS):
         return
     if table.get("matrix"):
-        raise OptionError(f"{name('matrix')} reads a multiclass counts matrix; it does not combine "
-                          "with the multilabel options")
+        raise OptionError(f"`{name('matrix')}` reads a multiclass counts matrix; it does not "
+                          "combine with the multilabel options")
     for key in ("prevalence", "where", "scheduler"):
         if given.get(key, table.get(key)) is not None:
-            raise OptionError(f"{name(key)} applies to multiclass scoring; it does not combine "
+            raise OptionError(f"`{name(key)}` applies to multiclass scoring; it does not combine "
                               "with the multilabel options")
     if table.get("engine") not in (None, "local") or table.get("skip_bad_files"):
-        raise OptionError(f"{name('engine')} and {name('skip_bad_files')} apply to multiclass "
+        raise OptionError(f"`{name('engine')}` and `{name('skip_bad_files')}` apply to multiclass "
                           "scoring; multilabel tables are read whole, in this process")
 
 
