@@ -34,6 +34,7 @@ _EXPORTS = {
     "foldcorr.analysis.compare": ["compare_models", "Comparison"],
     "foldcorr.analysis.crossval": ["cross_tally", "rk_score", "rk_scorer"],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
+    "foldcorr.pipeline": ["score", "evaluate_with", "replay", "load_evaluation", "ScoreOptions"],
     "foldcorr.tensor.samples": ["Samples"],
     "foldcorr.gate": ["GateRules", "GateResult", "check_gate"],
     "foldcorr.sources.saved": ["SavedEvaluation", "save_evaluation", "load_saved"],

@@ -238,7 +238,7 @@ def test_show_repeats_the_analyses_with_their_options(tmp_path, table, capsys):
     assert code == 0
     doc = json.loads(printed)
     assert doc["ci"]["level"] == 0.9 and doc["ci"]["resamples"] == 300
-    assert load_saved(out).options["ci_method"] == "bca"
+    assert load_saved(out).options["method"] == "bca"  # stored by option name (schema 2)
     assert load_saved(out).provenance["seed"] == 5
     code, shown, _ = run(capsys, "show", out, "--format", "json")
     assert code == 0 and shown == printed

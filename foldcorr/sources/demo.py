@@ -17,9 +17,11 @@ import pandas as pd
 
 from foldcorr.errors import InvalidInputError
 
-__all__ = ["TAXA", "make_demo", "write_demo", "DEMO_FILE"]
+__all__ = ["TAXA", "make_demo", "write_demo", "DEMO_FILE", "DEMO_SAMPLES", "DEMO_SEED"]
 
 DEMO_FILE = "plankton_predictions.csv"
+#: Size and seed of the bundled demo.
+DEMO_SAMPLES, DEMO_SEED = 24_000, 20261201
 
 #: Taxa with the look-alike group each belongs to.
 TAXA = {
@@ -49,7 +51,7 @@ SYSTEMATIC = (
 )
 
 
-def make_demo(n: int = 24_000, *, seed: int = 20261201, folds: int = 5) -> pd.DataFrame:
+def make_demo(n: int = DEMO_SAMPLES, *, seed: int = DEMO_SEED, folds: int = 5) -> pd.DataFrame:
     """Generate the demo prediction table.
 
     Parameters
@@ -112,7 +114,7 @@ def _confuse(rng, actual: np.ndarray, groups: np.ndarray, prevalence: np.ndarray
     return out
 
 
-def write_demo(folder, *, n: int = 24_000, seed: int = 20261201) -> Path:
+def write_demo(folder, *, n: int = DEMO_SAMPLES, seed: int = DEMO_SEED) -> Path:
     """Write the demo table as CSV into ``folder`` (created if needed).
 
     Returns

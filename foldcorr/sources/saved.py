@@ -13,9 +13,10 @@ A saved evaluation is a NetCDF-4 (HDF5-based) file written through xarray's
 * global attributes: ``schema`` (``foldcorr.saved/1``), ``created`` (UTC,
   ISO 8601), ``foldcorr_version``, ``source``, ``source_sha256``, ``seed``
   where one was used, ``id_column`` when samples are stored, and ``options``,
-  a JSON object with the options that shaped the report (the undefined
-  convention, the number of class rows shown and every analysis option), so
-  that the file renders exactly as the run that wrote it.
+  a JSON object with the options that shaped the report, by their Python
+  names and with their ``options_schema`` version (as
+  ``foldcorr.pipeline.saved_options`` writes them), so that the file renders
+  exactly as the run that wrote it.
 
 Files are written to a temporary file beside the target and renamed onto it,
 so a reader never sees half a file. A file that is truncated, foreign, or of
@@ -76,8 +77,8 @@ class SavedEvaluation:
     samples : Samples or None
         Per-sample ids and labels, when they were saved.
     options : dict
-        Options that shaped the report (``undefined``, ``top`` and the
-        analysis options), as written.
+        Options that shaped the report, as written (read them with
+        ``foldcorr.pipeline.ScoreOptions.from_saved``).
     provenance : dict
         The file's global attributes other than ``options`` (schema, creation
         time, tool version, source file and its SHA-256, seed).

@@ -1,0 +1,329 @@
+"""Argument parsing of the command line: one subcommand per verb.
+
+Options of the score pipeline (:class:`foldcorr.pipeline.ScoreOptions`) and of
+the sources have no default here: an option the user did not give is absent
+from the parsed namespace, and the pipeline applies its own defaults.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from foldcorr._version import __version__
+from foldcorr.pipeline import ScoreOptions
+
+__all__ = ["get_parser", "FORMATS", "GATE_FORMATS", "OPTION_OF_DEST", "flag_names"]
+
+FORMATS = ("text", "json", "markdown", "html")
+GATE_FORMATS = ("text", "json", "markdown")
+#: Not given: absent from the namespace (the pipeline holds the defaults).
+UNSET = argparse.SUPPRESS
+#: Destinations whose option of the pipeline has another name.
+OPTION_OF_DEST = {"ci": "level", "resamples": "n_resamples", "ci_method": "method"}
+
+
+def flag_names() -> dict:
+    """Each pipeline and table option, mapped to its command-line flag (for messages).
+
+    Examples
+    --------
+    >>> flag_names()["n_resamples"], flag_names()["skip_bad_files"]
+    ('--resamples', '--skip-bad-files')
+    """
+    from dataclasses import fields
+
+    from foldcorr.pipeline import TABLE_OPTIONS
+
+    dest_of = {option: dest for dest, option in OPTION_OF_DEST.items()}
+    options = [f.name for f in fields(ScoreOptions)] + list(TABLE_OPTIONS)
+    return {o: "--" + dest_of.get(o, o).replace("_", "-") for o in options}
+
+
+def _top(value: str):
+    if value == "all":
+        return None
+    try:
+        number = int(value)
+    except ValueError:
+        number = -1
+    if number < 1:
+        raise argparse.ArgumentTypeError(f"expected a positive whole number or 'all'; got {value!r}")
+    return number
+
+
+def _number(value: str) -> float:
+    import math
+
+    try:
+        number = float(value)
+    except ValueError:
+        number = math.nan
+    if not math.isfinite(number):
+        raise argparse.ArgumentTypeError(f"expected a number; got {value!r}")
+    return number
+
+
+def _class_list(value: str) -> tuple:
+    labels = tuple(v.strip() for v in value.split(","))
+    if not all(labels):
+        raise argparse.ArgumentTypeError(f"expected comma-separated class names; got {value!r}")
+    return labels
+
+
+def _add_output_options(p: argparse.ArgumentParser, formats=FORMATS) -> None:
+    p.add_argument("--format", choices=formats, default="text",
+                   help="output format (default: text)")
+    p.add_argument("--output", metavar="FILE",
+                   help="write the report to FILE (replaced whole, never half-written)")
+
+
+def _add_report_options(p: argparse.ArgumentParser) -> None:
+    """Output options with ``--top`` and ``--undefined`` (unset unless given)."""
+    _add_output_options(p)
+    top, undefined = ScoreOptions.default("top"), ScoreOptions.default("undefined")
+    p.add_argument("--top", type=_top, default=UNSET, metavar="N|all",
+                   help=f"per-class rows shown in text and Markdown (default: {top})")
+    p.add_argument("--undefined", choices=("zero", "nan"), default=UNSET,
+                   help=f"value of 0/0 metrics: zero or nan (null in JSON; default: {undefined})")
+
+
+def _add_table_options(p: argparse.ArgumentParser,
+                       matrix_help: str = "PATH is a counts matrix: actual labels down, "
+                                          "predicted across") -> None:
+    p.add_argument("--truth", default=UNSET, metavar="COL",
+                   help="column of actual labels (default: actual)")
+    p.add_argument("--pred", default=UNSET, metavar="COL",
+                   help="column of predicted labels (default: predicted)")
+    p.add_argument("--fold", default=UNSET, metavar="COL",
+                   help="column of fold labels (default: 'fold' when present)")
+    p.add_argument("--weight", default=UNSET, metavar="COL", help="column of sample weights")
+    p.add_argument("--classes", type=_class_list, default=UNSET, metavar="A,B,...",
+                   help="fixed class order; labels outside it are an error")
+    p.add_argument("--matrix", action="store_true", default=UNSET, help=matrix_help)
+
+
+def _add_save_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--save", metavar="FILE.nc",
+                   help="also save the confusion tensor with provenance as NetCDF-4 "
+                        "(read back by show, score and gate)")
+    p.add_argument("--id", metavar="COL", dest="id_column",
+                   help="with --save: column of unique sample ids; per-sample labels are "
+                        "saved too, so that a later gate can pair the samples")
+
+
+def _add_source_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--where", default=UNSET, metavar="EXPR",
+                   help='row filter, e.g. \'split == "test" and fold != 3\' '
+                        "(comparisons joined by and/or/not; see docs/streaming.md)")
+    p.add_argument("--engine", choices=("local", "dask"), default=UNSET,
+                   help="local: stream in this process (default); dask: tally on a Dask cluster")
+    p.add_argument("--scheduler", default=UNSET, metavar="ADDRESS",
+                   help="Dask scheduler to use, e.g. tcp://scheduler.example:8786 (default: a local "
+                        "cluster on 127.0.0.1, one worker per core)")
+    p.add_argument("--skip-bad-files", action="store_true", default=UNSET,
+                   help="skip unreadable files of a dataset and report them, instead of stopping")
+    p.add_argument("--quiet", action="store_true",
+                   help="no progress bar (it is shown only when stderr is a terminal)")
+
+
+def _add_analysis_options(p: argparse.ArgumentParser) -> None:
+    """Options of the analyses in :data:`ANALYSES`, shared by ``score`` and ``demo``."""
+    p.add_argument("--plot", metavar="DIR",
+                   help="also draw the loss budget, confusion heatmap and fold plot "
+                        "into DIR as PNG and SVG (needs the 'plot' extra)")
+    p.add_argument("--ci", type=float, default=UNSET, metavar="LEVEL",
+                   help="add bootstrap intervals at this level, e.g. 0.95")
+    p.add_argument("--resamples", type=int, default=UNSET, metavar="B",
+                   help=f"bootstrap resamples for --ci (default: {ScoreOptions.DEFAULT_RESAMPLES}, "
+                        "at least 100)")
+    p.add_argument("--ci-method", choices=("percentile", "bca"), default=UNSET,
+                   help=f"interval method for --ci: percentile or bca (default: "
+                        f"{ScoreOptions.DEFAULT_METHOD})")
+    if "--seed" not in p._option_string_actions:  # demo's --seed seeds its data and this too
+        p.add_argument("--seed", type=int, default=UNSET, metavar="S",
+                       help="seed of the resamples, for reproducible intervals")
+    p.add_argument("--prevalence", default=UNSET, metavar="uniform|A=0.2,B=0.8|FILE.csv",
+                   help="also show every pooled figure at this target class prevalence, "
+                        "assuming label shift; 'uniform' shares it equally among the "
+                        "classes that have samples (see docs/shift.md)")
+
+
+def _column_list(value: str) -> tuple:
+    names = tuple(v.strip() for v in value.split(","))
+    if not all(names):
+        raise argparse.ArgumentTypeError(f"expected comma-separated column names; got {value!r}")
+    return names
+
+
+def _add_multilabel_options(p: argparse.ArgumentParser) -> None:
+    group = p.add_argument_group(
+        "multilabel mode", "chosen only by these flags: indicator columns by name or by prefix, "
+                           "or --sep for delimited label sets in --truth and --pred")
+    group.add_argument("--truth-cols", type=_column_list, default=UNSET, metavar="A,B,...",
+                       help="0/1 truth columns, one per label")
+    group.add_argument("--pred-cols", type=_column_list, default=UNSET, metavar="A,B,...",
+                       help="0/1 prediction columns, paired in order with --truth-cols")
+    group.add_argument("--truth-prefix", default=UNSET, metavar="PREFIX",
+                       help="0/1 truth columns named PREFIX + label")
+    group.add_argument("--pred-prefix", default=UNSET, metavar="PREFIX",
+                       help="0/1 prediction columns named PREFIX + label, paired by label")
+    group.add_argument("--sep", default=UNSET, metavar="CHAR",
+                       help="--truth and --pred hold label sets joined by CHAR (empty = no label)")
+
+
+def get_parser() -> argparse.ArgumentParser:
+    """Build the argument parser with one subcommand per verb.
+
+    Examples
+    --------
+    >>> get_parser().parse_args(["score", "p.csv", "--top", "all"]).top is None
+    True
+    """
+    parser = argparse.ArgumentParser(
+        prog="foldcorr",
+        description="Matthews correlation and R_K for multiclass and multilabel "
+                    "classifiers, fold by fold.",
+    )
+    parser.add_argument("--version", action="version", version=f"foldcorr {__version__}")
+    verbs = parser.add_subparsers(dest="verb", metavar="VERB")
+    verbs.required = True
+
+    score = verbs.add_parser("score", help="score a prediction table or a counts matrix",
+                             description="Score a prediction table (CSV, Parquet, JSON Lines) "
+                                         "or a counts matrix CSV (--matrix).")
+    score.add_argument("path", metavar="PATH",
+                       help="prediction table, a folder or a quoted glob of them, "
+                            "or a counts matrix")
+    _add_table_options(score)
+    _add_source_options(score)
+    _add_report_options(score)
+    _add_save_options(score)
+    _add_analysis_options(score)
+    _add_multilabel_options(score)
+
+    show = verbs.add_parser("show", help="render a saved evaluation as score showed it",
+                            description="Render a saved evaluation (.nc, written by --save) "
+                                        "with the options it was saved with.")
+    show.add_argument("path", metavar="FILE.nc", help="saved evaluation")
+    _add_output_options(show)
+    show.add_argument("--top", type=_top, default=UNSET, metavar="N|all",
+                      help="per-class rows shown (default: as saved)")
+
+    gate = verbs.add_parser(
+        "gate", help="fail (exit 1) when an evaluation breaks a rule",
+        description="Check a prediction table or saved evaluation against rules; exit 0 "
+                    "when all hold, 1 when any fails, 2 on bad input.")
+    gate.add_argument("path", metavar="SOURCE", help="prediction table, counts matrix or .nc")
+    _add_table_options(gate, matrix_help="SOURCE is a counts matrix CSV")
+    gate.add_argument("--id", metavar="COL", dest="id_column",
+                      help="column of unique sample ids in prediction tables (for a paired "
+                           "baseline comparison)")
+    rules = gate.add_argument_group("rules")
+    rules.add_argument("--min-rk", type=_number, metavar="X", help="pooled R_K must be >= X")
+    rules.add_argument("--min-fold-rk", type=_number, metavar="X",
+                       help="R_K of every fold must be >= X")
+    rules.add_argument("--min-class-mcc", type=_number, metavar="X",
+                       help="one-vs-rest MCC of every class must be >= X")
+    rules.add_argument("--class-floors", metavar="FILE",
+                       help="CSV class,floor: each listed class's MCC must be >= its floor")
+    rules.add_argument("--max-marginal-mismatch", type=_number, metavar="X",
+                       help="marginal mismatch term must be <= X")
+    rules.add_argument("--baseline", metavar="FILE",
+                       help="baseline to compare with (a saved .nc, or a prediction table)")
+    rules.add_argument("--max-drop", type=_number, metavar="D",
+                       help="pooled R_K may fall below the baseline's by at most D "
+                            "(default with --baseline: 0)")
+    rules.add_argument("--allow-new-classes", action="store_true",
+                       help="compare with a baseline of other classes on the shared ones")
+    rules.add_argument("--confidence", type=_number, metavar="LEVEL",
+                       help="with --baseline: a drop counts as a regression only when the whole "
+                            "bootstrap interval of the drop at this level (e.g. 0.95) lies "
+                            "above D; paired when both sides carry the same sample ids")
+    gate.add_argument("--resamples", type=int, default=UNSET, metavar="B",
+                      help="bootstrap resamples for --confidence (default: 2000)")
+    gate.add_argument("--seed", type=int, default=UNSET, metavar="S",
+                      help="seed of the bootstrap for --confidence")
+    gate.add_argument("--undefined", choices=("zero", "nan"), default=UNSET,
+                      help="value of 0/0 metrics (default: as saved, else zero); "
+                           "an undefined figure fails its rule")
+    _add_output_options(gate, GATE_FORMATS)
+    gate.add_argument("--junit", metavar="FILE", help="also write a JUnit XML report")
+    gate.add_argument("--markdown", metavar="FILE",
+                      help="also write a Markdown summary (job summary, pull-request comment)")
+
+    sweep = verbs.add_parser(
+        "sweep", help="MCC at every threshold of a score, with a cross-fold threshold choice",
+        description="Sweep the threshold of a score (higher means positive): MCC, accuracy, F1, "
+                    "recall and precision at every distinct threshold; the best threshold "
+                    "in-sample and, with folds, the threshold chosen on the other folds and "
+                    "scored on each held-out fold.")
+    sweep.add_argument("path", metavar="PATH", help="table of truth and scores")
+    sweep.add_argument("--truth", default=UNSET, metavar="COL",
+                       help="binary truth column (default: actual)")
+    sweep.add_argument("--score", default=UNSET, metavar="COL",
+                       help="score column (default: score)")
+    sweep.add_argument("--fold", default=UNSET, metavar="COL",
+                       help="column of fold labels (default: 'fold' when present)")
+    sweep.add_argument("--positive", metavar="VALUE",
+                       help="truth value meaning positive (needed unless truth is 0/1 or "
+                            "true/false)")
+    sweep.add_argument("--at", type=float, metavar="THRESHOLD",
+                       help="also report the MCC at this threshold")
+    sweep.add_argument("--truth-cols", type=_column_list, metavar="A,B,...",
+                       help="multilabel: 0/1 truth columns, one per label")
+    sweep.add_argument("--score-cols", type=_column_list, metavar="A,B,...",
+                       help="multilabel: score columns, paired in order with --truth-cols")
+    sweep.add_argument("--truth-prefix", metavar="PREFIX",
+                       help="multilabel: truth columns named PREFIX + label")
+    sweep.add_argument("--score-prefix", metavar="PREFIX",
+                       help="multilabel: score columns named PREFIX + label, paired by label")
+    sweep.add_argument("--curve", metavar="FILE",
+                       help="write the full curve of every label to FILE (.csv or .parquet)")
+    sweep.add_argument("--plot", metavar="DIR",
+                       help="draw one PNG per label into DIR (needs the extra 'plot')")
+    _add_report_options(sweep)
+
+    demo = verbs.add_parser("demo", help="write the invented plankton demo and score it",
+                            description="Write an invented plankton-imaging demo (36 taxa, "
+                                        "5 folds) to a folder and score it.")
+    demo.add_argument("--out", metavar="DIR",
+                      help="folder for the demo files (default: a new temporary folder)")
+    demo.add_argument("--samples", type=int, default=UNSET, metavar="N",
+                      help="number of images (default: 24000)")
+    demo.add_argument("--seed", type=int, default=UNSET, metavar="S",
+                      help="seed of the generator (default gives the bundled demo)")
+    _add_report_options(demo)
+    _add_save_options(demo)
+    _add_analysis_options(demo)
+
+    compare = verbs.add_parser(
+        "compare", help="compare two models scored on the same samples",
+        description="Paired comparison of two models on the same samples: either one table "
+                    "with two prediction columns (--pred-a COL --pred-b COL), or two tables, "
+                    "one per model, joined on an id column (--id COL).")
+    compare.add_argument("path", metavar="PATH", help="table with truth (and both predictions)")
+    compare.add_argument("path_b", metavar="PATH_B", nargs="?",
+                         help="second table with model B's predictions, joined on --id")
+    compare.add_argument("--truth", default=UNSET, metavar="COL",
+                         help="column of actual labels (default: actual)")
+    compare.add_argument("--pred-a", metavar="COL", help="prediction column of model A")
+    compare.add_argument("--pred-b", metavar="COL", help="prediction column of model B")
+    compare.add_argument("--pred", default=UNSET, metavar="COL",
+                         help="prediction column of each of two tables (default: predicted)")
+    compare.add_argument("--id", metavar="COL", help="id column joining two tables")
+    compare.add_argument("--fold", default=UNSET, metavar="COL",
+                         help="column of fold labels (default: 'fold' when present)")
+    compare.add_argument("--classes", type=_class_list, metavar="A,B,...",
+                         help="fixed class order; labels outside it are an error")
+    compare.add_argument("--ci", type=float, default=UNSET, metavar="LEVEL",
+                         help="level of the intervals (default: 0.95)")
+    compare.add_argument("--resamples", type=int, default=UNSET, metavar="B",
+                         help="paired bootstrap resamples (default: 2000, at least 100)")
+    compare.add_argument("--permutations", type=int, metavar="P",
+                         help="sign-flip permutations (default: as many as --resamples)")
+    compare.add_argument("--seed", type=int, metavar="S",
+                         help="seed of resamples and permutations")
+    _add_report_options(compare)
+    return parser
+
+

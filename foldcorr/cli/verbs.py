@@ -1,0 +1,372 @@
+"""The verbs of the command line: each reads its arguments, calls the library and hands the
+result to :func:`emit`, the one way out.
+
+Exit codes: 0 success; 1 a gate or test condition failed; 2 bad input or
+usage, with one line on stderr and no traceback. Heavy libraries are imported
+only inside the verbs, so ``foldcorr --help`` starts fast.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+
+from foldcorr.cli.args import OPTION_OF_DEST, flag_names
+
+__all__ = ["VERBS", "EXIT_OK", "EXIT_FAILED", "EXIT_USAGE", "check_targets", "given_options",
+           "present", "emit", "write_out"]
+
+EXIT_OK, EXIT_FAILED, EXIT_USAGE = 0, 1, 2
+
+
+def given_options(args, keys=None) -> dict:
+    """The options of :func:`foldcorr.pipeline.score` that the user gave, by option name.
+
+    Options not given are absent from the namespace (see
+    :mod:`foldcorr.cli.args`), so nothing here is a default.
+
+    Examples
+    --------
+    >>> from foldcorr.cli.args import get_parser
+    >>> given_options(get_parser().parse_args(["score", "p.csv", "--ci", "0.9"]))
+    {'level': 0.9}
+    """
+    from dataclasses import fields
+
+    from foldcorr.pipeline import TABLE_OPTIONS, ScoreOptions
+
+    keys = set(keys if keys is not None else
+               [f.name for f in fields(ScoreOptions)] + list(TABLE_OPTIONS))
+    given = {OPTION_OF_DEST.get(dest, dest): value for dest, value in vars(args).items()}
+    return {k: v for k, v in given.items() if k in keys}
+
+
+def _split(given: dict) -> tuple:
+    """``given`` as (ScoreOptions checked with the command-line names, table options)."""
+    from dataclasses import fields
+
+    from foldcorr.pipeline import ScoreOptions
+
+    keys = {f.name for f in fields(ScoreOptions)}
+    options = ScoreOptions(**{k: v for k, v in given.items() if k in keys}, names=flag_names())
+    return options, {k: v for k, v in given.items() if k not in keys}
+
+
+def run_score(args) -> int:
+    from foldcorr.errors import OptionError
+    from foldcorr.pipeline import MULTILABEL_OPTIONS, score
+
+    given = given_options(args)
+    if any(key in given for key in MULTILABEL_OPTIONS):
+        for flag in ("plot", "save"):
+            if getattr(args, flag, None) is not None:
+                raise OptionError(f"`--{flag}` applies to multiclass scoring; it does not combine "
+                                  "with the multilabel options")
+    options, table = _split(given)
+    _check_save(args, args.path)
+    ev = score(args.path, names=flag_names(), progress=False if args.quiet else None, **table,
+               **options.to_dict())
+    request = _prepare_save(args, ev, options)
+    for line in getattr(ev.extras.get("skipped_files"), "warnings", ()):
+        print(f"foldcorr: {line}", file=sys.stderr)
+    emit_evaluation(args, ev, options.top)
+    _write_save(request)
+    return EXIT_OK
+
+
+def run_demo(args) -> int:
+    import tempfile
+
+    from foldcorr.errors import OptionError
+    from foldcorr.pipeline import score
+    from foldcorr.sources.demo import DEMO_SAMPLES, DEMO_SEED, write_demo
+
+    data = {"n": getattr(args, "samples", DEMO_SAMPLES), "seed": getattr(args, "seed", DEMO_SEED)}
+    if data["n"] < 100:
+        raise OptionError(f"`--samples` must be at least 100; got {data['n']!r}")
+    # the demo's seed also seeds the resamples
+    options, _ = _split({**given_options(args), "seed": data["seed"]})
+    _check_save(args, None)
+    folder = args.out or tempfile.mkdtemp(prefix="foldcorr-demo-")
+    path = write_demo(folder, **data)
+    print(f"demo data written to {path}", file=sys.stderr)
+    ev = score(path, **options.to_dict())
+    request = _prepare_save(args, ev, options, source=path)
+    emit_evaluation(args, ev, options.top)
+    _write_save(request)
+    return EXIT_OK
+
+
+def run_show(args) -> int:
+    from foldcorr.pipeline import replay
+
+    ev, options = replay(args.path, names=flag_names(), **given_options(args, ["top"]))
+    emit_evaluation(args, ev, options.top)
+    return EXIT_OK
+
+
+def _check_save(args, source) -> None:
+    """Refuse a ``--save`` target that is not NetCDF or is the input."""
+    if getattr(args, "save", None):
+        from foldcorr.sources.saved import check_save_target
+
+        check_save_target(args.save, source)
+
+
+def _prepare_save(args, ev, options, source=None):
+    """The ``--save`` request (None without it), checked; written by :func:`_write_save`."""
+    from foldcorr.pipeline import saved_options
+    from foldcorr.sources.saved import prepare_save
+
+    return prepare_save(getattr(args, "save", None), ev.tensor, source or args.path,
+                        id_column=getattr(args, "id_column", None),
+                        options=saved_options(options), where=getattr(args, "where", None),
+                        matrix=getattr(args, "matrix", False),
+                        weight=getattr(args, "weight", None))
+
+
+def _write_save(request) -> None:
+    """Write a prepared ``--save`` once everything else succeeded."""
+    if request is not None:
+        print(f"evaluation saved to {request.write()}", file=sys.stderr)
+
+
+def run_gate(args) -> int:
+    from foldcorr.errors import OptionError
+    from foldcorr.gate import GateRules, check_gate
+    from foldcorr.pipeline import load_gate_inputs
+    from foldcorr.report.gate import gate_report, junit_xml, render_gate
+    from foldcorr.report.text import render_rich
+    from foldcorr.sources.floors import read_class_floors
+
+    given = present(args, ("resamples", "seed"))
+    for flag, dest, does in (("--max-drop", "max_drop", "compares with"),
+                             ("--confidence", "confidence", "applies to"),
+                             ("--allow-new-classes", "allow_new_classes", "applies to")):
+        if getattr(args, dest) not in (None, False) and not args.baseline:
+            raise OptionError(f"`{flag}` {does} a baseline; give --baseline FILE too")
+    if args.confidence is not None:
+        from foldcorr.analysis.uncertainty import check_level, check_resamples
+
+        check_level(args.confidence, name="--confidence")
+        if "resamples" in given:
+            check_resamples(given["resamples"], name="--resamples")
+    table = given_options(args, ["truth", "pred", "fold", "weight", "classes", "matrix"])
+    ev, samples, baseline, base_samples = load_gate_inputs(
+        args.path, args.baseline, undefined=getattr(args, "undefined", None),
+        id_column=args.id_column, **table)
+    floors = read_class_floors(args.class_floors, ev.classes) if args.class_floors else None
+    rules = GateRules(
+        min_rk=args.min_rk, min_fold_rk=args.min_fold_rk, min_class_mcc=args.min_class_mcc,
+        class_floors=floors, max_marginal_mismatch=args.max_marginal_mismatch,
+        max_drop=(args.max_drop if args.max_drop is not None else 0.0) if args.baseline else None,
+        allow_new_classes=args.allow_new_classes, confidence=args.confidence,
+        **{"n_resamples" if k == "resamples" else k: v for k, v in given.items()},
+    )
+    result = check_gate(ev, rules, baseline=baseline, samples=samples,
+                        baseline_samples=base_samples)
+    if args.junit:
+        write_out(args.junit, junit_xml(result))
+    if args.markdown:
+        write_out(args.markdown, render_gate(result, "markdown"))
+    emit(args, lambda fmt: render_gate(result, fmt), lambda: render_rich(gate_report(result)))
+    return EXIT_OK if result.passed else EXIT_FAILED
+
+
+#: Options naming a file a verb writes (each verb has some of them).
+TARGET_OPTIONS = ("output", "save", "junit", "markdown", "curve")
+#: Options naming a file a verb reads.
+INPUT_OPTIONS = ("path", "path_b", "baseline", "class_floors")
+
+
+def check_targets(args) -> None:
+    """Refuse unwritable output files before any work or any output is done.
+
+    One check for every verb: each file option of :data:`TARGET_OPTIONS` must
+    name a file (not a folder) in an existing, writable folder, differ from
+    the other targets and from the inputs of :data:`INPUT_OPTIONS`.
+    """
+    from pathlib import Path
+
+    from foldcorr.errors import InvalidInputError, OptionError
+
+    seen: dict = {}
+    inputs = [(name, getattr(args, name)) for name in INPUT_OPTIONS
+              if isinstance(getattr(args, name, None), str)]
+    for name in TARGET_OPTIONS:
+        path = getattr(args, name, None)
+        if not path:
+            continue
+        target = Path(path)
+        folder = target.parent if str(target.parent) else Path(".")
+        if target.is_dir():
+            raise InvalidInputError(f"cannot write {path!r}: it is a folder")
+        if not folder.is_dir():
+            raise InvalidInputError(f"cannot write {path!r}: folder {str(folder)!r} does not exist")
+        if not os.access(folder, os.W_OK | os.X_OK) or (target.exists()
+                                                        and not os.access(target, os.W_OK)):
+            raise InvalidInputError(f"cannot write {path!r}: permission denied")
+        for other, other_path in inputs:
+            if _same_path(target, Path(other_path)):
+                raise OptionError(f"`--{name}` {path!r} is the input file {other_path!r} "
+                                  f"({_flag(other)}); writing there would replace it, choose "
+                                  "another path")
+        for other, other_path in seen.items():
+            if _same_path(target, Path(other_path)):
+                raise OptionError(f"`--{name}` {path!r} is also given to `--{other}`; give "
+                                  "each output its own path")
+        seen[name] = path
+
+
+def _flag(name: str) -> str:
+    return {"path": "PATH", "path_b": "PATH_B"}.get(name, "--" + name.replace("_", "-"))
+
+
+def _same_path(a, b) -> bool:
+    try:
+        if a.exists() and b.exists():
+            return a.samefile(b)
+        return a.resolve() == b.resolve()
+    except OSError:
+        return False
+
+
+def run_sweep(args) -> int:
+    from foldcorr.analysis.thresholds import sweep
+    from foldcorr.sources.multilabel import ScoreSpec, load_scores
+
+    spec = ScoreSpec(**present(args, ("truth", "score", "truth_cols", "score_cols", "truth_prefix",
+                                      "score_prefix", "fold", "positive")))
+    table = load_scores(args.path, spec)
+    result = sweep(table.truth, table.scores, labels=table.labels, folds=table.folds,
+                   at=args.at, **present(args, ("undefined",)))
+    if args.curve:
+        from foldcorr.report.sweep import write_curve
+
+        write_curve(result, args.curve)
+    if args.plot:
+        from foldcorr.report.sweep_plots import plot_sweep
+
+        paths = plot_sweep(result, args.plot)
+        print(f"{len(paths)} figure(s) written to {args.plot}", file=sys.stderr)
+    from foldcorr.report.sweep import sweep_dict, sweep_report
+
+    emit_report(args, sweep_report(result, **present(args, ("top",)), source=table.source),
+                lambda: sweep_dict(result, source=table.source))
+    return EXIT_OK
+
+
+#: Options of ``compare`` given to :func:`foldcorr.analysis.compare.compare_models`, by flag.
+COMPARE_SETTINGS = {"ci": "level", "resamples": "n_resamples", "permutations": "n_permutations",
+                    "seed": "seed", "undefined": "undefined"}
+
+
+def run_compare(args) -> int:
+    from foldcorr.analysis.compare import compare_models
+    from foldcorr.analysis.uncertainty import check_level, check_resamples
+    from foldcorr.report.compare import compare_report, render_compare
+    from foldcorr.report.text import render_rich
+    from foldcorr.sources.paired import PairSpec, load_joint
+
+    spec = PairSpec(**present(args, ("truth", "pred_a", "pred_b", "pred", "id", "fold", "classes")))
+    settings = {key: value for dest, key in COMPARE_SETTINGS.items()
+                if (value := getattr(args, dest, None)) is not None}
+    if "level" in settings:
+        check_level(settings["level"], name="--ci")
+    for dest in ("resamples", "permutations"):
+        if COMPARE_SETTINGS[dest] in settings:
+            check_resamples(settings[COMPARE_SETTINGS[dest]], name=f"--{dest}")
+    joint = load_joint(args.path, spec, path_b=args.path_b)
+    result = compare_models(joint, **settings)
+    if args.path_b is None:
+        names = (f"column {spec.pred_a!r}", f"column {spec.pred_b!r}")
+    else:
+        from pathlib import Path
+
+        names = (f"{Path(args.path).name}, column {spec.pred_a or spec.pred!r}",
+                 f"{Path(args.path_b).name}, column {spec.pred_b or spec.pred!r}")
+    source = joint.attrs.get("source")
+    top = present(args, ("top",))
+    emit(args, lambda fmt: render_compare(result, fmt, names=names, **top, source=source),
+         lambda: render_rich(compare_report(result, names=names, **top, source=source)))
+    return EXIT_OK
+
+
+def present(args, names) -> dict:
+    """The arguments among ``names`` that are in the namespace (given, or defaulting to None).
+
+    Examples
+    --------
+    >>> import argparse
+    >>> present(argparse.Namespace(truth="y"), ("truth", "fold"))
+    {'truth': 'y'}
+    """
+    return {name: getattr(args, name) for name in names if hasattr(args, name)}
+
+
+def _console():
+    from rich.console import Console
+
+    from foldcorr.report.text import PLAIN_WIDTH
+
+    terminal = sys.stdout.isatty()
+    return Console(file=sys.stdout, width=None if terminal else PLAIN_WIDTH,
+                   no_color="NO_COLOR" in os.environ or None, highlight=False)
+
+
+
+
+def emit_report(args, report, make_json) -> None:
+    """:func:`emit` of a Report (text, Markdown, HTML) or its JSON document."""
+    from foldcorr.report.documents import render_report
+    from foldcorr.report.text import render_rich
+
+    emit(args, lambda fmt: render_report(report, make_json, fmt), lambda: render_rich(report))
+
+
+def emit_evaluation(args, ev, top) -> None:
+    """:func:`emit` of what :func:`foldcorr.pipeline.score` returned (and its ``--plot`` files)."""
+    from foldcorr.pipeline import tensor_kind
+
+    if tensor_kind(ev.tensor) == "multilabel":
+        from foldcorr.report.multilabel import multilabel_dict, multilabel_report
+
+        emit_report(args, multilabel_report(ev, top=top), lambda: multilabel_dict(ev))
+        return
+    if getattr(args, "plot", None):
+        from foldcorr.report.plots import save_plots
+
+        written = save_plots(ev, args.plot)
+        print(f"{len(written)} plot files written to {args.plot}", file=sys.stderr)
+    from foldcorr.report import render_score
+    from foldcorr.report.text import render_rich
+
+    emit(args, lambda fmt: render_score(ev, fmt, top=top), lambda: render_rich(ev, top=top))
+
+
+def emit(args, render, rich) -> None:
+    """The one way out: ``render(fmt)`` to ``--output`` or stdout, or ``rich()`` on the console.
+
+    Plain text without ``--output`` goes through a rich console (colour only on
+    a terminal, never with ``NO_COLOR``); everything else is the text
+    ``render(args.format)`` written by :func:`write_out`.
+    """
+    if args.output or args.format != "text":
+        write_out(args.output, render(args.format))
+    else:
+        _console().print(rich())
+
+
+def write_out(target, text: str) -> None:
+    """Write ``text`` to the file ``target`` (replaced whole), or to stdout when it is None."""
+    if target:
+        from foldcorr._files import write_text
+
+        write_text(target, text)
+    else:
+        sys.stdout.write(text)
+
+
+#: The function of each verb.
+VERBS = {"score": run_score, "show": run_show, "gate": run_gate, "sweep": run_sweep,
+         "demo": run_demo, "compare": run_compare}
