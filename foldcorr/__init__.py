@@ -38,7 +38,9 @@ _EXPORTS = {
     "foldcorr.report.plots": [
         "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
     ],
-    "foldcorr.sources.stream": ["tally_dataset", "stream_tensor", "parse_where", "StreamResult"],
+    "foldcorr.sources.dispatch": ["load", "load_tensor", "tally_dataset"],
+    "foldcorr.sources.stream": ["stream_tensor", "StreamResult"],
+    "foldcorr.sources.where": ["parse_where"],
     "foldcorr.analysis.multilabel": [
         "multilabel_tally", "indicators_from_sets", "evaluate_multilabel", "MultilabelEvaluation",
     ],

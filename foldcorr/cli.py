@@ -347,7 +347,7 @@ def main(argv=None) -> int:
 
 
 def _spec(args):
-    from foldcorr.sources.tables import TableSpec
+    from foldcorr.sources import TableSpec
 
     return TableSpec(truth=args.truth, pred=args.pred, fold=args.fold,
                      weight=args.weight, classes=args.classes)
@@ -355,7 +355,7 @@ def _spec(args):
 
 def _run_score(args) -> int:
     from foldcorr.evaluation import evaluate
-    from foldcorr.sources.tables import load_tensor
+    from foldcorr.sources import load_tensor
 
     if _multilabel_requested(args):
         return _run_score_multilabel(args)
@@ -477,7 +477,7 @@ def _analysis_args(options: dict):
 
 def _prepare_save(args, tensor, source):
     """The ``--save`` request (None without it), checked; written by :func:`_write_save`."""
-    from foldcorr.sources.saved import prepare_save
+    from foldcorr.sources.saving import prepare_save
 
     return prepare_save(getattr(args, "save", None), tensor, source,
                         id_column=getattr(args, "id_column", None),
@@ -512,8 +512,9 @@ def _gate_source(path, args, undefined, *, baseline=False):
     refused when both are saved, and --classes reorders a saved SOURCE.
     """
     from foldcorr.evaluation import evaluate
-    from foldcorr.sources.saved import is_saved_path, load_saved, read_samples
-    from foldcorr.sources.tables import TableSpec, check_saved_options, load_tensor
+    from foldcorr.sources import TableSpec, load_tensor
+    from foldcorr.sources.saved import check_saved_options, is_saved_path, load_saved
+    from foldcorr.sources.saving import read_samples
 
     if is_saved_path(path):
         if not any(p and not is_saved_path(p) for p in (args.path, args.baseline)):
@@ -730,7 +731,7 @@ def _run_demo(args) -> int:
     from foldcorr.sources.demo import write_demo
     from foldcorr.errors import OptionError
     from foldcorr.evaluation import evaluate
-    from foldcorr.sources.tables import TableSpec, load_tensor
+    from foldcorr.sources import TableSpec, load_tensor
 
     if args.samples < 100:
         raise OptionError(f"`--samples` must be at least 100; got {args.samples!r}")
