@@ -16,7 +16,7 @@ from pathlib import Path
 
 from foldcorr.errors import FoldcorrError, InvalidInputError
 from foldcorr.sources.matrix import read_matrix
-from foldcorr.sources.saved import SAVED_SUFFIXES, check_saved_options, load_saved
+from foldcorr.sources.saved import SAVED_SUFFIXES, check_saved_options, is_saved_path, load_saved
 from foldcorr.tensor.coding import arrow_kind
 
 __all__ = ["FileFormat", "CsvFormat", "ParquetFormat", "JsonLinesFormat", "CountsMatrixFormat",
@@ -143,11 +143,13 @@ class CsvFormat(FileFormat):
     def name_of(self, path) -> str:
         return "tsv" if Path(path).suffix.lower() == ".tsv" else "csv"
 
+    def _sep(self, path) -> str:
+        return "\t" if self.name_of(path) == "tsv" else ","
+
     def _parse_options(self, path):
         import pyarrow.csv as pcsv
 
-        delimiter = "\t" if self.name_of(path) == "tsv" else ","
-        return pcsv.ParseOptions(delimiter=delimiter, newlines_in_values=True)
+        return pcsv.ParseOptions(delimiter=self._sep(path), newlines_in_values=True)
 
     def schema(self, path):
         import pyarrow.csv as pcsv
@@ -185,9 +187,6 @@ class CsvFormat(FileFormat):
         import pandas as pd
 
         return list(pd.read_csv(path, sep=self._sep(path), nrows=0, encoding="utf-8-sig").columns)
-
-    def _sep(self, path) -> str:
-        return "\t" if self.name_of(path) == "tsv" else ","
 
 
 class ParquetFormat(FileFormat):
@@ -298,7 +297,7 @@ class NetcdfFormat(FileFormat):
     title = "saved evaluation"
 
     def can_open(self, path, *, matrix: bool = False) -> bool:
-        return Path(path).suffix.lower() in self.suffixes
+        return is_saved_path(path)
 
     def tensor(self, path):
         return load_saved(path).tensor
