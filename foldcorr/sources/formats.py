@@ -14,47 +14,19 @@ from __future__ import annotations
 import io
 from pathlib import Path
 
-from foldcorr.errors import FoldcorrError, InvalidInputError
 from foldcorr.sources.matrix import read_matrix
+from foldcorr.sources.problems import UnreadableFile, file_error
 from foldcorr.sources.saved import SAVED_SUFFIXES, check_saved_options, is_saved_path, load_saved
 from foldcorr.tensor.coding import arrow_kind
 
 __all__ = ["FileFormat", "CsvFormat", "ParquetFormat", "JsonLinesFormat", "CountsMatrixFormat",
            "NetcdfFormat", "FORMATS", "TABLE_FORMATS", "TABLE_SUFFIXES", "format_for",
-           "format_of", "file_error", "first_line", "UnreadableFile", "BLOCK_BYTES",
-           "BATCH_READAHEAD"]
+           "format_of", "BLOCK_BYTES", "BATCH_READAHEAD"]
 
 #: Bytes per CSV / JSON Lines block.
 BLOCK_BYTES = 1 << 24
 #: Record batches the Parquet reader decodes ahead, in its own threads.
 BATCH_READAHEAD = 1
-
-
-def file_error(path, message: str) -> InvalidInputError:
-    """An input error whose message starts with the file's name.
-
-    Examples
-    --------
-    >>> str(file_error("runs/p.csv", "the file is empty"))
-    'p.csv: the file is empty'
-    """
-    return InvalidInputError(f"{Path(path).name}: {message}")
-
-
-def first_line(exc: BaseException) -> str:
-    """The first line of an exception's message (its type's name when it has none).
-
-    Examples
-    --------
-    >>> first_line(ValueError("bad value\\nmore detail")), first_line(KeyError())
-    ('bad value', 'KeyError')
-    """
-    text = str(exc).strip().splitlines()
-    return text[0] if text else type(exc).__name__
-
-
-class UnreadableFile(FoldcorrError):
-    """A file that cannot be read or whose columns disagree (a dataset may skip it)."""
 
 
 class FileFormat:

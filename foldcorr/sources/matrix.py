@@ -15,19 +15,10 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from foldcorr.errors import InvalidInputError
+from foldcorr.sources.problems import file_error, first_line
 from foldcorr.tensor import ACTUAL, PREDICTED, confusion_tensor
 
 __all__ = ["read_matrix", "reorder_classes"]
-
-
-def _fail(path, message: str) -> InvalidInputError:
-    return InvalidInputError(f"{Path(path).name}: {message}")
-
-
-def _first_line(exc: Exception) -> str:
-    text = str(exc).strip().splitlines()
-    return text[0] if text else type(exc).__name__
 
 
 def read_matrix(path) -> xr.DataArray:
@@ -64,21 +55,21 @@ def read_matrix(path) -> xr.DataArray:
     """
     path = Path(path)
     if not path.is_file():
-        raise _fail(path, "file not found")
+        raise file_error(path, "file not found")
     try:
         raw = pd.read_csv(path, dtype=str, keep_default_na=False, header=None,
                           encoding="utf-8-sig")
     except (ValueError, pd.errors.ParserError, UnicodeDecodeError) as exc:
-        raise _fail(path, f"cannot read as a counts matrix: {_first_line(exc)}") from None
+        raise file_error(path, f"cannot read as a counts matrix: {first_line(exc)}") from None
     if raw.shape[0] < 2 or raw.shape[1] < 2:
-        raise _fail(path, "a counts matrix needs a header row, a label column and at least one cell")
+        raise file_error(path, "a counts matrix needs a header row, a label column and at least one cell")
     cols = [c.strip() for c in raw.iloc[0, 1:]]
     rows = [r.strip() for r in raw.iloc[1:, 0]]
     _check_matrix_labels(path, rows, cols)
     cells = raw.iloc[1:, 1:].to_numpy()
     counts = _parse_counts(path, cells, rows, cols)
     if not counts.any():  # as a table without rows: nothing to score
-        raise _fail(path, "the counts matrix holds no samples: every cell is 0")
+        raise file_error(path, "the counts matrix holds no samples: every cell is 0")
     order = [cols.index(r) for r in rows]
     t = confusion_tensor(counts[:, order], rows, attrs={"source": path.name, "n_rows": 0})
     t.attrs["n_rows"] = int(counts.sum())
@@ -87,18 +78,18 @@ def read_matrix(path) -> xr.DataArray:
 
 def _check_matrix_labels(path, rows, cols) -> None:
     if len(rows) != len(cols):
-        raise _fail(path, f"a counts matrix must be square; got {len(rows)} rows and {len(cols)} columns")
+        raise file_error(path, f"a counts matrix must be square; got {len(rows)} rows and {len(cols)} columns")
     for name, labels in (("row", rows), ("column", cols)):
         seen = set()
         for label in labels:
             if label in seen:
-                raise _fail(path, f"{name} label {label!r} appears more than once")
+                raise file_error(path, f"{name} label {label!r} appears more than once")
             seen.add(label)
     if set(rows) != set(cols):
         only_rows = sorted(set(rows) - set(cols))
         only_cols = sorted(set(cols) - set(rows))
-        raise _fail(path, f"row and column labels differ: rows only {only_rows!r}, "
-                          f"columns only {only_cols!r}")
+        raise file_error(path, f"row and column labels differ: rows only {only_rows!r}, "
+                               f"columns only {only_cols!r}")
 
 
 def _parse_counts(path, cells: np.ndarray, rows, cols) -> np.ndarray:
@@ -108,21 +99,21 @@ def _parse_counts(path, cells: np.ndarray, rows, cols) -> np.ndarray:
         i, j = np.unravel_index(int(np.flatnonzero(~ok)[0]), cells.shape)
         text = flat.iloc[i * cells.shape[1] + j]
         what = "is empty" if not text else f"{text!r} is not a non-negative integer"
-        raise _fail(path, f"row {rows[i]!r} column {cols[j]!r} (line {i + 2}): cell {what}")
+        raise file_error(path, f"row {rows[i]!r} column {cols[j]!r} (line {i + 2}): cell {what}")
     digits = flat.str.lstrip("+").str.lstrip("0")
     limit = str(_INT64_MAX)
     big = ((digits.str.len() > len(limit))
            | ((digits.str.len() == len(limit)) & (digits > limit))).to_numpy(dtype=bool)
     if big.any():
         i, j = np.unravel_index(int(np.flatnonzero(big)[0]), cells.shape)
-        raise _fail(path, f"row {rows[i]!r} column {cols[j]!r} (line {i + 2}): count "
-                          f"{flat.iloc[i * cells.shape[1] + j]!r} is above the largest count "
-                          f"held exactly, {_INT64_MAX} (int64)")
+        raise file_error(path, f"row {rows[i]!r} column {cols[j]!r} (line {i + 2}): count "
+                               f"{flat.iloc[i * cells.shape[1] + j]!r} is above the largest count "
+                               f"held exactly, {_INT64_MAX} (int64)")
     counts = flat.astype(np.int64).to_numpy().reshape(cells.shape)
     total = sum(int(v) for v in counts.sum(axis=1, dtype=object))
     if total > _INT64_MAX:
-        raise _fail(path, f"the counts add up to {total}, above the largest total held exactly, "
-                          f"{_INT64_MAX} (int64)")
+        raise file_error(path, f"the counts add up to {total}, above the largest total held exactly, "
+                               f"{_INT64_MAX} (int64)")
     return counts
 
 
@@ -163,8 +154,8 @@ def reorder_classes(path, t: xr.DataArray, classes, what: str = "matrix") -> xr.
     unknown = [c for c in wanted if c not in have]
     missing = [c for c in have if c not in wanted]
     if unknown or missing:
-        raise _fail(path, f"`classes` does not match the {what} labels: not in the {what} "
-                          f"{unknown!r}, not in `classes` {missing!r}")
+        raise file_error(path, f"`classes` does not match the {what} labels: not in the {what} "
+                               f"{unknown!r}, not in `classes` {missing!r}")
     by_text = dict(zip(have, t.coords[ACTUAL].values.tolist()))
     order = [by_text[c] for c in wanted]
     return t.sel({ACTUAL: order, PREDICTED: order})

@@ -17,7 +17,7 @@ import xarray as xr
 
 from foldcorr.analysis.compare import joint_tally
 from foldcorr.errors import InvalidInputError
-from foldcorr.sources.formats import file_error
+from foldcorr.sources.problems import file_error
 from foldcorr.sources.tables import classes_like, read_table, text_labels
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_columns
 
@@ -174,7 +174,7 @@ def _check_ids(path_a, path_b, ids_a: pd.Series, ids_b: pd.Series, name: str) ->
         dup = ids.duplicated()
         if dup.any():
             raise file_error(path, f"id column {name!r} repeats {int(dup.sum())} ids (first "
-                              f"{_first(ids[dup])}); ids must be unique")
+                                   f"{_first(ids[dup])}); ids must be unique")
     only_a = ~ids_a.isin(ids_b)
     only_b = ~ids_b.isin(ids_a)
     if only_a.any() or only_b.any():

@@ -4,7 +4,7 @@
 glob); :func:`checked_schema` reads a file's columns before any row;
 :func:`read_batches` yields its record batches, read ahead by a background
 thread (:func:`prefetch`), and turns a read error into an
-:class:`~foldcorr.sources.formats.UnreadableFile` naming the file, which a
+:class:`~foldcorr.sources.problems.UnreadableFile` naming the file, which a
 dataset may skip. :class:`Progress` draws rows and files done on stderr.
 """
 
@@ -16,7 +16,8 @@ import sys
 from pathlib import Path
 
 from foldcorr.errors import FoldcorrError, InvalidInputError
-from foldcorr.sources.formats import TABLE_SUFFIXES, UnreadableFile, file_error, first_line
+from foldcorr.sources.formats import TABLE_SUFFIXES
+from foldcorr.sources.problems import UnreadableFile, file_error, first_line
 from foldcorr.tensor.coding import arrow_kind
 
 __all__ = ["BATCH_ROWS", "PREFETCH", "resolve_paths", "prefetch", "read_batches",
@@ -273,7 +274,7 @@ def require_columns(f, schema, names) -> None:
     >>> require_columns("p.csv", pa.schema([("actual", pa.string())]), ["actual", None, "w"])
     Traceback (most recent call last):
     ...
-    foldcorr.sources.formats.UnreadableFile: p.csv: column 'w' not found; the table has ['actual']
+    foldcorr.sources.problems.UnreadableFile: p.csv: column 'w' not found; the table has ['actual']
     """
     for name in names:
         if name is not None and name not in schema.names:

@@ -28,7 +28,8 @@ import numpy as np
 
 from foldcorr._version import __version__
 from foldcorr.errors import InvalidInputError
-from foldcorr.sources.formats import TABLE_FORMATS, UnreadableFile, file_error, format_for
+from foldcorr.sources.formats import TABLE_FORMATS, format_for
+from foldcorr.sources.problems import UnreadableFile, file_error
 from foldcorr.sources.reading import (
     BATCH_ROWS,
     Progress,
@@ -169,7 +170,7 @@ def stream_tensor(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
     files = resolve_paths(path)
     if truth == pred:
         raise file_error(files[0] if len(files) == 1 else Path(str(path)),
-                    f"truth and pred name the same column {truth!r}")
+                         f"truth and pred name the same column {truth!r}")
     if isinstance(where, str):
         where = parse_where(where)
     show = sys.stderr.isatty() if progress is None else progress
@@ -284,8 +285,8 @@ def plan_files(path, files, truth, pred, fold, weight, where, skip_bad_files) ->
                 first["__file__"], first["__text__"] = f.name, text
             elif fmt.text != text:
                 raise UnreadableFile(file_error(f, "CSV and typed files (Parquet, JSON Lines) "
-                                                   "cannot be mixed in one dataset; the first "
-                                                   f"file is {first['__file__']}"))
+                                                        "cannot be mixed in one dataset; the first "
+                                                        f"file is {first['__file__']}"))
             require_columns(f, schema, [fold_col])
             chosen.append((f, fmt))
         except UnreadableFile as exc:
@@ -366,7 +367,7 @@ def finish_tally(plan: FilePlan, acc: StreamTally, used, skipped, classes,
     name = plan.files[0][0] if plan.single else Path(plan.source)
     if acc.rows == 0:
         raise file_error(name, "no rows pass the filter" if plan.where is not None
-                    else "the table has no rows")
+                         else "the table has no rows")
     attrs = {"truth_column": plan.truth, "pred_column": plan.pred}
     if plan.fold:
         attrs["by_columns"] = f"{FOLD}={plan.fold}"

@@ -18,7 +18,8 @@ import pandas as pd
 import xarray as xr
 
 from foldcorr.errors import InvalidInputError
-from foldcorr.sources.formats import TABLE_FORMATS, file_error, first_line, format_for
+from foldcorr.sources.formats import TABLE_FORMATS, format_for
+from foldcorr.sources.problems import file_error, first_line
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_frame
 from foldcorr.tensor.coding import coerce_classes, labels_as_text, series_kind
 
