@@ -41,7 +41,9 @@ _EXPORTS = {
     "foldcorr.report.plots": [
         "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
     ],
-    "foldcorr.sources.stream": ["tally_dataset", "stream_tensor", "parse_where", "StreamResult"],
+    "foldcorr.sources.dispatch": ["load", "load_tensor", "tally_dataset"],
+    "foldcorr.sources.stream": ["stream_tensor", "StreamResult"],
+    "foldcorr.sources.where": ["parse_where"],
     "foldcorr.analysis.multilabel": ["evaluate_multilabel", "MultilabelEvaluation"],
     "foldcorr.analysis.thresholds": ["sweep", "threshold_curve", "SweepResult", "LabelSweep"],
     "foldcorr.analysis.shift": ["shift_prevalence", "target_prevalence", "shifted_figures", "ShiftResult"],

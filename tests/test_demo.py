@@ -8,7 +8,7 @@ import pytest
 
 import foldcorr as fc
 from foldcorr.sources.demo import SYSTEMATIC, TAXA, make_demo
-from foldcorr.sources.tables import load_tensor
+from foldcorr.sources import load_tensor
 
 FIXTURES = pathlib.Path(__file__).parent.parent / "fixtures"
 

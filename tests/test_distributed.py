@@ -22,7 +22,7 @@ import dask  # noqa: E402
 
 from foldcorr.cli import main  # noqa: E402
 from foldcorr.errors import EngineError, InvalidInputError  # noqa: E402
-from foldcorr.sources.stream import tally_dataset  # noqa: E402
+from foldcorr.sources import tally_dataset  # noqa: E402
 
 
 @pytest.fixture(scope="module")

@@ -164,7 +164,7 @@ def test_classes_reorder_a_saved_file(saved, capsys):
     doc = json.loads(printed)
     assert doc["classes"] == order
     assert abs(doc["pooled"]["rk"] - matthews_corrcoef(df.actual, df.predicted)) < 1e-12
-    from foldcorr.sources.tables import TableSpec, load_tensor
+    from foldcorr.sources import TableSpec, load_tensor
 
     t = load_tensor(out, TableSpec(classes=tuple(order))).sum("fold")
     assert (t.values == confusion_matrix(df.actual, df.predicted, labels=order)).all()

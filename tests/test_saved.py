@@ -12,7 +12,7 @@ from foldcorr.cli import main
 from foldcorr.errors import InvalidInputError
 from foldcorr.tensor.samples import Samples
 from foldcorr.sources.saved import SAVED_SCHEMA, file_sha256, load_saved, save_evaluation
-from foldcorr.sources.tables import load_tensor
+from foldcorr.sources import load_tensor
 from foldcorr.tensor import confusion_tensor, tally
 from foldcorr.testing import assert_tensor_equal
 

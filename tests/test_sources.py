@@ -6,7 +6,8 @@ import pytest
 from sklearn.metrics import confusion_matrix
 
 from foldcorr import InvalidInputError
-from foldcorr.sources.tables import TableSpec, load_tensor, read_matrix
+from foldcorr.sources import TableSpec, load_tensor
+from foldcorr.sources.matrix import read_matrix
 
 
 @pytest.fixture

@@ -15,8 +15,12 @@ from sklearn.metrics import confusion_matrix
 
 from foldcorr.cli import main
 from foldcorr.errors import InvalidInputError
-from foldcorr.sources.tables import TableSpec, _load_in_memory, load_tensor
-from foldcorr.sources.stream import StreamTally, parse_where, resolve_paths, stream_tensor
+from foldcorr.sources import load_tensor
+from foldcorr.sources.reading import resolve_paths
+from foldcorr.sources.stream import stream_tensor
+from foldcorr.sources.tables import TableSpec, _load_in_memory
+from foldcorr.sources.where import parse_where
+from foldcorr.tensor.accumulator import StreamTally
 from foldcorr.tensor import tally_frame
 
 

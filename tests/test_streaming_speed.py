@@ -17,10 +17,13 @@ import pyarrow.parquet as pq
 import pytest
 from sklearn.metrics import confusion_matrix
 
-import foldcorr.sources.stream as streaming
+import foldcorr.tensor.accumulator as accumulator
 from foldcorr.errors import InvalidInputError
+from foldcorr.sources.formats import ParquetFormat
+from foldcorr.sources.reading import prefetch
+from foldcorr.sources.stream import stream_tensor
 from foldcorr.sources.tables import TableSpec, _load_in_memory
-from foldcorr.sources.stream import StreamTally, stream_tensor
+from foldcorr.tensor.accumulator import StreamTally
 from foldcorr.tensor import count_codes
 
 
@@ -56,9 +59,9 @@ def test_parquet_text_read_as_dictionary_equals_sklearn(tmp_path, stored):
     whole = pd.concat(parts, ignore_index=True)
     labels = sorted(set(whole["actual"]) | set(whole["predicted"]))
     # The reader hands out dictionary arrays for the label columns.
-    batch = next(streaming._batches(tmp_path / "part-0.parquet", "parquet",
-                                    ["actual", "predicted", "fold"], ["actual", "predicted",
-                                                                      "fold"], None, 50))
+    batch = next(ParquetFormat().batches(tmp_path / "part-0.parquet",
+                                         ["actual", "predicted", "fold"],
+                                         ["actual", "predicted", "fold"], None, 50))
     assert pa.types.is_dictionary(batch.schema.field("actual").type)
     for batch_rows in (37, 1 << 20):
         r = stream_tensor(tmp_path, batch_rows=batch_rows)
@@ -103,7 +106,7 @@ def test_uint32_batch_counts_flush_into_the_tally(monkeypatch):
     # Batches of 300 rows: a limit of 700 flushes every few batches, 250 counts
     # each batch straight into the int64 array.
     for limit in (700, 250):
-        monkeypatch.setattr(streaming, "_PENDING_MAX", limit)
+        monkeypatch.setattr(accumulator, "PENDING_MAX", limit)
         acc = StreamTally(fold="fold")
         for i, t in enumerate(tables):
             acc.add(t)
@@ -159,15 +162,15 @@ def test_read_ahead_keeps_order_raises_in_turn_and_stops_when_closed():
 
     got = []
     with pytest.raises(ValueError, match="damaged block"):
-        for x in streaming._prefetch(items(), 2):
+        for x in prefetch(items(), 2):
             got.append(x)
     assert got == [0, 1, 2, 3, 4]          # every item before the error, in order
 
-    endless = streaming._prefetch(iter(lambda: 1, None), 2)
+    endless = prefetch(iter(lambda: 1, None), 2)
     assert next(endless) == 1
     endless.close()                        # the caller stops early: the thread ends too
     assert not any(t.name == "foldcorr-read-ahead" for t in threading.enumerate())
-    assert list(streaming._prefetch(iter(range(3)), 0)) == [0, 1, 2]
+    assert list(prefetch(iter(range(3)), 0)) == [0, 1, 2]
 
 
 def test_read_ahead_thread_stops_when_a_batch_is_refused(tmp_path):

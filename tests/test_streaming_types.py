@@ -5,10 +5,10 @@ import pandas as pd
 import pytest
 from sklearn.metrics import confusion_matrix
 
-import foldcorr.sources.stream as streaming
+import foldcorr.sources.formats as formats
 from foldcorr.cli import main
 from foldcorr.errors import InvalidInputError
-from foldcorr.sources.stream import tally_dataset
+from foldcorr.sources import tally_dataset
 
 LABELS = ["diatom", "copepod", "larva"]
 
@@ -17,7 +17,7 @@ LABELS = ["diatom", "copepod", "larva"]
 def small_blocks(monkeypatch):
     # 512-byte blocks: the tables below span dozens of blocks, so a type guessed from the
     # first block would be wrong later on.
-    monkeypatch.setattr(streaming, "BLOCK_BYTES", 512)
+    monkeypatch.setattr(formats, "BLOCK_BYTES", 512)
 
 
 @pytest.fixture

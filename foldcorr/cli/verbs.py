@@ -116,7 +116,7 @@ def _check_save(args, source) -> None:
 def _prepare_save(args, ev, options, source=None):
     """The ``--save`` request (None without it), checked; written by :func:`_write_save`."""
     from foldcorr.pipeline import saved_options
-    from foldcorr.sources.saved import prepare_save
+    from foldcorr.sources.saving import prepare_save
 
     return prepare_save(getattr(args, "save", None), ev.tensor, source or args.path,
                         id_column=getattr(args, "id_column", None),
@@ -146,7 +146,7 @@ def run_gate(args) -> int:
         if getattr(args, dest) not in (None, False) and not args.baseline:
             raise OptionError(f"`{flag}` {does} a baseline; give --baseline FILE too")
     if args.confidence is not None:
-        from foldcorr.analysis.uncertainty import check_level, check_resamples
+        from foldcorr.analysis.resampling import check_level, check_resamples
 
         check_level(args.confidence, name="--confidence")
         if "resamples" in given:
@@ -263,7 +263,7 @@ COMPARE_SETTINGS = {"ci": "level", "resamples": "n_resamples", "permutations": "
 
 def run_compare(args) -> int:
     from foldcorr.analysis.compare import compare_models
-    from foldcorr.analysis.uncertainty import check_level, check_resamples
+    from foldcorr.analysis.resampling import check_level, check_resamples
     from foldcorr.report.compare import compare_report, render_compare
     from foldcorr.report.text import render_rich
     from foldcorr.sources.paired import PairSpec, load_joint

@@ -125,7 +125,7 @@ class ScoreOptions:
             object.__setattr__(self, key, value)
 
     def _intervals(self, name) -> dict:
-        from foldcorr.analysis.uncertainty import check_level, check_resamples
+        from foldcorr.analysis.resampling import check_level, check_resamples
 
         if self.level is None:
             for key in ("n_resamples", "method"):

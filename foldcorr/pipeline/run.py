@@ -190,10 +190,9 @@ def load_source(source, *, names: Mapping | None = None, **table):
     if table.get("matrix") and (table.get("where") is not None or engine not in (None, "local")):
         raise OptionError(f"`{name('where')}` and `{name('engine')}` apply to prediction tables, "
                           f"not to `{name('matrix')}`")
-    from foldcorr.sources.tables import TableSpec, load_tensor
+    from foldcorr.sources import load
 
-    spec = TableSpec(**{k: table[k] for k in _SPEC_KEYS if k in table})
-    return load_tensor(source, spec, **{k: v for k, v in table.items() if k not in _SPEC_KEYS})
+    return load(source, **table)
 
 
 def _check_multilabel(table: dict, given: dict, name) -> None:
@@ -342,12 +341,14 @@ def load_evaluation(path, *, undefined: str | None = None, id_column: str | None
     >>> ev.n, samples is None
     (3, True)
     """
-    from foldcorr.sources.saved import is_saved_path, load_saved, read_samples
+    from foldcorr.sources.saved import is_saved_path, load_saved
+    from foldcorr.sources.saving import read_samples
 
     no_analyses = {"analyses": ()}
     if is_saved_path(path):
         if check_table:
-            from foldcorr.sources.tables import TableSpec, check_saved_options
+            from foldcorr.sources import TableSpec
+            from foldcorr.sources.saved import check_saved_options
 
             spec = TableSpec(**{k: table[k] for k in _SPEC_KEYS if k in table})
             check_saved_options(path, spec, matrix=table.get("matrix", False), id_column=id_column)

@@ -2,7 +2,7 @@
 
 Each piece of the dataset (a file, or a partition of a Dask DataFrame) is
 tallied on a worker into a small count array over its own label codes (folds x
-K x K, a :class:`foldcorr.sources.stream.StreamTally`); partial tallies are merged
+K x K, a :class:`foldcorr.tensor.accumulator.StreamTally`); partial tallies are merged
 pairwise up a tree (fan-in :data:`FAN_IN`), and the labels are settled once on
 the last worker with the same code as the local engine. Only the tensor comes
 back to the client, so the result equals the local one.
@@ -16,21 +16,20 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
+from foldcorr._version import __version__
 from foldcorr.errors import EngineError, FoldcorrError, InvalidInputError, require
+from foldcorr.sources.reading import BATCH_ROWS, Progress, resolve_paths
 from foldcorr.sources.stream import (
-    ACTUAL,
-    PREDICTED,
+    FilePlan,
     StreamResult,
-    _FileCheck,
-    _finish,
-    _plan,
-    _Progress,
-    _raise_checks,
-    _tally_files,
-    BATCH_ROWS,
-    parse_where,
-    resolve_paths,
+    finish_tally,
+    plan_files,
+    raise_checks,
+    tally_files,
 )
+from foldcorr.sources.where import parse_where
+from foldcorr.tensor import ACTUAL, PREDICTED
+from foldcorr.tensor.accumulator import BatchCheck
 
 __all__ = ["dask_tally", "FAN_IN"]
 
@@ -167,14 +166,14 @@ def _run_files(client, path, truth, pred, fold, weight, classes, where, skip_bad
     if truth == pred:
         raise InvalidInputError(f"truth and pred name the same column {truth!r}")
     files = resolve_paths(path)
-    plan = _plan(path, files, truth, pred, fold, weight, where, skip_bad_files)
+    plan = plan_files(path, files, truth, pred, fold, weight, where, skip_bad_files)
     workers = max(1, len(client.scheduler_info().get("workers", {})))
     groups = _groups(plan.files, PIECES_PER_WORKER * workers)
     leaves = client.map(_files_piece, groups, plan=plan, classes=classes,
                         batch_rows=batch_rows, skip=skip_bad_files, pure=False)
     show = sys.stderr.isatty() if progress is None else progress
     if show:
-        bar = _Progress(len(files))
+        bar = Progress(len(files))
         bar.advance(len(plan.skipped))
         root = _tree(client, leaves)          # the reduction starts while we watch
         try:
@@ -221,7 +220,7 @@ def _groups(files, n: int) -> list[list]:
 
 
 def _files_piece(files, *, plan, classes, batch_rows, skip) -> _Piece:
-    acc, used, skipped = _tally_files(plan, files, classes, skip, batch_rows)
+    acc, used, skipped = tally_files(plan, files, classes, skip, batch_rows)
     return _Piece(acc, used, skipped)
 
 
@@ -254,19 +253,17 @@ def _finish_piece(piece: _Piece, *, plan, classes, batch_rows) -> StreamResult:
     order = {f: i for i, (f, _) in enumerate(plan.files)}
     used = sorted(piece.used, key=order.__getitem__)
     skipped = list(plan.skipped) + sorted(piece.skipped)
-    return _finish(plan, piece.tally, used, skipped, classes, batch_rows)
+    return finish_tally(plan, piece.tally, used, skipped, classes, batch_rows)
 
 
 def _run_frame(client, frame, truth, pred, fold, weight, classes, where, progress
                ) -> StreamResult:
-    from foldcorr.sources.stream import _Plan
-
     names = list(frame.columns)
     for name in (truth, pred, weight, None if fold == "auto" else fold):
         if name is not None and name not in names:
             raise InvalidInputError(f"column {name!r} not found; the frame has {names!r}")
     fold_col = ("fold" if "fold" in names else None) if fold == "auto" else fold
-    plan = _Plan(files=(), skipped=(), truth=truth, pred=pred, fold=fold_col, weight=weight,
+    plan = FilePlan(files=(), skipped=(), truth=truth, pred=pred, fold=fold_col, weight=weight,
                  text=False, where=where, source="dask dataframe", single=False)
     parts = frame.to_delayed()
     leaves = client.compute([_delayed_partition(p, i, plan, classes) for i, p in enumerate(parts)])
@@ -289,14 +286,14 @@ def _partition_piece(df, i: int, plan, classes) -> _Piece:
     if plan.where is not None:
         table = table.filter(plan.where.expression(table.schema))
     acc = plan.new_tally()
-    check = _FileCheck()
+    check = BatchCheck()
     name = Path(f"partition {i}")
     try:
         for batch in table.to_batches():
             acc.add(batch, check)
     except InvalidInputError as exc:
         raise InvalidInputError(f"{name}: {exc}") from None
-    _raise_checks(name, check, acc, classes)
+    raise_checks(name, check, acc, classes)
     return _Piece(acc, [], [])
 
 
@@ -316,8 +313,6 @@ def _finish_frame(piece: _Piece, *, plan, classes, n) -> StreamResult:
         attrs["by_columns"] = f"fold={plan.fold}"
     if plan.weight:
         attrs["weight_column"] = plan.weight
-    from foldcorr._version import __version__
-
     attrs.update({"n_rows": int(acc.rows), "foldcorr_version": __version__,
                   "source": plan.source, "n_partitions": n})
     if plan.fold:

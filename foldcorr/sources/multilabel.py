@@ -19,6 +19,7 @@ import xarray as xr
 
 from foldcorr.errors import InvalidInputError, OptionError
 from foldcorr.tensor import indicators_from_sets, multilabel_tally
+from foldcorr.sources.problems import file_error
 from foldcorr.sources.tables import read_table
 from foldcorr.tensor import FOLD
 
@@ -64,10 +65,6 @@ class MultilabelSpec:
     labels: tuple | None = None
 
 
-def _fail(path, message: str) -> InvalidInputError:
-    return InvalidInputError(f"{Path(path).name}: {message}")
-
-
 def _layout(spec) -> str:
     def given(*names):
         return any(getattr(spec, n, None) is not None for n in names)
@@ -106,11 +103,11 @@ def _pair_columns(path, columns: list, truth_cols, other_cols, truth_prefix, oth
     o = {c[len(other_prefix):]: c for c in columns
          if c.startswith(other_prefix) and not c.startswith(truth_prefix)}
     if not t:
-        raise _fail(path, f"no column starts with the truth prefix {truth_prefix!r}; "
-                          f"the table has {columns!r}")
+        raise file_error(path, f"no column starts with the truth prefix {truth_prefix!r}; "
+                               f"the table has {columns!r}")
     if set(t) != set(o):
-        raise _fail(path, f"columns do not pair by suffix: truth only {sorted(set(t) - set(o))!r}, "
-                          f"{other_name} only {sorted(set(o) - set(t))!r}")
+        raise file_error(path, f"columns do not pair by suffix: truth only {sorted(set(t) - set(o))!r}, "
+                               f"{other_name} only {sorted(set(o) - set(t))!r}")
     labels = [s for s in t]  # table order of the truth columns
     return [t[s] for s in labels], [o[s] for s in labels], labels
 
@@ -118,7 +115,7 @@ def _pair_columns(path, columns: list, truth_cols, other_cols, truth_prefix, oth
 def _require(path, columns, names) -> None:
     for name in names:
         if name is not None and name not in columns:
-            raise _fail(path, f"column {name!r} not found; the table has {list(columns)!r}")
+            raise file_error(path, f"column {name!r} not found; the table has {list(columns)!r}")
 
 
 def _indicator_block(path, df: pd.DataFrame, cols: list) -> np.ndarray:
@@ -126,8 +123,8 @@ def _indicator_block(path, df: pd.DataFrame, cols: list) -> np.ndarray:
     for j, col in enumerate(cols):
         s = df[col]
         if s.isna().any():
-            raise _fail(path, f"column {col!r} row {int(np.flatnonzero(s.isna())[0]) + 1}: "
-                              "missing indicator")
+            raise file_error(path, f"column {col!r} row {int(np.flatnonzero(s.isna())[0]) + 1}: "
+                                   "missing indicator")
         if pd.api.types.is_bool_dtype(s):
             out[:, j] = s.to_numpy(dtype=bool)
             continue
@@ -142,8 +139,8 @@ def _indicator_block(path, df: pd.DataFrame, cols: list) -> np.ndarray:
             values = v
         if bad.any():
             row = int(np.flatnonzero(bad)[0])
-            raise _fail(path, f"column {col!r} row {row + 1}: indicator "
-                              f"{_py(s.iloc[row])!r} is not 0/1 or true/false")
+            raise file_error(path, f"column {col!r} row {row + 1}: indicator "
+                                   f"{_py(s.iloc[row])!r} is not 0/1 or true/false")
         out[:, j] = np.asarray(values, dtype=bool)
     return out
 
@@ -160,8 +157,8 @@ def _fold(path, df, fold):
     if name is not None:
         _require(path, df.columns, [name])
         if df[name].isna().any():
-            raise _fail(path, f"column {name!r} row {int(np.flatnonzero(df[name].isna())[0]) + 1}: "
-                              "missing fold label")
+            raise file_error(path, f"column {name!r} row {int(np.flatnonzero(df[name].isna())[0]) + 1}: "
+                                   "missing fold label")
     return name
 
 
@@ -216,7 +213,7 @@ def load_multilabel(path, spec: MultilabelSpec) -> xr.DataArray:
             truth, labels = indicators_from_sets(truth_sets, labels, name=f"column {spec.truth!r}")
             pred, _ = indicators_from_sets(pred_sets, labels, name=f"column {spec.pred!r}")
         except InvalidInputError as exc:
-            raise _fail(path, str(exc)) from None
+            raise file_error(path, str(exc)) from None
         used = {"truth_column": spec.truth, "pred_column": spec.pred, "sep": spec.sep}
     else:
         t_cols, p_cols, labels = _pair_columns(path, columns, spec.truth_cols, spec.pred_cols,
@@ -233,7 +230,7 @@ def load_multilabel(path, spec: MultilabelSpec) -> xr.DataArray:
         t = multilabel_tally(truth, pred, labels=labels,
                              folds=None if fold is None else df[fold].to_numpy(), weights=weights)
     except InvalidInputError as exc:
-        raise _fail(path, str(exc)) from None
+        raise file_error(path, str(exc)) from None
     t.attrs.update({"source": path.name, **used, **({"fold_column": fold} if fold else {})})
     return t
 
@@ -292,28 +289,28 @@ class ScoreTable:
 
 def _binary_truth(path, s: pd.Series, col: str, positive) -> np.ndarray:
     if s.isna().any():
-        raise _fail(path, f"column {col!r} row {int(np.flatnonzero(s.isna())[0]) + 1}: "
-                          "missing truth value")
+        raise file_error(path, f"column {col!r} row {int(np.flatnonzero(s.isna())[0]) + 1}: "
+                               "missing truth value")
     if positive is not None:
         text = s.astype(str).str.strip()
         hit = (text == str(positive).strip()).to_numpy()
         if not hit.any():
             shown = sorted(text.unique().tolist())[:10]
-            raise _fail(path, f"--positive {positive!r} does not occur in column {col!r}; "
-                              f"its values include {shown!r}")
+            raise file_error(path, f"--positive {positive!r} does not occur in column {col!r}; "
+                                   f"its values include {shown!r}")
         return hit
     if pd.api.types.is_bool_dtype(s):
         return s.to_numpy(dtype=bool)
     values = s.astype(str).str.strip().str.lower()
     uniq = sorted(values.unique().tolist())
     if len(uniq) > 2:
-        raise _fail(path, f"column {col!r} has {len(uniq)} distinct values "
-                          f"({uniq[:10]!r}); a sweep needs binary truth: give --positive VALUE")
+        raise file_error(path, f"column {col!r} has {len(uniq)} distinct values "
+                               f"({uniq[:10]!r}); a sweep needs binary truth: give --positive VALUE")
     mapped = values.map({"1": True, "0": False, "true": True, "false": False,
                          "1.0": True, "0.0": False})
     if mapped.isna().any():
-        raise _fail(path, f"column {col!r}: values {uniq!r} are not 0/1 or true/false; "
-                          "say which one is positive with --positive VALUE")
+        raise file_error(path, f"column {col!r}: values {uniq!r} are not 0/1 or true/false; "
+                               "say which one is positive with --positive VALUE")
     return mapped.to_numpy(dtype=bool)
 
 
@@ -325,8 +322,8 @@ def _score_column(path, s: pd.Series, col: str) -> np.ndarray:
         row = int(np.flatnonzero(bad)[0])
         raw = _py(s.iloc[row])
         what = "missing" if pd.isna(raw) else f"{raw!r} is not a finite number"
-        raise _fail(path, f"column {col!r} row {row + 1}: score {what} "
-                          f"({int(bad.sum())} bad scores in all); scores must be finite numbers")
+        raise file_error(path, f"column {col!r} row {row + 1}: score {what} "
+                               f"({int(bad.sum())} bad scores in all); scores must be finite numbers")
     return values
 
 
@@ -411,8 +408,8 @@ def read_prevalence(value: str):
         path = Path(text)
         df = read_table(path)
         if df.shape[1] < 2:
-            raise _fail(path, f"a prevalence file needs two columns (class, share); got "
-                              f"{list(df.columns)!r}")
+            raise file_error(path, f"a prevalence file needs two columns (class, share); got "
+                                   f"{list(df.columns)!r}")
         pairs = [(str(c).strip(), v) for c, v in zip(df.iloc[:, 0], df.iloc[:, 1])]
     else:
         pairs = []

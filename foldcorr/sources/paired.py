@@ -17,7 +17,8 @@ import xarray as xr
 
 from foldcorr.tensor import joint_tally
 from foldcorr.errors import InvalidInputError
-from foldcorr.sources.tables import _as_text, _coerce_classes, _fail, read_table
+from foldcorr.sources.problems import file_error
+from foldcorr.sources.tables import classes_like, read_table, text_labels
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_columns
 
 __all__ = ["PairSpec", "load_joint"]
@@ -56,7 +57,7 @@ class PairSpec:
 def _need(path, df, names) -> None:
     for name in names:
         if name is not None and name not in df.columns:
-            raise _fail(path, f"column {name!r} not found; the table has {list(df.columns)!r}")
+            raise file_error(path, f"column {name!r} not found; the table has {list(df.columns)!r}")
 
 
 def _fold_of(df, spec) -> str | None:
@@ -72,7 +73,7 @@ def _first(values) -> str:
 def _same_kind(*columns: pd.Series) -> list[pd.Series]:
     numeric = {pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s)
                for s in columns}
-    return [_as_text(s) for s in columns] if len(numeric) > 1 else list(columns)
+    return [text_labels(s) for s in columns] if len(numeric) > 1 else list(columns)
 
 
 def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArray:
@@ -151,17 +152,17 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
         names = (spec.truth, col_a, col_b)
         source = f"{path.name} + {path_b.name}"
     truth, a, b = _same_kind(truth, a, b)
-    classes = None if spec.classes is None else _coerce_classes(spec.classes, truth)
+    classes = None if spec.classes is None else classes_like(spec.classes, truth)
     if path_b is not None:  # B's labels checked in B's own row order, before the join's
         try:
             tally_columns({PREDICTED: (col_b, b.iloc[np.argsort(position)])}, classes=classes)
         except InvalidInputError as exc:
-            raise _fail(path_b, str(exc)) from None
+            raise file_error(path_b, str(exc)) from None
     try:
         j = joint_tally(truth, a, b, folds=None if fold is None else df[fold], classes=classes,
                         names=names)
     except InvalidInputError as exc:
-        raise _fail(path, str(exc)) from None
+        raise file_error(path, str(exc)) from None
     j.attrs["source"] = source
     return j
 
@@ -169,11 +170,11 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
 def _check_ids(path_a, path_b, ids_a: pd.Series, ids_b: pd.Series, name: str) -> None:
     for path, ids in ((path_a, ids_a), (path_b, ids_b)):
         if ids.isna().any():
-            raise _fail(path, f"id column {name!r} has {int(ids.isna().sum())} missing ids")
+            raise file_error(path, f"id column {name!r} has {int(ids.isna().sum())} missing ids")
         dup = ids.duplicated()
         if dup.any():
-            raise _fail(path, f"id column {name!r} repeats {int(dup.sum())} ids (first "
-                              f"{_first(ids[dup])}); ids must be unique")
+            raise file_error(path, f"id column {name!r} repeats {int(dup.sum())} ids (first "
+                                   f"{_first(ids[dup])}); ids must be unique")
     only_a = ~ids_a.isin(ids_b)
     only_b = ~ids_b.isin(ids_a)
     if only_a.any() or only_b.any():

@@ -48,11 +48,10 @@ __all__ = [
     "save_evaluation",
     "load_saved",
     "is_saved_path",
-    "read_samples",
     "file_sha256",
     "check_save_target",
-    "SaveRequest",
-    "prepare_save",
+    "check_saved_options",
+    "label_codes",
 ]
 
 #: Schema name and version written into every saved evaluation.
@@ -148,131 +147,58 @@ def check_save_target(target, source=None, *, name: str = "--save") -> Path:
     return path
 
 
-@dataclass(frozen=True)
-class SaveRequest:
-    """A saved evaluation checked and gathered, to be written once the run succeeded.
+def check_saved_options(path, spec=None, *, matrix: bool = False, where=None,
+                        skip_bad_files: bool = False, engine: str = "local", scheduler=None,
+                        id_column: str | None = None) -> None:
+    """Refuse options that describe a prediction table, given with a saved evaluation.
 
-    Attributes
-    ----------
-    target : pathlib.Path
-        The ``.nc`` file to write.
-    tensor : xarray.DataArray
-        The confusion tensor.
-    samples : Samples or None
-        Per-sample ids and labels (with an id column).
-    options : dict
-        Options that shaped the report.
-    provenance : dict
-        Global attributes: source file name, its SHA-256 when it is one file,
-        seed when one was used.
-    """
-
-    target: Path
-    tensor: xr.DataArray
-    samples: Samples | None = None
-    options: dict = field(default_factory=dict)
-    provenance: dict = field(default_factory=dict)
-
-    def write(self) -> Path:
-        """Write the file (atomically, see :func:`save_evaluation`); return its path."""
-        return save_evaluation(self.target, self.tensor, samples=self.samples,
-                               options=self.options, provenance=self.provenance)
-
-
-def prepare_save(target, tensor, source, *, id_column: str | None = None,
-                 options: dict | None = None, where=None, matrix: bool = False,
-                 weight: str | None = None) -> SaveRequest | None:
-    """Check a request to save an evaluation and gather what the file will hold.
-
-    Nothing is written: the caller writes :meth:`SaveRequest.write` only after
-    the whole run succeeded, so that a failing run leaves no saved file.
+    A saved evaluation holds counts already tallied: which columns they came
+    from, which rows were kept and how they were weighted cannot be changed
+    afterwards. Only ``spec.classes`` applies, as a new class order.
 
     Parameters
     ----------
-    target : str, path-like or None
-        The ``.nc`` file (see :func:`check_save_target`); None saves nothing.
-    tensor : xarray.DataArray
-        The confusion tensor read from ``source``.
-    source : str or path-like
-        What the tensor was read from: a table, a folder or glob of them, a
-        counts matrix or a saved evaluation (whose samples and source
-        provenance are carried over).
-    id_column : str, optional
-        Column of unique sample ids in the single table ``source``; the
-        per-sample labels are saved too.
-    options : dict, optional
-        Options that shaped the report; a ``"seed"`` among them is also
-        recorded in the provenance.
-    where, matrix, weight
-        The row filter, counts-matrix flag and weight column the tensor was
-        read with; each rules out ``id_column`` (the saved samples would not
-        be those counted).
-
-    Returns
-    -------
-    SaveRequest or None
-        None when ``target`` is None.
+    path : str or path-like
+        The saved evaluation (named in the message).
+    spec : foldcorr.sources.tables.TableSpec, optional
+        Column roles; any but ``classes`` differing from the defaults is refused.
+    matrix, where, skip_bad_files, engine, scheduler, id_column
+        Options of :func:`foldcorr.sources.load` (and the sample-id column); any
+        set is refused.
 
     Raises
     ------
     OptionError
-        When ``id_column`` is given without ``target`` or with ``where``,
-        ``matrix``, ``weight`` or a ``source`` that is not one file; or
-        ``target`` is refused by :func:`check_save_target`.
-    InvalidInputError
-        When the ids are missing or repeated (see :func:`read_samples`).
+        Naming the first option that does not apply (with its command-line
+        flag).
 
     Examples
     --------
-    >>> import tempfile, pathlib
-    >>> from foldcorr.sources.tables import load_tensor
-    >>> d = pathlib.Path(tempfile.mkdtemp())
-    >>> _ = (d / "p.csv").write_text("id,actual,predicted\\nu1,a,a\\nu2,b,a\\n")
-    >>> t = load_tensor(d / "p.csv")
-    >>> request = prepare_save(d / "run.nc", t, d / "p.csv", id_column="id", options={"seed": 7})
-    >>> (d / "run.nc").exists(), request.provenance["seed"]
-    (False, 7)
-    >>> load_saved(request.write()).samples.ids.tolist()
-    ['u1', 'u2']
+    >>> from foldcorr.sources.tables import TableSpec
+    >>> check_saved_options("run.nc", TableSpec(classes=("a", "b")))
+    >>> check_saved_options("run.nc", where="fold == 1")
+    Traceback (most recent call last):
+    ...
+    foldcorr.errors.OptionError: run.nc is a saved evaluation: its counts are already tallied, so `where` (--where) cannot apply; 'fold == 1' was given. Only `classes` (--classes) applies to a saved file
     """
-    if not target:
-        if id_column:
-            raise OptionError("`--id` stores sample ids with --save; give --save FILE.nc too")
-        return None
-    target = check_save_target(target, source)
-    source = Path(source)
-    samples = None
-    provenance = {"source": source.name}
-    if is_saved_path(source):
-        if id_column:
-            from foldcorr.sources.tables import check_saved_options
-
-            check_saved_options(source, id_column=id_column)
-        saved = load_saved(source)
-        samples = saved.samples
-        provenance.update({k: v for k, v in saved.provenance.items()
-                           if k in ("source", "source_sha256")})
-    else:
-        if source.is_file():  # a folder or glob of tables has no single hash
-            provenance["source_sha256"] = file_sha256(source)
-        if id_column:
-            if where:
-                raise OptionError("`--id` cannot be combined with `--where`: the saved samples "
-                                  "would not be those counted")
-            if not source.is_file():
-                raise OptionError(f"`--id` needs one prediction table file; got {str(source)!r}")
-            if matrix:
-                raise OptionError("`--id` needs a prediction table; a counts matrix has no "
-                                  "samples")
-            if weight:
-                raise OptionError("`--id` cannot be combined with `--weight`: a paired "
-                                  "comparison counts each sample once")
-            samples = read_samples(source, tensor, id_column)
-    options = dict(options or {})
-    if options.get("seed") is not None:
-        provenance["seed"] = options["seed"]
-    return SaveRequest(target=target, tensor=tensor, samples=samples, options=options,
-                       provenance=provenance)
+    truth, pred, fold, weight = (ACTUAL, PREDICTED, "auto", None) if spec is None else (
+        spec.truth, spec.pred, spec.fold, spec.weight)
+    given = [("truth", truth != ACTUAL, truth),
+             ("pred", pred != PREDICTED, pred),
+             ("fold", fold != "auto", fold),
+             ("weight", weight is not None, weight),
+             ("matrix", bool(matrix), matrix),
+             ("where", where is not None, getattr(where, "text", where)),
+             ("skip_bad_files", bool(skip_bad_files), skip_bad_files),
+             ("engine", engine != "local", engine),
+             ("scheduler", scheduler is not None, scheduler),
+             ("id", id_column is not None, id_column)]
+    for name, is_set, value in given:
+        if is_set:
+            flag = "--" + name.replace("_", "-")
+            raise OptionError(f"{Path(path).name} is a saved evaluation: its counts are already "
+                              f"tallied, so `{name}` ({flag}) cannot apply; {value!r} was given. "
+                              "Only `classes` (--classes) applies to a saved file")
 
 
 def _same_file(a: Path, b: Path) -> bool:
@@ -337,7 +263,19 @@ def _storable_labels(values) -> tuple[np.ndarray, bool]:
     return np.asarray([str(v) for v in arr.tolist()]), True
 
 
-def _label_codes(labels, classes, what: str) -> np.ndarray:
+def label_codes(labels, classes, what: str) -> np.ndarray:
+    """Positions of ``labels`` among ``classes`` (compared as text when not found as they are).
+
+    Raises
+    ------
+    InvalidInputError
+        Naming ``what`` and the first row whose label is not among ``classes``.
+
+    Examples
+    --------
+    >>> label_codes([1, 2, 1], ["1", "2"], "actual").tolist()
+    [0, 1, 0]
+    """
     index = pd.Index(np.asarray(classes).tolist())
     values = np.asarray(labels)
     codes = index.get_indexer(pd.Index(values.tolist()))
@@ -439,12 +377,12 @@ def _sample_vars(samples: Samples, t: xr.DataArray) -> dict:
     ids, _ = _storable_labels(samples.ids)
     out = {
         "sample_id": xr.Variable(SAMPLE, ids),
-        "sample_actual": xr.Variable(SAMPLE, _label_codes(samples.actual, classes, "actual")),
-        "sample_predicted": xr.Variable(SAMPLE, _label_codes(samples.predicted, classes,
+        "sample_actual": xr.Variable(SAMPLE, label_codes(samples.actual, classes, "actual")),
+        "sample_predicted": xr.Variable(SAMPLE, label_codes(samples.predicted, classes,
                                                              "predicted")),
     }
     if samples.fold is not None and FOLD in t.dims:
-        out["sample_fold"] = xr.Variable(SAMPLE, _label_codes(samples.fold, t.coords[FOLD].values,
+        out["sample_fold"] = xr.Variable(SAMPLE, label_codes(samples.fold, t.coords[FOLD].values,
                                                               "fold"))
     return out
 
@@ -542,58 +480,3 @@ def _read_sample_vars(ds: xr.Dataset, tensor: xr.DataArray, name: str) -> Sample
 def _first_line(exc: Exception) -> str:
     text = str(exc).strip().splitlines()
     return text[0] if text else type(exc).__name__
-
-
-def read_samples(path, tensor: xr.DataArray, id_column: str) -> Samples:
-    """Read per-sample ids and labels from the prediction table a tensor came from.
-
-    Parameters
-    ----------
-    path : str or path-like
-        The prediction table.
-    tensor : xarray.DataArray
-        Its confusion tensor; the columns used are taken from its ``attrs``
-        (``truth_column``, ``pred_column``, ``fold_column``).
-    id_column : str
-        Column of unique sample ids.
-
-    Returns
-    -------
-    Samples
-
-    Raises
-    ------
-    InvalidInputError
-        When the id column is missing, an id is missing or repeated.
-
-    Examples
-    --------
-    >>> import tempfile, pathlib
-    >>> from foldcorr.sources.tables import load_tensor
-    >>> p = pathlib.Path(tempfile.mkdtemp()) / "p.csv"
-    >>> _ = p.write_text("id,actual,predicted\\nu1,a,a\\nu2,b,a\\n")
-    >>> read_samples(p, load_tensor(p), "id").predicted.tolist()
-    ['a', 'a']
-    """
-    from foldcorr.sources.tables import read_table
-
-    path = Path(path)
-    truth = tensor.attrs.get("truth_column", ACTUAL)
-    pred = tensor.attrs.get("pred_column", PREDICTED)
-    fold = tensor.attrs.get("fold_column")
-    wanted = [c for c in (id_column, truth, pred, fold) if c]
-    df = read_table(path, columns=wanted)
-    if id_column not in df.columns:
-        raise InvalidInputError(f"{path.name}: id column {id_column!r} not found; the table has "
-                                f"columns {list(df.columns)!r}")
-    try:
-        samples = Samples.of(df[id_column], df[truth], df[pred],
-                             None if fold is None else df[fold], id_column=id_column)
-        classes = tensor.coords[ACTUAL].values
-        actual = classes[_label_codes(samples.actual, classes, f"column {truth!r}")]
-        predicted = classes[_label_codes(samples.predicted, classes, f"column {pred!r}")]
-        folds = None if fold is None else tensor.coords[FOLD].values[
-            _label_codes(samples.fold, tensor.coords[FOLD].values, f"column {fold!r}")]
-    except InvalidInputError as exc:
-        raise InvalidInputError(f"{path.name}: {exc}") from None
-    return Samples.of(samples.ids, actual, predicted, folds, id_column=id_column)

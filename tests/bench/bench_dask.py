@@ -30,7 +30,7 @@ def run(quick: bool = False) -> dict:
         return {"skipped": "the dask extra is not installed"}
     import numpy as np
 
-    from foldcorr.sources.stream import tally_dataset
+    from foldcorr.sources import tally_dataset
 
     if quick:
         rows, classes, files, chunk = 200_000, 50, 8, 25_000

@@ -27,7 +27,7 @@ def run(quick: bool = False) -> dict:
 
     from foldcorr.evaluation import evaluate
     from foldcorr.sources.saved import load_saved, save_evaluation
-    from foldcorr.sources.tables import load_tensor
+    from foldcorr.sources import load_tensor
     from foldcorr.tensor import confusion_tensor
 
     n, k, folds = (50_000, 50, 5) if quick else (2_000_000, 200, 5)

@@ -32,7 +32,7 @@ def measure(path):
 READ = """
 import time
 import pyarrow.dataset as ds
-from foldcorr.sources.stream import BATCH_ROWS
+from foldcorr.sources.reading import BATCH_ROWS
 def measure(paths):
     start = time.perf_counter()
     rows = 0
@@ -48,7 +48,7 @@ BARE = """
 import time
 import numpy as np
 import pyarrow.dataset as ds
-from foldcorr.sources.stream import BATCH_ROWS
+from foldcorr.sources.reading import BATCH_ROWS
 def measure(paths, classes, folds):
     counts = np.zeros((folds + 1) * classes * classes, dtype=np.int64)
     start = time.perf_counter()
@@ -72,7 +72,7 @@ LEAN = """
 import time
 import numpy as np
 import pyarrow.dataset as ds
-from foldcorr.sources.stream import BATCH_ROWS
+from foldcorr.sources.reading import BATCH_ROWS
 def measure(paths, classes, folds):
     counts = np.zeros((folds + 1) * classes * classes, dtype=np.uint32)
     one = np.uint32(1)

@@ -1,0 +1,199 @@
+"""The one way in: any source -> a confusion tensor.
+
+:func:`load` makes the one decision of the sources layer: a file of counts
+already tallied (a saved evaluation, a counts matrix; see
+:data:`foldcorr.sources.formats.FORMATS`) is read as it is, and anything else is
+a dataset of prediction tables tallied by an engine (:func:`tally_dataset`:
+streamed in this process, or on a Dask cluster).
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+from foldcorr.errors import OptionError, check_choice
+from foldcorr.sources.formats import FORMATS, FileFormat
+from foldcorr.sources.matrix import reorder_classes
+from foldcorr.sources.reading import BATCH_ROWS
+from foldcorr.sources.stream import StreamResult, stream_tensor
+from foldcorr.sources.tables import TableSpec
+from foldcorr.tensor import ACTUAL, PREDICTED
+
+__all__ = ["load", "load_tensor", "tally_dataset", "counts_format"]
+
+ENGINES = ("local", "dask")
+
+
+def counts_format(source, *, matrix: bool = False) -> FileFormat | None:
+    """The format of ``source`` when it is one file of counts already tallied, else None.
+
+    Examples
+    --------
+    >>> counts_format("run.nc").name, counts_format("m.csv", matrix=True).name
+    ('netcdf', 'matrix')
+    >>> counts_format("p.csv") is None, counts_format("runs/") is None
+    (True, True)
+    """
+    if not isinstance(source, (str, os.PathLike)):
+        return None
+    fmt = next((f for f in FORMATS if f.can_open(source, matrix=matrix)), None)
+    return None if fmt is None or fmt.rows else fmt
+
+
+def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
+         weight: str | None = None, classes=None, where=None, matrix: bool = False,
+         engine: str = "local", scheduler=None, skip_bad_files: bool = False,
+         progress: bool | None = False):
+    """Read any source into a confusion tensor.
+
+    Prediction tables are streamed batch by batch (see
+    :func:`foldcorr.sources.stream.stream_tensor`): memory is bounded by the
+    batch size and the tensor, not by the number of rows, and the result is
+    the tensor :func:`foldcorr.tensor.tally_frame` gives on the whole table.
+
+    Parameters
+    ----------
+    source : str, path-like or dask.dataframe.DataFrame
+        A prediction table, a folder or a glob of them; a counts matrix CSV
+        when ``matrix`` is true; a saved evaluation (``.nc``, see
+        :mod:`foldcorr.sources.saved`), which stands wherever a table can; or,
+        with ``engine="dask"``, a Dask DataFrame.
+    truth, pred : str
+        Columns of actual and predicted labels.
+    fold : str or None, default "auto"
+        Fold column; ``"auto"`` uses ``fold`` when the table has it.
+    weight : str, optional
+        Column of sample weights.
+    classes : sequence, optional
+        Fixed class order; labels outside it are an error. With a counts
+        matrix or a saved evaluation, a new order of its classes.
+    where : str or Where, optional
+        Row filter, e.g. ``'split == "test"'`` (see
+        :func:`foldcorr.sources.where.parse_where`).
+    matrix : bool, default False
+        Read ``source`` as a counts matrix (column options are ignored).
+    engine : {"local", "dask"}
+        Where the tally runs (see :func:`tally_dataset`).
+    scheduler : str, optional
+        Address of a Dask scheduler (engine "dask").
+    skip_bad_files : bool, default False
+        Skip unreadable files of a dataset (listed in ``attrs["skipped_files"]``).
+    progress : bool or None, default False
+        Progress bar on stderr; None shows it when stderr is a terminal.
+
+    Returns
+    -------
+    xarray.DataArray
+        The tensor, with ``source`` and the columns used in ``attrs``.
+
+    Raises
+    ------
+    InvalidInputError
+        On any problem with the file, naming file, column and row.
+    OptionError
+        When a table-only option is given with a saved evaluation (see
+        :func:`foldcorr.sources.saved.check_saved_options`), or on a bad engine.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "p.csv"
+    >>> _ = p.write_text("actual,predicted,fold\\na,a,1\\nb,a,1\\nb,b,2\\n")
+    >>> load(p).dims
+    ('fold', 'actual', 'predicted')
+    >>> load(p, fold=None, classes=["b", "a"]).values.tolist()
+    [[1, 1], [0, 1]]
+    """
+    fmt = counts_format(source, matrix=matrix)
+    if fmt is not None:
+        spec = TableSpec(truth=truth, pred=pred, fold=fold, weight=weight, classes=classes)
+        fmt.check_options(source, spec, matrix=matrix, where=where,
+                          skip_bad_files=skip_bad_files, engine=engine, scheduler=scheduler)
+        t = fmt.tensor(source)
+        return t if classes is None else reorder_classes(source, t, classes, fmt.title)
+    return tally_dataset(source, truth=truth, pred=pred, fold=fold, weight=weight,
+                         classes=classes, where=where, skip_bad_files=skip_bad_files,
+                         progress=progress, engine=engine, scheduler=scheduler).tensor
+
+
+def load_tensor(path, spec: TableSpec = TableSpec(), **options):
+    """:func:`load` with the column roles given as a :class:`~foldcorr.sources.tables.TableSpec`.
+
+    The name the command line uses; ``options`` are those of :func:`load`
+    (``matrix``, ``where``, ``skip_bad_files``, ``progress``, ``engine``,
+    ``scheduler``).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "p.csv"
+    >>> _ = p.write_text("label,guess\\na,a\\nb,a\\n")
+    >>> load_tensor(p, TableSpec(truth="label", pred="guess")).values.tolist()
+    [[1, 0], [1, 0]]
+    """
+    return load(path, truth=spec.truth, pred=spec.pred, fold=spec.fold, weight=spec.weight,
+                classes=spec.classes, **options)
+
+
+def tally_dataset(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
+                  weight: str | None = None, classes=None, where=None,
+                  skip_bad_files: bool = False, progress: bool | None = None,
+                  engine: str = "local", scheduler=None, batch_rows: int = BATCH_ROWS
+                  ) -> StreamResult:
+    """Tally a dataset on this machine (streaming) or on a Dask cluster.
+
+    Parameters
+    ----------
+    data : str, path-like or dask.dataframe.DataFrame
+        A file, folder or glob of prediction tables; with ``engine="dask"``
+        also a Dask DataFrame.
+    truth, pred, fold, weight, classes, where, skip_bad_files, progress, batch_rows
+        As in :func:`foldcorr.sources.stream.stream_tensor`.
+    engine : {"local", "dask"}, default "local"
+        ``"local"`` streams in this process; ``"dask"`` tallies each piece
+        on the workers of a Dask cluster and sums the partial tallies in a
+        tree (see :func:`foldcorr.sources.cluster.dask_tally`).
+    scheduler : str, optional
+        Address of a running Dask scheduler, e.g. ``"tcp://scheduler.example:8786"``.
+        Without it a ``distributed.LocalCluster`` on 127.0.0.1 with one
+        worker per core is started for the run and shut down after.
+
+    Returns
+    -------
+    StreamResult
+        Its ``tensor`` is the same whichever the engine.
+
+    Raises
+    ------
+    InvalidInputError
+        As :func:`foldcorr.sources.stream.stream_tensor`.
+    OptionError
+        On an unknown engine, or a scheduler without the dask engine.
+    MissingDependencyError
+        For ``engine="dask"`` without the ``dask`` extra.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "p.csv"
+    >>> _ = p.write_text("actual,predicted,split\\nb,b,test\\na,b,test\\na,a,train\\n")
+    >>> r = tally_dataset(p, where='split == "test"')
+    >>> r.tensor.values.tolist(), r.rows
+    ([[0, 1], [0, 1]], 2)
+    """
+    check_choice("engine", engine, ENGINES)
+    if engine == "local":
+        if scheduler is not None:
+            raise OptionError(f"`scheduler` needs engine 'dask'; got engine {engine!r}")
+        if not isinstance(data, (str, Path)):
+            raise OptionError(f"engine 'local' reads a file, folder or glob; got "
+                              f"{type(data).__name__!r} (use engine 'dask' for a Dask DataFrame)")
+        return stream_tensor(data, truth=truth, pred=pred, fold=fold, weight=weight,
+                             classes=classes, where=where, skip_bad_files=skip_bad_files,
+                             progress=progress, batch_rows=batch_rows)
+    from foldcorr.sources.cluster import dask_tally
+
+    return dask_tally(data, truth=truth, pred=pred, fold=fold, weight=weight, classes=classes,
+                      where=where, skip_bad_files=skip_bad_files, progress=progress,
+                      scheduler=scheduler, batch_rows=batch_rows)

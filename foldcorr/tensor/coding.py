@@ -1,0 +1,288 @@
+"""Label coding: one rule for every source, from labels to integer codes and back.
+
+A :class:`LabelCoder` gives each distinct value of a column a stable integer
+code across batches and files (small non-negative integers are their own
+codes); :func:`settle_labels` then types the values seen, as pandas would read
+the whole column; :func:`labels_as_text` and :func:`coerce_classes` make truth,
+predictions and given class names agree on one type. Values arrive as Arrow
+arrays (the in-memory columnar type of every reader); nothing here reads a
+file, and pyarrow is imported only when an array is coded.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+
+import numpy as np
+
+__all__ = ["DIRECT_MAX", "BOOL_TEXT", "LabelCoder", "arrow_kind", "settle_labels",
+           "labels_as_text", "coerce_classes", "label_key", "series_kind"]
+
+#: Integer labels in [0, DIRECT_MAX) are their own codes (no hashing).
+DIRECT_MAX = 1 << 11
+#: Texts read as booleans (as pandas reads a CSV column).
+BOOL_TEXT = {"True": True, "TRUE": True, "true": True,
+             "False": False, "FALSE": False, "false": False}
+
+_INT_TEXT = re.compile(r"\s*[+-]?[0-9]+\s*")
+
+
+class LabelCoder:
+    """Stable integer codes for the values of one column, across batches and files.
+
+    Small non-negative integers are their own codes (no hashing) until a value
+    outside that range appears; then the coder switches to a dictionary that
+    keeps every code given so far.
+
+    Parameters
+    ----------
+    text : bool
+        The values are CSV text whose type is settled at the end (see
+        :func:`settle_labels`).
+
+    Examples
+    --------
+    >>> import pyarrow as pa
+    >>> coder = LabelCoder(text=False)
+    >>> coder.encode(pa.array(["b", "a", "b"]))[0].tolist(), coder.value_of([0, 1])
+    ([0, 1, 0], ['b', 'a'])
+    """
+
+    def __init__(self, *, text: bool):
+        self.text = text          # values are CSV text; their type is settled at the end
+        self.direct = True        # codes are the integer values themselves
+        self.size = 0
+        self.index: dict = {}
+        self.values: list = []
+        self.kinds: set[str] = set()
+
+    def __len__(self) -> int:
+        return self.size
+
+    def encode(self, arr) -> tuple[np.ndarray, np.ndarray | None]:
+        """Codes of an arrow array (-1 where null) and the null mask (None if none)."""
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
+        if isinstance(arr, pa.ChunkedArray):
+            arr = arr.combine_chunks()
+        typ = arr.type
+        self.kinds.add(arrow_kind(typ))
+        if self.direct and pa.types.is_integer(typ) and arr.null_count == 0 and len(arr):
+            bounds = pc.min_max(arr)
+            lo, hi = bounds["min"].as_py(), bounds["max"].as_py()
+            if lo >= 0 and hi < DIRECT_MAX:
+                self.size = max(self.size, hi + 1)
+                return arr.to_numpy(), None
+        if self.direct and len(arr):
+            self._to_dictionary()
+        if not len(arr):
+            return np.zeros(0, dtype=np.int64), None
+        enc = arr if pa.types.is_dictionary(typ) else pc.dictionary_encode(arr)
+        lut = np.fromiter((self._code(v) for v in enc.dictionary.to_pylist()),
+                          dtype=np.int64, count=len(enc.dictionary))
+        lut = np.append(lut, -1).astype(np.int32 if len(lut) < 1 << 31 else np.int64)
+        idx = enc.indices
+        nulls = None
+        if idx.null_count:
+            nulls = idx.is_null().to_numpy(zero_copy_only=False)
+            idx = pc.fill_null(idx, -1)
+        return lut[idx.to_numpy()], nulls
+
+    def _to_dictionary(self) -> None:
+        self.direct = False
+        self.values = list(range(self.size))
+        self.index = {v: v for v in self.values}
+
+    def _code(self, value) -> int:
+        code = self.index.get(value)
+        if code is None:
+            code = self.index[value] = len(self.values)
+            self.values.append(value)
+            self.size = len(self.values)
+        return code
+
+    def value_of(self, codes) -> list:
+        """The raw values of codes."""
+        if self.direct:
+            return [int(c) for c in codes]
+        return [self.values[c] for c in codes]
+
+    def merge(self, other: LabelCoder) -> np.ndarray:
+        """Take in the codes of ``other``; return the map from its codes to ours."""
+        self.kinds |= other.kinds
+        if self.direct and other.direct:
+            self.size = max(self.size, other.size)
+            return np.arange(other.size, dtype=np.int64)
+        if self.direct:
+            self._to_dictionary()
+        return np.fromiter((self._code(v) for v in other.value_of(range(other.size))),
+                           dtype=np.int64, count=other.size)
+
+
+def arrow_kind(typ) -> str:
+    """The kind of labels an Arrow type holds: bool, int, float, text, null or other.
+
+    Parameters
+    ----------
+    typ : pyarrow.DataType
+        A column type; a dictionary type is judged by its values.
+
+    Returns
+    -------
+    str
+
+    Examples
+    --------
+    >>> import pyarrow as pa
+    >>> arrow_kind(pa.int32()), arrow_kind(pa.dictionary(pa.int32(), pa.string()))
+    ('int', 'text')
+    """
+    import pyarrow as pa
+
+    if pa.types.is_dictionary(typ):
+        typ = typ.value_type
+    checks = (("bool", pa.types.is_boolean), ("int", pa.types.is_integer),
+              ("float", pa.types.is_floating), ("text", pa.types.is_string),
+              ("text", pa.types.is_large_string), ("null", pa.types.is_null))
+    return next((kind for kind, test in checks if test(typ)), "other")
+
+
+def series_kind(column) -> str:
+    """The kind of labels a pandas column holds, in the words of :func:`arrow_kind`.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> series_kind(pd.Series([1, 2])), series_kind(pd.Series([True])), series_kind(pd.Series(["a"]))
+    ('int', 'bool', 'other')
+    """
+    import pandas as pd
+
+    types = pd.api.types
+    if types.is_bool_dtype(column):
+        return "bool"
+    if types.is_integer_dtype(column):
+        return "int"
+    return "float" if types.is_float_dtype(column) else "other"
+
+
+def settle_labels(coder: LabelCoder, codes: np.ndarray) -> tuple[str, list]:
+    """The column kind and typed values of the seen codes, as pandas would read them.
+
+    CSV text (``coder.text``) becomes booleans, integers or floats when every
+    value reads so; typed columns keep their type, integers beside floats
+    become floats.
+
+    Parameters
+    ----------
+    coder : LabelCoder
+        The coder of the column.
+    codes : numpy.ndarray
+        The codes seen.
+
+    Returns
+    -------
+    (str, list)
+        The kind (``"bool"``, ``"int"``, ``"float"``, ``"text"`` or
+        ``"object"``) and the values of ``codes`` in that kind.
+
+    Examples
+    --------
+    >>> import pyarrow as pa
+    >>> coder = LabelCoder(text=True)
+    >>> codes, _ = coder.encode(pa.array(["2", "10", "2"]))
+    >>> settle_labels(coder, sorted(set(codes.tolist())))
+    ('int', [2, 10])
+    """
+    raw = coder.value_of(codes)
+    if coder.text:
+        if all(v in BOOL_TEXT for v in raw):
+            return "bool", [BOOL_TEXT[v] for v in raw]
+        if all(_INT_TEXT.fullmatch(v) for v in raw):
+            return "int", [int(v) for v in raw]
+        try:
+            return "float", [float(v) for v in raw]
+        except ValueError:
+            return "text", raw
+    kinds = coder.kinds - {"null"}
+    if kinds <= {"int"}:
+        return "int", raw
+    if kinds <= {"int", "float"}:
+        return "float", [float(v) for v in raw]
+    if kinds == {"bool"}:
+        return "bool", raw
+    return "object", raw
+
+
+def labels_as_text(kind: str, values: list) -> list:
+    """Labels as text, for a numeric column compared with a text column.
+
+    Whole floats lose their ``.0`` (so ``1.0`` reads ``"1"``, as the same
+    column of integers would); every other value is written with ``str``.
+
+    Parameters
+    ----------
+    kind : str
+        The kind of the column (see :func:`arrow_kind`).
+    values : list
+        Its values, without missing ones.
+
+    Returns
+    -------
+    list of str
+
+    Examples
+    --------
+    >>> labels_as_text("float", [1.0, 2.0]), labels_as_text("float", [1.5]), labels_as_text("int", [3])
+    (['1', '2'], ['1.5'], ['3'])
+    """
+    if kind == "float" and all(math.isfinite(v) and float(v).is_integer() for v in values):
+        return [str(int(v)) for v in values]
+    return [v if isinstance(v, str) else str(v) for v in values]
+
+
+def label_key(value):
+    """A dict key that keeps 1, 1.0 and True together (as pandas factorises them),
+    but NaN equal to NaN.
+
+    Examples
+    --------
+    >>> {label_key(1): "one"}[label_key(1.0)], label_key(float("nan")) == label_key(float("nan"))
+    ('one', True)
+    """
+    if isinstance(value, float) and math.isnan(value):
+        return ("nan",)
+    return value
+
+
+def coerce_classes(classes, kind: str) -> tuple:
+    """Class names given as text, in the type of a truth column of ``kind``.
+
+    Names that do not read as that type are kept as given (they are then
+    reported as labels outside the classes).
+
+    Parameters
+    ----------
+    classes : sequence
+        Class names, often text from the command line.
+    kind : str
+        The kind of the truth column (see :func:`arrow_kind`).
+
+    Returns
+    -------
+    tuple
+
+    Examples
+    --------
+    >>> coerce_classes(["2", "10"], "int"), coerce_classes(["a"], "int"), coerce_classes(["1"], "text")
+    ((2, 10), ('a',), ('1',))
+    """
+    if kind in ("int", "float"):
+        caster = int if kind == "int" else float
+        try:
+            return tuple(caster(c) for c in classes)
+        except (TypeError, ValueError):
+            return tuple(classes)
+    return tuple(classes)
