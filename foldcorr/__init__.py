@@ -32,6 +32,7 @@ _EXPORTS = {
     "foldcorr.analysis.compare": ["joint_tally", "model_tensors", "compare_models", "Comparison"],
     "foldcorr.analysis.crossval": ["cross_tally", "rk_score", "rk_scorer"],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
+    "foldcorr.figures": ["Figure", "FIGURES"],
     "foldcorr.tensor.samples": ["Samples"],
     "foldcorr.gate": ["GateRules", "GateResult", "check_gate"],
     "foldcorr.sources.saved": ["SavedEvaluation", "save_evaluation", "load_saved"],
@@ -40,7 +41,7 @@ _EXPORTS = {
     ],
     "foldcorr.sources.stream": ["tally_dataset", "stream_tensor", "parse_where", "StreamResult"],
     "foldcorr.analysis.multilabel": [
-        "multilabel_tally", "indicators_from_sets", "evaluate_multilabel", "MultilabelEvaluation",
+        "multilabel_tally", "indicators_from_sets",
     ],
     "foldcorr.analysis.thresholds": ["sweep", "threshold_curve", "SweepResult", "LabelSweep"],
     "foldcorr.analysis.shift": ["shift_prevalence", "target_prevalence", "shifted_figures", "ShiftResult"],

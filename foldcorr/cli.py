@@ -582,7 +582,7 @@ def _run_gate(args) -> int:
 
 def _run_score_multilabel(args) -> int:
     from foldcorr.errors import OptionError
-    from foldcorr.analysis.multilabel import evaluate_multilabel
+    from foldcorr.evaluation import evaluate
     from foldcorr.sources.multilabel import MultilabelSpec, load_multilabel
 
     if args.matrix:
@@ -599,11 +599,11 @@ def _run_score_multilabel(args) -> int:
                           truth_prefix=args.truth_prefix, pred_prefix=args.pred_prefix,
                           truth=args.truth, pred=args.pred, sep=args.sep, fold=args.fold,
                           weight=args.weight, labels=args.classes)
-    ev = evaluate_multilabel(load_multilabel(args.path, spec), undefined=args.undefined)
+    ev = evaluate(load_multilabel(args.path, spec), undefined=args.undefined)
     for step in MULTILABEL_ANALYSES:
         ev = step(args, ev)
-
-    from foldcorr.report.multilabel import multilabel_dict, multilabel_report
+    from foldcorr.report.json import score_dict as multilabel_dict
+    from foldcorr.report.tables import score_report as multilabel_report
 
     _emit_report(args, multilabel_report(ev, top=args.top), lambda: multilabel_dict(ev))
     return EXIT_OK
