@@ -213,7 +213,8 @@ def _positive_ratio(t, denominator, what: str, undefined: str):
     den = denominator(t)
     bad = den == 0
     if bool(bad.any()):
-        where = ", ".join(repr(v) for v in den[LABEL].values[bad.values])
+        where = ", ".join(repr(v.item() if isinstance(v, np.generic) else v)
+                          for v in den[LABEL].values[bad.values])
         shown = "0.0" if undefined == "zero" else "NaN"
         warnings.warn(f"{what} is undefined (0/0) for label {where}; reported as {shown}",
                       UndefinedMetricWarning, stacklevel=3)
