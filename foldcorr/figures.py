@@ -230,6 +230,11 @@ def _label_precision(t, *, undefined="zero"):
     return _positive_ratio(t, _label_predicted, "precision", undefined)
 
 
+def _label_f1(t, *, undefined="zero"):
+    return _positive_ratio(t, lambda x: (_label_support(x) + _label_predicted(x)) / 2, "F1",
+                           undefined)
+
+
 def _label_drag(t, *, undefined="zero"):
     """(1 - MCC) / (labels present): each label's share of 1 - macro MCC (0 when absent)."""
     with warnings.catch_warnings():
@@ -293,6 +298,7 @@ FIGURES: tuple[Figure, ...] = (
     Figure("mcc", "MCC", m.mcc, PER_LABEL, _L, "correlation"),
     Figure("recall", "recall", _label_recall, PER_LABEL, _L),
     Figure("precision", "precision", _label_precision, PER_LABEL, _L),
+    Figure("f1", "F1", _label_f1, PER_LABEL, _L),
     Figure("drag", "drag", _label_drag, PER_LABEL, _L),
     Figure("cost", "cost", _label_cost, PER_LABEL, _L, "count"),
 )

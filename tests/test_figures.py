@@ -116,6 +116,23 @@ def test_new_per_class_f1_matches_reference_and_shows_in_text():
     assert "F1" in render_score(ev, "text")
 
 
+def test_per_label_f1_matches_reference_in_every_format():
+    # Reference: sklearn.metrics.f1_score(average=None) on the indicator matrices.
+    rng = np.random.default_rng(8)
+    truth = rng.random((150, 3)) < [0.4, 0.2, 0.0]
+    pred = truth ^ (rng.random((150, 3)) < 0.2)
+    pred[:, 2] = False  # label "c": no positive anywhere, F1 is 0/0
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UndefinedMetricWarning)
+        ev = evaluate(multilabel_tally(truth, pred, labels=["a", "b", "c"]), undefined="nan")
+    ref = f1_score(truth, pred, average=None, zero_division=np.nan)
+    np.testing.assert_allclose(ev.per_label["f1"].sel(label=["a", "b", "c"]).values, ref,
+                               atol=1e-12)
+    assert any("F1 is undefined (0/0) for label 'c'" in w for w in ev.warnings)
+    assert "F1" in render_score(ev, "text")
+    assert {row["label"]: row["f1"] for row in score_dict(ev)["per_label"]}["c"] is None
+
+
 @pytest.fixture
 def table(tmp_path):
     rng = np.random.default_rng(7)
