@@ -81,13 +81,12 @@ class Evaluation:
         The pooled figures of :data:`foldcorr.figures.FIGURES` for this kind
         (``n`` always), of the tensor summed over folds.
     per_class : xarray.Dataset or None
-        Multiclass: dim ``class``, the per-class figures (``support``,
-        ``predicted``, ``mcc``, ``weight``, ``contribution``, ``drag``,
-        ``recall``, ``precision``, ``f1``, ``top_confusion`` and
-        ``top_confusion_count``) in class order, pooled over folds. None for
-        a multilabel tensor.
+        Multiclass: dim ``class``, the per-class figures of the registry
+        (``top_confusion`` comes with ``top_confusion_count``) in class
+        order, pooled over folds. None for a multilabel tensor.
     folds : xarray.Dataset or None
-        Dim ``fold``: the per-fold figures, or None when the tensor has no fold dim.
+        Dim ``fold``: the per-fold figures of the registry, or None when the
+        tensor has no fold dim.
     fold_summary : FoldSummary or None
         Spread of the per-fold R_K (multiclass with folds), else None.
     warnings : tuple of str
@@ -100,9 +99,8 @@ class Evaluation:
     kind : str
         ``"multiclass"`` or ``"multilabel"`` (:data:`foldcorr.figures.KINDS`).
     per_label : xarray.Dataset or None
-        Multilabel: dim ``label``, the per-label figures (``support``,
-        ``predicted``, ``prevalence``, ``mcc``, ``recall``, ``precision``,
-        ``cost``), sorted by cost, largest first. None for a multiclass tensor.
+        Multilabel: dim ``label``, the per-label figures of the registry,
+        sorted by ``cost``, largest first. None for a multiclass tensor.
     """
 
     tensor: xr.DataArray

@@ -208,3 +208,11 @@ def test_multilabel_renders_in_every_format_from_the_one_report_path():
     doc = json.loads(render_score(ev, "json"))
     assert doc["schema"] == "foldcorr.analysis.multilabel/1" and "micro_mcc_ci" in doc
     assert all(len(row["mcc_ci"]) == 2 for row in doc["per_label"])
+
+
+def test_docs_json_lists_every_registry_key():
+    import pathlib
+
+    text = (pathlib.Path(__file__).parents[1] / "docs" / "json.md").read_text()
+    missing = {f.key for f in FIGURES if f"`{f.key}`" not in text}
+    assert missing == set()
