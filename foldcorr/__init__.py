@@ -35,6 +35,7 @@ _EXPORTS = {
     "foldcorr.analysis.crossval": ["cross_tally", "rk_score", "rk_scorer"],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
     "foldcorr.pipeline": ["score", "evaluate_with", "replay", "load_evaluation", "ScoreOptions"],
+    "foldcorr.figures": ["Figure", "FIGURES"],
     "foldcorr.tensor.samples": ["Samples"],
     "foldcorr.gate": ["GateRules", "GateResult", "check_gate"],
     "foldcorr.sources.saved": ["SavedEvaluation", "save_evaluation", "load_saved"],
@@ -44,7 +45,6 @@ _EXPORTS = {
     "foldcorr.sources.dispatch": ["load", "load_tensor", "tally_dataset"],
     "foldcorr.sources.stream": ["stream_tensor", "StreamResult"],
     "foldcorr.sources.where": ["parse_where"],
-    "foldcorr.analysis.multilabel": ["evaluate_multilabel", "MultilabelEvaluation"],
     "foldcorr.analysis.thresholds": ["sweep", "threshold_curve", "SweepResult", "LabelSweep"],
     "foldcorr.analysis.shift": ["shift_prevalence", "target_prevalence", "shifted_figures", "ShiftResult"],
     "foldcorr.errors": [

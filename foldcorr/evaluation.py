@@ -1,9 +1,11 @@
-"""The evaluation layer: one object holding every figure a report shows.
+"""The evaluation layer: one object holding every figure a report shows, for every tensor kind.
 
-:func:`evaluate` runs the metrics on a confusion tensor, pooled over folds and
-fold by fold, collects every undefined value as a plain-language warning and
-returns an :class:`Evaluation`. Renderers and the gate take that object; they
-never compute.
+:func:`evaluate` recognises the kind of a confusion tensor (multiclass, or
+multilabel: a ``label`` dim with class coordinates ``[False, True]``), runs the
+figures of :data:`foldcorr.figures.FIGURES` for that kind, pooled over folds,
+fold by fold and per class or per label, collects every undefined value as a
+plain-language warning and returns an :class:`Evaluation`. Renderers and the
+gate take that object; they never compute.
 """
 
 from __future__ import annotations
@@ -13,22 +15,20 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import xarray as xr
 
+from foldcorr import figures as fg
 from foldcorr import metrics as m
 from foldcorr.errors import InvalidTensorError, check_choice, collect_undefined
-from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, pool, validate_tensor
+from foldcorr.tensor import ACTUAL, FOLD, LABEL, PREDICTED, pool, validate_tensor
 
-__all__ = ["Evaluation", "FoldSummary", "evaluate", "POOLED_FIGURES"]
-
-#: Pooled figures, in report order, with the metric that computes each.
-POOLED_FIGURES = m.SUMMARY_FIGURES
-
-#: Per-fold figures, in report order.
-FOLD_FIGURES = ("rk", "accuracy", "balanced_accuracy", "macro_mcc")
+__all__ = ["Evaluation", "FoldSummary", "evaluate", "tensor_kind", "compute_figures"]
 
 #: Accuracy at or above this while R_K is below ACCURACY_HIDES_RK gets a warning.
 ACCURACY_LOOKS_GOOD = 0.9
 ACCURACY_HIDES_RK = 0.5
 
+#: What each scope's undefined values are called in the warnings.
+CONTEXT = {fg.POOLED: "pooled", fg.PER_CLASS: "pooled", fg.PER_LABEL: "per label",
+           fg.PER_FOLD: "per fold"}
 
 @dataclass(frozen=True)
 class FoldSummary:
@@ -78,18 +78,17 @@ class Evaluation:
     tensor : xarray.DataArray
         The confusion tensor evaluated, with its ``fold`` dim if it had one.
     pooled : xarray.Dataset
-        Scalars ``n``, ``rk``, ``accuracy``, ``balanced_accuracy``, ``kappa``,
-        ``macro_f1``, ``macro_mcc`` and ``marginal_mismatch`` of the tensor
-        summed over folds.
-    per_class : xarray.Dataset
-        Dim ``class``: ``support``, ``predicted``, ``mcc``, ``weight``,
-        ``contribution``, ``drag``, ``recall``, ``precision``, ``f1``,
-        ``top_confusion`` and ``top_confusion_count``, pooled over folds.
+        The pooled figures of :data:`foldcorr.figures.FIGURES` for this kind
+        (``n`` always), of the tensor summed over folds.
+    per_class : xarray.Dataset or None
+        Multiclass: dim ``class``, the per-class figures of the registry
+        (``top_confusion`` comes with ``top_confusion_count``) in class
+        order, pooled over folds. None for a multilabel tensor.
     folds : xarray.Dataset or None
-        Dim ``fold``: ``n`` and the figures of ``FOLD_FIGURES``, or None when
-        the tensor has no fold dim.
+        Dim ``fold``: the per-fold figures of the registry, or None when the
+        tensor has no fold dim.
     fold_summary : FoldSummary or None
-        Spread of the per-fold R_K, or None without folds.
+        Spread of the per-fold R_K (multiclass with folds), else None.
     warnings : tuple of str
         Undefined values and misleading figures, in plain language.
     undefined : str
@@ -97,21 +96,55 @@ class Evaluation:
     extras : dict
         Sections that analyses attach (for example interval estimates), keyed
         by section name; renderers show the sections they know.
+    kind : str
+        ``"multiclass"`` or ``"multilabel"`` (:data:`foldcorr.figures.KINDS`).
+    per_label : xarray.Dataset or None
+        Multilabel: dim ``label``, the per-label figures of the registry,
+        sorted by ``cost``, largest first. None for a multiclass tensor.
     """
 
     tensor: xr.DataArray
     pooled: xr.Dataset
-    per_class: xr.Dataset
+    per_class: xr.Dataset | None
     folds: xr.Dataset | None
     fold_summary: FoldSummary | None
     warnings: tuple[str, ...]
     undefined: str = "zero"
     extras: dict = field(default_factory=dict)
+    kind: str = fg.MULTICLASS
+    per_label: xr.Dataset | None = None
+
+    @property
+    def row_scope(self) -> str:
+        """The scope of the row table: ``"class"`` (multiclass) or ``"label"`` (multilabel)."""
+        return fg.PER_LABEL if self.kind == fg.MULTILABEL else fg.PER_CLASS
+
+    @property
+    def rows(self) -> xr.Dataset:
+        """The per-class (multiclass) or per-label (multilabel) table, in tensor order."""
+        return self.per_label if self.kind == fg.MULTILABEL else self.per_class
+
+    def figures(self, scope: str) -> tuple:
+        """The registry figures of this evaluation's kind in one scope, in report order.
+
+        Examples
+        --------
+        >>> from foldcorr.tensor import confusion_tensor
+        >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
+        >>> [f.key for f in ev.figures("fold")]
+        ['n', 'rk', 'accuracy', 'balanced_accuracy', 'macro_mcc']
+        """
+        return fg.figures_of(self.kind, scope)
 
     @property
     def classes(self) -> list:
         """Class labels in tensor order."""
         return self.tensor.coords[ACTUAL].values.tolist()
+
+    @property
+    def labels(self) -> list:
+        """Labels of a multilabel tensor, in tensor order (empty for multiclass)."""
+        return self.tensor.coords[LABEL].values.tolist() if LABEL in self.tensor.dims else []
 
     @property
     def n(self) -> float:
@@ -120,8 +153,23 @@ class Evaluation:
 
     @property
     def rk(self) -> float:
-        """Pooled R_K."""
+        """Pooled R_K (multiclass)."""
         return _number(self.pooled["rk"])
+
+    @property
+    def micro_mcc(self) -> float:
+        """MCC of the tensor summed over labels (multilabel)."""
+        return self.figure("micro_mcc")
+
+    @property
+    def macro_mcc(self) -> float:
+        """Mean one-vs-rest MCC over classes, or mean MCC over labels present."""
+        return self.figure("macro_mcc")
+
+    @property
+    def weighted_mcc(self) -> float:
+        """Support-weighted mean MCC over labels (multilabel)."""
+        return self.figure("weighted_mcc")
 
     def figure(self, name: str) -> float:
         """One pooled figure by name, as a Python float.
@@ -135,10 +183,26 @@ class Evaluation:
         """
         return _number(self.pooled[name])
 
+    def ranked(self) -> xr.Dataset:
+        """The row table in report order: classes by drag, labels by cost, largest first.
+
+        Ties keep tensor order.
+
+        Examples
+        --------
+        >>> from foldcorr.tensor import confusion_tensor
+        >>> ev = evaluate(confusion_tensor([[6, 0], [3, 3]], ["p", "n"]))
+        >>> ev.ranked()["class"].values.tolist()
+        ['p', 'n']
+        """
+        rows = self.rows
+        key = fg.RANKED_BY[self.row_scope]
+        order = np.argsort(-rows[key].fillna(0.0).values, kind="stable")
+        return rows.isel({self.row_scope: order})
+
     def by_drag(self) -> xr.Dataset:
         """The per-class table sorted by drag, largest first (ties by class order)."""
-        order = np.argsort(-self.per_class["drag"].values, kind="stable")
-        return self.per_class.isel(**{m.CLASS: order})
+        return self.ranked()
 
     def with_extra(self, name: str, value) -> Evaluation:
         """A copy with one more section in :attr:`extras` (and its warnings, if it has any).
@@ -165,13 +229,71 @@ def _number(value) -> float:
     return int(v) if v.is_integer() and abs(v) < 2**53 and value.dtype.kind in "iu" else v
 
 
+def tensor_kind(t) -> str:
+    """The kind of a validated tensor: multilabel when it has a ``label`` dim, else multiclass.
+
+    Raises
+    ------
+    InvalidTensorError
+        When a dim other than ``fold`` (and ``label``) leads, or a ``label``
+        tensor's class coordinates are not ``[False, True]``.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> tensor_kind(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
+    'multiclass'
+    """
+    lead = {d for d in t.dims if d not in (ACTUAL, PREDICTED)}
+    if LABEL in lead:
+        classes = t.coords[ACTUAL].values.tolist()
+        if classes != [False, True]:
+            raise InvalidTensorError(
+                f"a multilabel tensor has class coordinates [False, True]; got {classes!r}")
+        if lead - {FOLD, LABEL}:
+            raise InvalidTensorError(
+                f"select or pool the dims {sorted(lead - {FOLD, LABEL})!r} first; accepted dims "
+                "are (fold, label, actual, predicted)")
+        return fg.MULTILABEL
+    if lead - {FOLD}:
+        raise InvalidTensorError(
+            f"evaluate takes dims (fold, actual, predicted); select or pool "
+            f"{[d for d in t.dims if d in lead - {FOLD}]!r} first")
+    return fg.MULTICLASS
+
+
+def compute_figures(figures, t, *, undefined: str = "zero") -> xr.Dataset:
+    """Compute registry figures on one tensor; figures sharing a computation run it once.
+
+    Examples
+    --------
+    >>> from foldcorr.figures import MULTICLASS, PER_CLASS, figures_of
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> t = confusion_tensor([[6, 2], [1, 3]], ["p", "n"])
+    >>> compute_figures(figures_of(MULTICLASS, PER_CLASS), t)["support"].values.tolist()
+    [8, 4]
+    """
+    done: dict = {}
+    out: dict = {}
+    for f in figures:
+        if f.compute not in done:
+            done[f.compute] = f.compute(t, undefined=undefined)
+        value = done[f.compute] if f.part is None else done[f.compute][f.part]
+        parts = value.data_vars if isinstance(value, xr.Dataset) else {f.key: value.rename(f.key)}
+        out.update({k: v.drop_attrs() if hasattr(v, "drop_attrs") else v
+                    for k, v in parts.items()})
+    return xr.Dataset(out)
+
+
 def evaluate(t, *, undefined: str = "zero") -> Evaluation:
-    """Compute every figure of a confusion tensor.
+    r"""Compute every figure of a confusion tensor, multiclass or multilabel.
 
     Parameters
     ----------
     t : xarray.DataArray
-        Confusion tensor with dims ``([fold,] actual, predicted)``.
+        Confusion tensor with dims ``([fold,] actual, predicted)``, or a
+        multilabel tensor with dims ``([fold,] label, actual, predicted)`` and
+        class coordinates ``[False, True]``.
     undefined : {"zero", "nan"}, default "zero"
         Convention for undefined values; every undefined value is also named
         in ``Evaluation.warnings``.
@@ -179,75 +301,71 @@ def evaluate(t, *, undefined: str = "zero") -> Evaluation:
     Returns
     -------
     Evaluation
+        ``kind`` says which of the two the tensor is.
 
     Raises
     ------
     InvalidTensorError
-        When the tensor has a leading dim other than ``fold``.
+        When the tensor has another leading dim, or a ``label`` dim with
+        class coordinates other than ``[False, True]``.
+
+    Notes
+    -----
+    Multilabel, with :math:`C_\ell` the 2 x 2 matrix of label :math:`\ell`:
+    micro MCC is :math:`\mathrm{MCC}(\sum_\ell C_\ell)`, macro MCC the mean
+    of :math:`\mathrm{MCC}(C_\ell)` over the labels with a positive in truth
+    or predictions, weighted MCC the support-weighted mean. Labels are sorted
+    by cost :math:`(1 - \mathrm{MCC}_\ell)\, n^+_\ell`, largest first (an
+    undefined MCC counts as 0 there), ties in label order.
 
     Examples
     --------
     >>> from foldcorr.tensor import tally
     >>> ev = evaluate(tally(["a", "a", "b", "c"], ["a", "b", "b", "c"], folds=[1, 2, 1, 2]))
-    >>> round(ev.rk, 4), ev.fold_summary.count
-    (0.7, 2)
+    >>> ev.kind, round(ev.rk, 4), ev.fold_summary.count
+    ('multiclass', 0.7, 2)
+    >>> from foldcorr.tensor import multilabel_tally
+    >>> ml = evaluate(multilabel_tally([[1, 0], [1, 1], [0, 1], [0, 0]],
+    ...                                [[1, 0], [0, 1], [0, 1], [0, 0]], labels=["gull", "tern"]))
+    >>> ml.kind, round(ml.micro_mcc, 4), ml.per_label["mcc"].round(4).values.tolist()
+    ('multilabel', 0.7746, [0.5774, 1.0])
     """
     check_choice("undefined", undefined, m.UNDEFINED_CHOICES)
     t = validate_tensor(t)
-    other = [d for d in t.dims if d not in (FOLD, ACTUAL, PREDICTED)]
-    if other:
-        raise InvalidTensorError(
-            f"evaluate takes dims (fold, actual, predicted); select or pool {other!r} first"
-        )
+    kind = tensor_kind(t)
+    if kind == fg.MULTILABEL:
+        t = t.transpose(*[d for d in (FOLD, LABEL) if d in t.dims], ACTUAL, PREDICTED)
     notes: list[str] = []
+
+    def run(scope, tensor):
+        return collect_undefined(notes, CONTEXT[scope], lambda: compute_figures(
+            fg.figures_of(kind, scope), tensor, undefined=undefined))
+
     pooled_t = pool(t)
-    pooled = collect_undefined(notes, "pooled", lambda: _pooled(pooled_t, undefined))
-    per_class = collect_undefined(notes, "pooled", lambda: _per_class(pooled_t, undefined))
+    pooled = run(fg.POOLED, pooled_t)
+    row_scope = fg.PER_LABEL if kind == fg.MULTILABEL else fg.PER_CLASS
+    rows = run(row_scope, pooled_t)
     folds = summary = None
     if FOLD in t.dims:
-        folds = collect_undefined(notes, "per fold", lambda: _per_fold(t, undefined))
-        summary = FoldSummary.of(folds["rk"].values)
-    notes.extend(_accuracy_hides(pooled, per_class))
+        folds = run(fg.PER_FOLD, t)
+        if "rk" in folds:
+            summary = FoldSummary.of(folds["rk"].values)
+    if kind == fg.MULTILABEL:
+        order = np.argsort(-rows["cost"].values, kind="stable")
+        rows = rows.isel({LABEL: order})
+    else:
+        notes.extend(_accuracy_hides(pooled, rows))
     return Evaluation(
         tensor=t,
         pooled=pooled,
-        per_class=per_class,
+        per_class=None if kind == fg.MULTILABEL else rows,
         folds=folds,
         fold_summary=summary,
         warnings=tuple(dict.fromkeys(notes)),
         undefined=undefined,
+        kind=kind,
+        per_label=rows if kind == fg.MULTILABEL else None,
     )
-
-
-def _pooled(t, undefined) -> xr.Dataset:
-    figures = {name: fn(t, undefined=undefined) for name, fn in POOLED_FIGURES.items()}
-    figures["marginal_mismatch"] = m.decompose(t, undefined=undefined)["marginal_mismatch"]
-    figures["n"] = m._count_sum(t, (ACTUAL, PREDICTED))
-    return xr.Dataset({k: v.drop_attrs() if hasattr(v, "drop_attrs") else v for k, v in figures.items()})
-
-
-def _per_class(t, undefined) -> xr.Dataset:
-    d = m.decompose(t, undefined=undefined)
-    return xr.Dataset(
-        {
-            "support": m.support(t),
-            "predicted": m.predicted_count(t),
-            "mcc": d["mcc"],
-            "weight": d["weight"],
-            "contribution": d["contribution"],
-            "drag": d["drag"],
-            "recall": m.recall(t, undefined=undefined),
-            "precision": m.precision(t, undefined=undefined),
-            "f1": m.f1(t, undefined=undefined),
-            **m.top_confusion(t).data_vars,
-        }
-    )
-
-
-def _per_fold(t, undefined) -> xr.Dataset:
-    figures = {name: POOLED_FIGURES[name](t, undefined=undefined) for name in FOLD_FIGURES}
-    figures["n"] = m._count_sum(t, (ACTUAL, PREDICTED))
-    return xr.Dataset(figures)
 
 
 def _accuracy_hides(pooled: xr.Dataset, per_class: xr.Dataset) -> list[str]:

@@ -46,6 +46,7 @@ __all__ = [
     "macro_mcc",
     "support",
     "predicted_count",
+    "count_total",
     "top_confusion",
 ]
 
@@ -507,6 +508,18 @@ def _count_sum(t: xr.DataArray, dims) -> xr.DataArray:
     return t.sum(dims)
 
 
+def count_total(t) -> xr.DataArray:
+    """Total count (or weight) over ``actual`` and ``predicted``, without int64 overflow.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> int(count_total(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
+    12
+    """
+    return _count_sum(validate_tensor(t), (ACTUAL, PREDICTED)).rename("n")
+
+
 def support(t) -> xr.DataArray:
     """Per-class count of actual samples (row sums), dims ``(..., "class")``.
 
@@ -570,7 +583,9 @@ def top_confusion(t) -> xr.Dataset:
     )
 
 
-#: The summary figures of a confusion tensor, in report order, with the function of each.
+#: The pooled summary figures of a confusion tensor with the function of each, as
+#: recomputed by the shift analysis; the same as the pooled multiclass entries of
+#: :data:`foldcorr.figures.FIGURES` that are metrics of their own (a test checks it).
 SUMMARY_FIGURES = {
     "rk": rk,
     "accuracy": accuracy,

@@ -7,7 +7,7 @@ import pytest
 from sklearn.metrics import matthews_corrcoef, multilabel_confusion_matrix
 
 from foldcorr.errors import InvalidInputError, UndefinedMetricWarning
-from foldcorr.analysis.multilabel import evaluate_multilabel
+from foldcorr.evaluation import evaluate
 from foldcorr.tensor import indicators_from_sets, multilabel_tally
 
 
@@ -39,7 +39,7 @@ def test_folds_and_weights_match_reference():
 def test_mcc_per_label_micro_macro_weighted_match_reference():
     # sklearn.metrics.matthews_corrcoef per column; micro = on the raveled indicators
     truth, pred, folds = _random(seed=3)
-    ev = evaluate_multilabel(multilabel_tally(truth, pred, labels=list("abcdefg")))
+    ev = evaluate(multilabel_tally(truth, pred, labels=list("abcdefg")))
     per = ev.per_label.sortby("label")
     ref = [matthews_corrcoef(truth[:, j], pred[:, j]) for j in range(truth.shape[1])]
     np.testing.assert_allclose(per["mcc"].values, ref, atol=1e-12)
@@ -54,7 +54,7 @@ def test_mcc_per_label_micro_macro_weighted_match_reference():
 def test_per_fold_figures_match_reference():
     # sklearn.metrics.matthews_corrcoef, fold by fold
     truth, pred, folds = _random(seed=4)
-    ev = evaluate_multilabel(multilabel_tally(truth, pred, folds=folds))
+    ev = evaluate(multilabel_tally(truth, pred, folds=folds))
     for f in range(4):
         sel = folds == f
         micro = matthews_corrcoef(truth[sel].ravel(), pred[sel].ravel())
@@ -65,7 +65,7 @@ def test_per_fold_figures_match_reference():
 
 def test_sorted_by_cost():
     truth, pred, _ = _random(seed=5)
-    ev = evaluate_multilabel(multilabel_tally(truth, pred))
+    ev = evaluate(multilabel_tally(truth, pred))
     cost = ev.per_label["cost"].values
     assert (np.diff(cost) <= 0).all()
     expected = (1 - ev.per_label["mcc"].values) * ev.per_label["support"].values
@@ -76,13 +76,13 @@ def test_label_without_positives_warns_and_follows_convention():
     # MCC is 0/0 when a label has no positives anywhere; zero convention gives 0 (common practice)
     truth = np.array([[1, 0], [0, 0], [1, 0]])
     pred = np.array([[1, 0], [0, 0], [0, 0]])
-    ev = evaluate_multilabel(multilabel_tally(truth, pred, labels=["owl", "wren"]))
+    ev = evaluate(multilabel_tally(truth, pred, labels=["owl", "wren"]))
     assert float(ev.per_label["mcc"].sel(label="wren")) == 0.0
     assert any("wren" in w for w in ev.warnings)
     # the absent label does not enter the macro mean
     assert ev.macro_mcc == pytest.approx(float(ev.per_label["mcc"].sel(label="owl")))
     t = multilabel_tally(truth, pred, labels=["owl", "wren"])
-    nan = evaluate_multilabel(t, undefined="nan")
+    nan = evaluate(t, undefined="nan")
     assert np.isnan(float(nan.per_label["mcc"].sel(label="wren")))
 
 
@@ -95,7 +95,7 @@ def test_majority_everywhere_gives_accuracy_ten_elevenths_and_mcc_zero():
     assert float(accuracy(t.isel(label=0))) == pytest.approx(10 / 11)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UndefinedMetricWarning)
-        assert evaluate_multilabel(t).micro_mcc == 0.0
+        assert evaluate(t).micro_mcc == 0.0
 
 
 def test_sets_to_indicators():
@@ -158,7 +158,7 @@ def test_intervals_match_per_sample_bootstrap():
         random_state=np.random.default_rng(9)).confidence_interval
     assert ci.micro_mcc[0] == pytest.approx(ref.low, abs=0.025)
     assert ci.micro_mcc[1] == pytest.approx(ref.high, abs=0.025)
-    macro = evaluate_multilabel(multilabel_tally(truth, pred)).macro_mcc
+    macro = evaluate(multilabel_tally(truth, pred)).macro_mcc
     assert ci.macro_mcc[0] < macro < ci.macro_mcc[1]
 
 
@@ -188,8 +188,8 @@ def test_macro_and_weighted_propagate_an_undefined_label_under_nan():
     support = truth.sum(axis=0)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UndefinedMetricWarning)
-        zero = evaluate_multilabel(t)
-        nan = evaluate_multilabel(t, undefined="nan")
+        zero = evaluate(t)
+        nan = evaluate(t, undefined="nan")
     assert ref[2] == 0.0
     assert zero.macro_mcc == pytest.approx(np.mean(ref), abs=1e-12)
     assert zero.weighted_mcc == pytest.approx(np.average(ref, weights=support), abs=1e-12)
@@ -211,7 +211,7 @@ def test_weighted_mcc_ignores_an_undefined_label_without_support():
     ref = [matthews_corrcoef(truth[:, j], pred[:, j]) for j in range(2)]  # sklearn
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UndefinedMetricWarning)
-        ev = evaluate_multilabel(t, undefined="nan")
+        ev = evaluate(t, undefined="nan")
     assert np.isnan(ev.per_label.sel(label="c")["mcc"])
     assert ev.weighted_mcc == pytest.approx(np.average(ref, weights=truth[:, :2].sum(0)), abs=1e-12)
     assert ev.macro_mcc == pytest.approx(np.mean(ref), abs=1e-12)  # "c" is absent: left out

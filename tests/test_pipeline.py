@@ -87,11 +87,10 @@ def test_multilabel_goes_through_the_same_call(capsys, tmp_path):
                                                                                        index=False)
     code, printed, _ = run(capsys, "score", path, "--truth-prefix", "y_", "--pred-prefix", "p_",
                            "--format", "json")
-    from foldcorr.report.json import dumps
-    from foldcorr.report.multilabel import multilabel_dict
+    from foldcorr.report.json import dumps, score_dict
 
     ev = foldcorr.score(path, truth_prefix="y_", pred_prefix="p_")
-    assert code == 0 and dumps(multilabel_dict(ev)) == printed
+    assert code == 0 and ev.kind == "multilabel" and dumps(score_dict(ev)) == printed
     with pytest.raises(OptionError, match="`prevalence` applies to multiclass scoring"):
         foldcorr.score(path, truth_prefix="y_", pred_prefix="p_", prevalence="uniform")
 
@@ -195,8 +194,6 @@ def test_gate_reads_saved_and_table_sources_through_the_pipeline(capsys, table, 
      "`--matrix` reads a multiclass counts matrix"),
     (["--truth-prefix", "y_", "--pred-prefix", "p_", "--prevalence", "uniform"],
      "`--prevalence` applies to multiclass scoring"),
-    (["--truth-prefix", "y_", "--pred-prefix", "p_", "--plot", "."],
-     "`--plot` applies to multiclass scoring"),
     (["--truth-prefix", "y_", "--pred-prefix", "p_", "--engine", "dask"],
      "`--engine` and `--skip-bad-files` apply to multiclass scoring"),
     (["--scheduler", "tcp://127.0.0.1:1"], "`--scheduler` needs `--engine dask`; got --engine 'local'"),

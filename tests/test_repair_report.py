@@ -92,11 +92,12 @@ def test_wide_class_table_continues_instead_of_squeezing():
     assert "(continued)" not in wide
 
 
-def test_cli_score_json_top_applies_to_confusions(tmp_path, capsys):
+def test_cli_score_json_carries_every_confusion_whatever_top(tmp_path, capsys):
+    # --top limits the rows shown in text, Markdown and HTML; JSON lists every confusion.
     path = _table(tmp_path / "p.csv")
     assert main(["score", str(path), "--format", "json", "--top", "3"]) == 0
     doc = json.loads(capsys.readouterr().out)
-    assert len(doc["confusions"]) == 3
+    assert len(doc["confusions"]) == 20 and doc["repair"]["confusions_top"] is None
     assert {"gain_fix_fn", "gain_fix_fp", "gain_fix_both", "leave_out_delta",
             "top5_folds"} <= set(doc["per_class"][0])
     assert main(["score", str(path), "--format", "json", "--top", "all"]) == 0

@@ -53,15 +53,9 @@ def _split(given: dict) -> tuple:
 
 
 def run_score(args) -> int:
-    from foldcorr.errors import OptionError
-    from foldcorr.pipeline import MULTILABEL_OPTIONS, score
+    from foldcorr.pipeline import score
 
     given = given_options(args)
-    if any(key in given for key in MULTILABEL_OPTIONS):
-        for flag in ("plot", "save"):
-            if getattr(args, flag, None) is not None:
-                raise OptionError(f"`--{flag}` applies to multiclass scoring; it does not combine "
-                                  "with the multilabel options")
     options, table = _split(given)
     _check_save(args, args.path)
     ev = score(args.path, names=flag_names(), progress=False if args.quiet else None, **table,
@@ -326,13 +320,6 @@ def emit_report(args, report, make_json) -> None:
 
 def emit_evaluation(args, ev, top) -> None:
     """:func:`emit` of what :func:`foldcorr.pipeline.score` returned (and its ``--plot`` files)."""
-    from foldcorr.pipeline import tensor_kind
-
-    if tensor_kind(ev.tensor) == "multilabel":
-        from foldcorr.report.multilabel import multilabel_dict, multilabel_report
-
-        emit_report(args, multilabel_report(ev, top=top), lambda: multilabel_dict(ev))
-        return
     if getattr(args, "plot", None):
         from foldcorr.report.plots import save_plots
 

@@ -75,23 +75,11 @@ def _label_intervals(ev, options):
                                                            undefined=ev.undefined))
 
 
-def _evaluate_multiclass(tensor, undefined):
-    from foldcorr.evaluation import evaluate
-
-    return evaluate(tensor, undefined=undefined)
-
-
-def _evaluate_multilabel(tensor, undefined):
-    from foldcorr.analysis.multilabel import evaluate_multilabel
-
-    return evaluate_multilabel(tensor, undefined=undefined)
-
-
-#: Per tensor kind: how it is evaluated and its analyses, in the order they run.
+#: Per tensor kind: its analyses, in the order they run (one evaluation serves every kind).
 KINDS = {
-    "multiclass": (_evaluate_multiclass, (("skipped_files", _skipped_files), ("shift", _shift),
-                                          ("repair", _repair), ("intervals", _intervals))),
-    "multilabel": (_evaluate_multilabel, (("intervals", _label_intervals),)),
+    "multiclass": (("skipped_files", _skipped_files), ("shift", _shift), ("repair", _repair),
+                   ("intervals", _intervals)),
+    "multilabel": (("intervals", _label_intervals),),
 }
 
 
@@ -122,7 +110,7 @@ def evaluate_with(tensor, options: ScoreOptions | None = None):
 
     Returns
     -------
-    Evaluation or MultilabelEvaluation
+    Evaluation
         With the analyses in ``extras`` and every warning.
 
     Examples
@@ -133,9 +121,10 @@ def evaluate_with(tensor, options: ScoreOptions | None = None):
     (0.4781, ['repair'])
     """
     options = ScoreOptions() if options is None else options
-    evaluate_kind, steps = KINDS[tensor_kind(tensor)]
-    ev = evaluate_kind(tensor, options.undefined)
-    for name, step in steps:
+    from foldcorr.evaluation import evaluate
+
+    ev = evaluate(tensor, undefined=options.undefined)
+    for name, step in KINDS[tensor_kind(tensor)]:
         if name in options.analyses:
             ev = step(ev, options)
     return ev
@@ -228,7 +217,7 @@ def score(source, *, names: Mapping | None = None, **options):
 
     Returns
     -------
-    Evaluation or MultilabelEvaluation
+    Evaluation
         With the analyses in ``extras`` and every warning.
 
     Raises

@@ -18,13 +18,19 @@ import re
 
 from foldcorr.report.tables import Report, Table
 
-__all__ = ["render_html", "html_table", "svg_figures", "PLOT_CAPTIONS"]
+__all__ = ["render_html", "html_table", "svg_figures", "PLOT_CAPTIONS", "MULTILABEL_CAPTIONS"]
 
 #: Captions of the plots of :mod:`foldcorr.report.plots`, by figure name, in page order.
 PLOT_CAPTIONS = {
     "loss_budget": "Loss budget: where 1 - R_K goes, class by class, plus the marginal mismatch",
     "confusion": "Confusion heatmap (rows actual, columns predicted)",
     "folds": "R_K per fold",
+}
+
+#: The captions that differ for a multilabel evaluation.
+MULTILABEL_CAPTIONS = {
+    "loss_budget": "Loss budget: where 1 - macro MCC goes, label by label",
+    "folds": "macro MCC per fold",
 }
 
 _CSS = """
@@ -271,7 +277,8 @@ def svg_figures(ev) -> tuple[list[tuple[str, str]], str]:
                     "pip install 'foldcorr[plot]'")
     from foldcorr.report import plots
 
-    return [(PLOT_CAPTIONS.get(name, name.replace("_", " ")),
+    captions = {**PLOT_CAPTIONS, **(MULTILABEL_CAPTIONS if ev.kind == "multilabel" else {})}
+    return [(captions.get(name, name.replace("_", " ")),
              _strip_xml_header(plots.figure_svg(fig)))
             for name, fig in plots.figures(ev).items()], ""
 

@@ -1,5 +1,8 @@
 """Plots of an evaluation: the loss budget, the confusion heatmap and R_K per fold.
 
+A multilabel evaluation gets the loss budget of its macro MCC, label by label,
+and its macro MCC per fold (no heatmap: each label is one 2 x 2 matrix).
+
 Each plot has a ``*_data(ev)`` function that returns the numbers drawn (so
 they can be checked) and a ``*_figure(ev)`` function that returns a
 :class:`matplotlib.figure.Figure`; :func:`save_plots` writes them to files.
@@ -21,6 +24,7 @@ from pathlib import Path
 import numpy as np
 
 from foldcorr.errors import InvalidTensorError, require
+from foldcorr.figures import BUDGETED, MULTICLASS, POOLED
 
 __all__ = [
     "COLOURS",
@@ -53,6 +57,8 @@ DPI = 100
 #: Class names longer than this are shortened with an ellipsis on axes.
 MAX_LABEL = 22
 
+_PLURAL = {"class": "classes", "label": "labels"}
+
 _HEAT = ("#FFFFFF", "#C6DBEF", "#6BAED6", "#2171B5", "#08306B")
 
 
@@ -76,10 +82,18 @@ def _new_figure(width: float, height: float):
 
 
 def _by_drag(ev):
-    """Class labels and drags, largest drag first (the order of the class table)."""
-    d = ev.by_drag()
-    labels = [v.item() if hasattr(v, "item") else v for v in d.coords["class"].values]
-    return labels, np.asarray(d["drag"].values, dtype=float)
+    """Class (or label) names and drags, largest drag first, ties in tensor order."""
+    d = ev.rows
+    drags = np.asarray(d["drag"].values, dtype=float)
+    order = np.argsort(-np.nan_to_num(drags), kind="stable")
+    labels = [v.item() if hasattr(v, "item") else v for v in d.coords[ev.row_scope].values]
+    return [labels[i] for i in order], drags[order]
+
+
+def _budgeted(ev) -> tuple[str, str]:
+    """Key and short name of the figure the drags add up to: R_K, or macro MCC (multilabel)."""
+    key = BUDGETED[ev.kind]
+    return key, next(f.headline or f.label for f in ev.figures(POOLED) if f.key == key)
 
 
 # --------------------------------------------------------------------------
@@ -118,23 +132,26 @@ def loss_budget_data(ev, *, max_classes: int = 15) -> dict:
     True
     """
     labels, drags = _by_drag(ev)
-    mismatch = ev.figure("marginal_mismatch")
     shown = [i for i in range(len(labels)) if drags[i] > 0][:max_classes]
     rest = [i for i in range(len(labels)) if i not in set(shown)]
-    out_labels, kinds, sizes = ["marginal mismatch"], ["mismatch"], [float(mismatch)]
+    out_labels, kinds, sizes = [], [], []
+    if "marginal_mismatch" in ev.pooled:
+        out_labels, kinds = ["marginal mismatch"], ["mismatch"]
+        sizes = [float(ev.figure("marginal_mismatch"))]
     for i in shown:
         out_labels.append(labels[i])
         kinds.append("class")
         sizes.append(float(drags[i]))
     rest_drag = float(drags[rest].sum()) if rest else 0.0
     if rest and rest_drag > 0:
-        noun = "class" if len(rest) == 1 else "classes"
+        noun = ev.row_scope if len(rest) == 1 else _PLURAL[ev.row_scope]
         out_labels.append(f"other ({len(rest)} {noun})")
         kinds.append("other")
         sizes.append(rest_drag)
     starts = list(1.0 - np.concatenate([[0.0], np.cumsum(sizes)[:-1]]))
+    key, name = _budgeted(ev)
     return {"labels": out_labels, "kinds": kinds, "sizes": sizes, "starts": starts,
-            "rk": float(ev.rk)}
+            "rk": float(ev.figure(key)), "name": name, "unit": ev.row_scope}
 
 
 def loss_budget_figure(ev, *, max_classes: int = 15):
@@ -184,19 +201,20 @@ def loss_budget_figure(ev, *, max_classes: int = 15):
         ax.text(start - size - 0.002 * (1.0 - left), i, f"\u2212{size:.3f} ", va="center",
                 ha="right", fontsize=8)
     ax.barh(n - 1, rk - left, left=left, color=COLOURS["result"], height=0.7)
-    ax.text(rk, n - 1, f" R_K = {rk:.3f}", va="center", ha="left", fontsize=9,
+    name, unit = data["name"], data["unit"]
+    ax.text(rk, n - 1, f" {name} = {rk:.3f}", va="center", ha="left", fontsize=9,
             fontweight="bold")
-    ax.set_yticks(y, [_short(v) for v in data["labels"]] + ["R_K"])
+    ax.set_yticks(y, [_short(v) for v in data["labels"]] + [name])
     ax.invert_yaxis()
     ax.set_xlim(left, 1.0 + 0.02 * (1.0 - left))
     ax.axvline(1.0, color="black", linewidth=0.8)
     ax.set_xlabel(f"correlation (1 = perfect; the axis starts at {left:.2f}); "
                   "each bar takes its loss off the level above")
-    ax.set_title(f"Where R_K falls short of 1 (R_K = {rk:.3f})")
+    ax.set_title(f"Where {name} falls short of 1 ({name} = {rk:.3f})")
     ax.grid(axis="x", color="#DDDDDD", linewidth=0.6)
     ax.set_axisbelow(True)
-    _legend(ax, [("marginal mismatch", "mismatch"), ("drag of one class", "class"),
-                 ("drag of the other classes", "other"), ("R_K", "result")],
+    _legend(ax, [("marginal mismatch", "mismatch"), (f"drag of one {unit}", "class"),
+                 (f"drag of the other {_PLURAL[unit]}", "other"), (name, "result")],
             present=set(data["kinds"]) | {"result"}, loc="upper left")
     return fig
 
@@ -402,12 +420,14 @@ def fold_data(ev) -> dict:
     if ev.folds is None:
         raise InvalidTensorError("the per-fold plot needs folds; this evaluation has none")
     folds = [v.item() if hasattr(v, "item") else v for v in ev.folds.coords["fold"].values]
-    rk = [float(v) for v in ev.folds["rk"].values]
+    key, name = _budgeted(ev)
+    rk = [float(v) for v in ev.folds[key].values]
     interval = _fold_intervals(ev, ev.folds.coords["fold"].values)
     low, high = (None, None) if interval is None else ([float(v) for v in interval[0]],
                                                         [float(v) for v in interval[1]])
-    return {"folds": folds, "rk": rk, "low": low, "high": high, "pooled": float(ev.rk),
-            "mean": float(ev.fold_summary.mean_rk)}
+    mean = ev.fold_summary.mean_rk if ev.fold_summary is not None else np.mean(rk)
+    return {"folds": folds, "rk": rk, "low": low, "high": high, "pooled": ev.figure(key),
+            "mean": float(mean), "name": name}
 
 
 def fold_figure(ev):
@@ -437,21 +457,21 @@ def fold_figure(ev):
     fig = _new_figure(float(np.clip(3.0 + 0.45 * n, 6.0, 14.0)), 4.2)
     ax = fig.add_subplot()
     x = np.arange(n)
-    rk = np.asarray(data["rk"])
+    rk, name = np.asarray(data["rk"]), data["name"]
     if data["low"] is not None:
         low, high = np.asarray(data["low"]), np.asarray(data["high"])
         ax.errorbar(x, rk, yerr=[rk - low, high - rk], fmt="o", color=COLOURS["point"],
-                    ecolor=COLOURS["point"], capsize=4, label="R_K of the fold, with interval")
+                    ecolor=COLOURS["point"], capsize=4, label=f"{name} of the fold, with interval")
     else:
-        ax.plot(x, rk, "o", color=COLOURS["point"], label="R_K of the fold")
+        ax.plot(x, rk, "o", color=COLOURS["point"], label=f"{name} of the fold")
     ax.axhline(data["pooled"], color=COLOURS["pooled"], linestyle="--", linewidth=1.2,
-               label=f"pooled R_K ({data['pooled']:.3f})")
+               label=f"pooled {name} ({data['pooled']:.3f})")
     ax.axhline(data["mean"], color=COLOURS["mean"], linestyle=":", linewidth=1.5,
                label=f"mean of the folds ({data['mean']:.3f})")
     ax.set_xticks(x, [_short(f) for f in data["folds"]], rotation=90 if n > 12 else 0)
     ax.set_xlabel("fold")
-    ax.set_ylabel("R_K")
-    ax.set_title("R_K per fold")
+    ax.set_ylabel(name)
+    ax.set_title(f"{name} per fold")
     values = [*rk, data["pooled"]] + (list(data["low"]) + list(data["high"])
                                       if data["low"] is not None else [])
     lo, hi = min(values), max(values)
@@ -473,7 +493,7 @@ def figures(ev, *, max_classes: int = 100, budget_classes: int = 15) -> dict:
     Returns
     -------
     dict of str to matplotlib.figure.Figure
-        Keys ``loss_budget``, ``confusion`` and, with folds, ``folds``.
+        Keys ``loss_budget``, ``confusion`` (multiclass) and, with folds, ``folds``.
 
     Examples
     --------
@@ -482,8 +502,9 @@ def figures(ev, *, max_classes: int = 100, budget_classes: int = 15) -> dict:
     >>> sorted(figures(evaluate(confusion_tensor([[5, 1], [2, 6]], ["a", "b"]))))
     ['confusion', 'loss_budget']
     """
-    out = {"loss_budget": loss_budget_figure(ev, max_classes=budget_classes),
-           "confusion": confusion_figure(ev, max_classes=max_classes)}
+    out = {"loss_budget": loss_budget_figure(ev, max_classes=budget_classes)}
+    if ev.kind == MULTICLASS:  # a multilabel tensor is one 2 x 2 matrix per label
+        out["confusion"] = confusion_figure(ev, max_classes=max_classes)
     if ev.folds is not None:
         out["folds"] = fold_figure(ev)
     return out

@@ -6,15 +6,21 @@ in :data:`SECTIONS` says how to show it, through any of these optional hooks:
 
 ``summary_notes(ev) -> dict[str, str]``
     Text beside pooled figures (e.g. an interval beside ``rk``).
+``summary_columns(ev) -> list[tuple[Column, dict]]``
+    Extra columns of the pooled table, values keyed by figure key.
 ``fold_columns(ev) -> list[tuple[Column, list]]``
     Extra columns of the fold table, one value per fold in fold order.
 ``class_columns(ev) -> list[tuple[Column, dict]]``
-    Extra columns of the per-class table, values keyed by class label.
+    Extra columns of the per-class (or per-label) table, values keyed by class
+    (or label), placed before the last column; a third item, a figure key,
+    places the column right after that figure's column.
+``class_note(ev) -> str``
+    A sentence added to the note of the per-class (or per-label) table.
 ``tables(ev, top) -> list[Table]``
     Whole tables shown after the core tables.
 ``json(ev, doc) -> None``
     Adds keys to the JSON document (top level, or inside ``pooled``,
-    ``folds`` and ``per_class`` entries).
+    ``folds``, ``per_class`` and ``per_label`` entries).
 
 Modules are imported only when their key is present, so an evaluation without
 sections never loads them.
@@ -31,6 +37,7 @@ SECTIONS: dict[str, str] = {
     "uncertainty": "foldcorr.report.uncertainty",
     "repair": "foldcorr.report.repair",
     "shifted": "foldcorr.report.shift",
+    "intervals": "foldcorr.report.intervals",
 }
 
 

@@ -10,9 +10,11 @@ import math
 from dataclasses import dataclass, field
 
 from foldcorr.evaluation import Evaluation
+from foldcorr.figures import MULTICLASS, MULTILABEL, PER_FOLD, POOLED, Figure
 from foldcorr.report.sections import hooks
 
-__all__ = ["Column", "Table", "Report", "score_report", "format_value"]
+__all__ = ["Column", "Table", "Report", "score_report", "format_value", "figure_column",
+           "figure_cell", "COLUMN_KIND", "WORDING"]
 
 
 @dataclass(frozen=True)
@@ -92,26 +94,89 @@ def _py(value):
     return value.item() if hasattr(value, "item") else value
 
 
+#: Column kind of each figure style (:data:`foldcorr.figures.STYLES`).
+COLUMN_KIND = {"correlation": "correlation", "metric": "metric", "count": "count",
+               "confusion": "text"}
+
+#: The words of a report that depend on the tensor kind (the figures come from the registry).
+WORDING = {
+    MULTICLASS: {"title": "foldcorr score", "summary": "Pooled over all samples",
+                 "rows": "Classes by drag", "unit": "classes", "note": ""},
+    MULTILABEL: {"title": "foldcorr score (multilabel)", "summary": "Averages over labels",
+                 "rows": "Labels by cost", "unit": "labels",
+                 "note": "cost = (1 - MCC) x support: the labels that cost the most come first"},
+}
+
+
+def figure_column(figure: Figure) -> Column:
+    """The report column of a registry figure.
+
+    Examples
+    --------
+    >>> from foldcorr.figures import FIGURES
+    >>> figure_column(FIGURES[1])
+    Column(title='R_K', kind='correlation')
+    """
+    return Column(figure.label, COLUMN_KIND[figure.style])
+
+
+def figure_cell(table, i: int, figure: Figure):
+    """The raw cell of one figure in row ``i`` of a per-fold, per-class or per-label dataset.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> from foldcorr.evaluation import evaluate
+    >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
+    >>> [figure_cell(ev.per_class, 0, f) for f in ev.figures("class")][:2]
+    [8, 7]
+    """
+    if figure.style == "confusion":
+        count = _py(table[f"{figure.key}_count"].values[i])
+        if count == 0:
+            return ""
+        return f"{_py(table[figure.key].values[i])} ({format_value(count, 'count')})"
+    value = _py(table[figure.key].values[i])
+    if figure.style != "count":
+        return float(value)
+    return round(value, 1) if isinstance(value, float) else value
+
+
+def _extra_columns(ev, hook: str, columns: tuple, rows: list, keys: list, *, figures,
+                   before_last: bool):
+    """Add the columns of a section hook: ``(column, values by row key[, after figure key])``.
+
+    A column goes right after the figure it names, else before the last column
+    (``before_last``) or at the end.
+    """
+    slots = ["", *(f.key for f in figures)]
+    for more in hooks(ev, hook):
+        for column, by_key, *after in more(ev):
+            if after and after[0] in slots:
+                at = slots.index(after[0]) + 1
+            else:
+                at = len(columns) - 1 if before_last else len(columns)
+            columns = (*columns[:at], column, *columns[at:])
+            slots.insert(at, "")
+            rows = [(*row[:at], by_key.get(key), *row[at:]) for row, key in zip(rows, keys)]
+    return columns, rows
+
+
 def summary_table(ev: Evaluation) -> Table:
-    """Pooled figures, one row per figure."""
-    names = {
-        "rk": "R_K",
-        "accuracy": "accuracy",
-        "balanced_accuracy": "balanced accuracy",
-        "kappa": "Cohen's kappa",
-        "macro_f1": "macro F1",
-        "macro_mcc": "macro one-vs-rest MCC",
-        "marginal_mismatch": "marginal mismatch",
-    }
+    """Pooled figures, one row per figure (counts are headline facts instead)."""
+    figures = [f for f in ev.figures(POOLED) if f.style != "count"]
+    kind = "correlation" if all(f.style == "correlation" for f in figures) else "metric"
     notes: dict[str, str] = {}
     for more in hooks(ev, "summary_notes"):
         notes.update(more(ev))
-    columns = (Column("figure", "label"), Column("value"))
+    columns = (Column("figure", "label"), Column("value", kind))
     if notes:
         columns += (Column("", "text"),)
-    rows = tuple((label, ev.figure(name), *([notes.get(name, "")] if notes else []))
-                 for name, label in names.items())
-    return Table("Pooled over all samples", columns, rows)
+    rows = [(f.label, ev.figure(f.key), *([notes.get(f.key, "")] if notes else []))
+            for f in figures]
+    columns, rows = _extra_columns(ev, "summary_columns", columns, rows,
+                                   [f.key for f in figures], figures=(), before_last=False)
+    return Table(WORDING[ev.kind]["summary"], columns, tuple(rows))
 
 
 def fold_table(ev: Evaluation) -> Table | None:
@@ -119,54 +184,44 @@ def fold_table(ev: Evaluation) -> Table | None:
     if ev.folds is None:
         return None
     f = ev.folds
-    rows = tuple(
-        (_py(fold), _py(f["n"].values[i]), float(f["rk"].values[i]),
-         float(f["accuracy"].values[i]), float(f["balanced_accuracy"].values[i]),
-         float(f["macro_mcc"].values[i]))
-        for i, fold in enumerate(f.coords["fold"].values)
-    )
+    figures = ev.figures(PER_FOLD)
+    rows = [(_py(fold), *(figure_cell(f, i, fig) for fig in figures))
+            for i, fold in enumerate(f.coords["fold"].values)]
+    note = ""
     s = ev.fold_summary
-    note = (f"mean R_K {s.mean_rk:.3f}, sd {format_value(s.sd_rk, 'metric')}, "
-            f"range {s.min_rk:.3f} to {s.max_rk:.3f}; pooled R_K {ev.rk:.3f}")
-    columns = (Column("fold", "label"), Column("samples", "count"), Column("R_K", "correlation"),
-               Column("accuracy"), Column("bal. acc."), Column("macro MCC", "correlation"))
+    if s is not None:
+        note = (f"mean R_K {s.mean_rk:.3f}, sd {format_value(s.sd_rk, 'metric')}, "
+                f"range {s.min_rk:.3f} to {s.max_rk:.3f}; pooled R_K {ev.rk:.3f}")
+    columns = (Column("fold", "label"), *(figure_column(fig) for fig in figures))
     for more in hooks(ev, "fold_columns"):
         for column, values in more(ev):
             columns += (column,)
-            rows = tuple((*row, value) for row, value in zip(rows, values))
-    return Table("Folds", columns, rows, note)
+            rows = [(*row, value) for row, value in zip(rows, values)]
+    return Table("Folds", columns, tuple(rows), note)
 
 
 def class_table(ev: Evaluation, top: int | None = 20) -> Table:
-    """Per-class figures sorted by drag, largest first; ``top=None`` shows all."""
-    d = ev.by_drag()
-    k = d.sizes["class"]
+    """Per-class (or per-label) figures, costliest first; ``top=None`` shows all."""
+    d = ev.ranked()
+    dim = ev.row_scope
+    k = d.sizes[dim]
     shown = k if top is None else min(top, k)
-    rows = []
-    for i in range(shown):
-        row = d.isel({"class": i})
-        confusion = _py(row["top_confusion"].values)
-        wrong = "" if int(row["top_confusion_count"]) == 0 else f"{confusion} ({format_value(_py(row['top_confusion_count'].values), 'count')})"
-        rows.append((
-            _py(row.coords["class"].values), _py(row["support"].values),
-            _py(row["predicted"].values), float(row["mcc"]), float(row["weight"]),
-            float(row["contribution"]), float(row["drag"]), float(row["recall"]),
-            float(row["precision"]), wrong,
-        ))
-    columns = (Column("class", "label"), Column("support", "count"), Column("predicted", "count"),
-               Column("MCC", "correlation"), Column("weight"), Column("contrib."),
-               Column("drag"), Column("recall"), Column("precision"),
-               Column("most often taken for", "text"))
-    for more in hooks(ev, "class_columns"):
-        for column, by_class in more(ev):
-            columns = (*columns[:-1], column, columns[-1])
-            rows = [(*row[:-1], by_class.get(row[0]), row[-1]) for row in rows]
-    note = "" if shown == k else f"{k - shown} more classes not shown (use --top all)"
-    return Table(f"Classes by drag (top {shown} of {k})", columns, tuple(rows), note)
+    figures = ev.figures(dim)
+    keys = [_py(v) for v in d.coords[dim].values[:shown]]
+    rows = [(key, *(figure_cell(d, i, fig) for fig in figures)) for i, key in enumerate(keys)]
+    columns = (Column(dim, "label"), *(figure_column(fig) for fig in figures))
+    columns, rows = _extra_columns(ev, "class_columns", columns, rows, keys, figures=figures,
+                                   before_last=True)
+    words = WORDING[ev.kind]
+    notes = [words["note"]] + [note(ev) for note in hooks(ev, "class_note")]
+    if shown < k:
+        notes.append(f"{k - shown} more {words['unit']} not shown (use --top all)")
+    return Table(f"{words['rows']} (top {shown} of {k})", columns, tuple(rows),
+                 "; ".join(n for n in notes if n))
 
 
 def score_report(ev: Evaluation, *, top: int | None = 20, source: str | None = None) -> Report:
-    """Assemble the report of ``foldcorr score`` from an evaluation.
+    """Assemble the report of ``foldcorr score`` from an evaluation of any tensor kind.
 
     Examples
     --------
@@ -177,11 +232,13 @@ def score_report(ev: Evaluation, *, top: int | None = 20, source: str | None = N
     ['Pooled over all samples', 'Classes by drag (top 2 of 2)']
     """
     src = source or ev.tensor.attrs.get("source", "(in memory)")
-    folds = ev.fold_summary.count if ev.fold_summary else "none"
+    folds = ev.folds.sizes["fold"] if ev.folds is not None else "none"
+    words = WORDING[ev.kind]
     facts = (("source", str(src)), ("samples", format_value(ev.n, "count")),
-             ("classes", str(len(ev.classes))), ("folds", str(folds)),
-             ("R_K", format_value(ev.rk, "metric")))
+             (words["unit"], str(ev.rows.sizes[ev.row_scope])), ("folds", str(folds)),
+             *((f.headline, format_value(ev.figure(f.key), "metric"))
+               for f in ev.figures(POOLED) if f.headline))
     tables = [summary_table(ev), fold_table(ev), class_table(ev, top)]
     for make in hooks(ev, "tables"):
         tables.extend(make(ev, top))
-    return Report("foldcorr score", facts, tuple(t for t in tables if t is not None), ev.warnings)
+    return Report(words["title"], facts, tuple(t for t in tables if t is not None), ev.warnings)
