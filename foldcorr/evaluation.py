@@ -142,6 +142,18 @@ class Evaluation:
         return self.tensor.coords[ACTUAL].values.tolist()
 
     @property
+    def row_names(self) -> list:
+        """Names of the rows of :attr:`rows`: the classes, or the labels of a multilabel tensor.
+
+        Examples
+        --------
+        >>> from foldcorr.tensor import confusion_tensor
+        >>> evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).row_names
+        ['p', 'n']
+        """
+        return self.rows.coords[self.row_scope].values.tolist()
+
+    @property
     def labels(self) -> list:
         """Labels of a multilabel tensor, in tensor order (empty for multiclass)."""
         return self.tensor.coords[LABEL].values.tolist() if LABEL in self.tensor.dims else []

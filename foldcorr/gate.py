@@ -3,13 +3,19 @@ r"""The CI gate: rules over an evaluation, each with its value, threshold and ve
 A gate holds when every rule given holds. The rules:
 
 ``min_rk``
-    pooled R_K >= X.
+    pooled R_K >= X (multiclass).
+``min_micro_mcc``
+    pooled micro MCC (the tensor summed over labels) >= X (multilabel).
+``min_macro_mcc``
+    pooled macro MCC >= X: the mean one-vs-rest MCC over classes, or the mean
+    MCC over the labels present (both kinds).
 ``min_fold_rk``
     R_K of every fold >= X (the value shown is the lowest fold's).
 ``min_class_mcc``
-    one-vs-rest MCC of every class >= X (the value shown is the lowest).
+    one-vs-rest MCC of every class (multiclass) or MCC of every label
+    (multilabel) >= X (the value shown is the lowest).
 ``class_floors``
-    one-vs-rest MCC of each listed class >= its own floor; the value shown is
+    MCC of each listed class or label >= its own floor; the value shown is
     the smallest margin MCC - floor, held against 0.
 ``max_marginal_mismatch``
     the marginal mismatch term 1 - sum_k w_k of the decomposition <= X.
@@ -17,6 +23,9 @@ A gate holds when every rule given holds. The rules:
     against a baseline, the drop R_K(baseline) - R_K(current) <= D. With a
     confidence level the drop counts as a regression only when the whole
     bootstrap interval of the drop lies above D.
+
+Rules of the other kind are refused (:data:`RULES_BY_KIND`): a multilabel
+evaluation has no R_K, fold R_K, marginal mismatch or baseline drop of R_K.
 
 An undefined figure (NaN under ``undefined="nan"``) fails its rule: a gate
 cannot vouch for a value it could not compute.
@@ -39,17 +48,28 @@ from foldcorr.tensor.samples import Samples, align_samples
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, pool
 
 __all__ = ["GateRules", "RuleResult", "ClassShortfall", "GateResult", "check_gate",
-           "RULE_TITLES"]
+           "RULE_TITLES", "RULES_BY_KIND"]
 
 #: Rule names (the JSON ``rule`` key) and their titles in the text table.
 RULE_TITLES = {
     "min_rk": "pooled R_K",
+    "min_micro_mcc": "pooled micro MCC",
+    "min_macro_mcc": "pooled macro MCC",
     "min_fold_rk": "R_K of every fold",
     "min_class_mcc": "MCC of every class",
     "class_floors": "MCC above class floors",
     "max_marginal_mismatch": "marginal mismatch",
     "max_drop": "drop in R_K from baseline",
 }
+
+#: The rules each kind of evaluation can be held to.
+RULES_BY_KIND = {
+    "multiclass": ("min_rk", "min_macro_mcc", "min_fold_rk", "min_class_mcc", "class_floors",
+                   "max_marginal_mismatch", "max_drop"),
+    "multilabel": ("min_micro_mcc", "min_macro_mcc", "min_class_mcc", "class_floors"),
+}
+#: Rules that compare a pooled figure with a lower bound: rule -> figure key.
+_POOLED_RULES = {"min_rk": "rk", "min_micro_mcc": "micro_mcc", "min_macro_mcc": "macro_mcc"}
 
 
 @dataclass(frozen=True)
@@ -60,9 +80,11 @@ class GateRules:
     ----------
     min_rk, min_fold_rk, min_class_mcc : float or None
         Lower bounds of pooled R_K, of every fold's R_K and of every class's
-        one-vs-rest MCC.
+        one-vs-rest MCC (every label's MCC for a multilabel evaluation).
+    min_micro_mcc, min_macro_mcc : float or None
+        Lower bounds of pooled micro MCC (multilabel) and macro MCC.
     class_floors : mapping or None
-        Class label -> lower bound of that class's one-vs-rest MCC.
+        Class (or label) -> lower bound of its MCC.
     max_marginal_mismatch : float or None
         Upper bound of the marginal mismatch term.
     max_drop : float or None
@@ -79,6 +101,8 @@ class GateRules:
     """
 
     min_rk: float | None = None
+    min_micro_mcc: float | None = None
+    min_macro_mcc: float | None = None
     min_fold_rk: float | None = None
     min_class_mcc: float | None = None
     class_floors: Mapping | None = None
@@ -90,8 +114,8 @@ class GateRules:
     seed: int | None = None
 
     def __post_init__(self):
-        for name in ("min_rk", "min_fold_rk", "min_class_mcc", "max_marginal_mismatch",
-                     "max_drop"):
+        for name in ("min_rk", "min_micro_mcc", "min_macro_mcc", "min_fold_rk", "min_class_mcc",
+                     "max_marginal_mismatch", "max_drop"):
             value = getattr(self, name)
             if value is not None and not (isinstance(value, (int, float)) and math.isfinite(value)):
                 raise OptionError(f"`{name}` must be a finite number; got {value!r}")
@@ -104,9 +128,12 @@ class GateRules:
     @property
     def empty(self) -> bool:
         """Whether no rule is set."""
-        return all(getattr(self, n) is None for n in (
-            "min_rk", "min_fold_rk", "min_class_mcc", "class_floors", "max_marginal_mismatch",
-            "max_drop"))
+        return not self.given
+
+    @property
+    def given(self) -> tuple:
+        """The names of the rules set, in :data:`RULE_TITLES` order."""
+        return tuple(n for n in RULE_TITLES if getattr(self, n) not in (None, {}))
 
 
 @dataclass(frozen=True)
@@ -275,22 +302,25 @@ def check_gate(ev: Evaluation, rules: GateRules, *, baseline: Evaluation | None 
     """
     if rules.empty:
         raise OptionError("the gate has no rules; give at least one of --min-rk, "
-                          "--min-fold-rk, --min-class-mcc, --class-floors, "
-                          "--max-marginal-mismatch, --baseline")
+                          "--min-micro-mcc, --min-macro-mcc, --min-fold-rk, --min-class-mcc, "
+                          "--class-floors, --max-marginal-mismatch, --baseline")
+    _check_kind(ev, rules)
     if rules.max_drop is not None and baseline is None:
         raise OptionError("`max_drop` needs a baseline to compare with")
     out: list[RuleResult] = []
     short: list[ClassShortfall] = []
     notes: list[str] = list(ev.warnings)
     comparison = ""
-    if rules.min_rk is not None:
-        out.append(RuleResult("min_rk", ev.rk, rules.min_rk, ">=",
-                              _holds(ev.rk, rules.min_rk, ">="),
-                              f"pooled over {_count(ev.n)} samples"))
+    for name, key in _POOLED_RULES.items():
+        bound = getattr(rules, name)
+        if bound is not None:
+            value = ev.figure(key)
+            out.append(RuleResult(name, value, bound, ">=", _holds(value, bound, ">="),
+                                  f"pooled over {_count(ev.n)} samples"))
     if rules.min_fold_rk is not None:
         out.append(_fold_rule(ev, rules.min_fold_rk))
     if rules.min_class_mcc is not None:
-        floors = {label: rules.min_class_mcc for label in ev.classes}
+        floors = {label: rules.min_class_mcc for label in ev.row_names}
         rule, missed = _class_rule(ev, floors, "min_class_mcc")
         out.append(rule)
         short.extend(missed)
@@ -311,6 +341,14 @@ def check_gate(ev: Evaluation, rules: GateRules, *, baseline: Evaluation | None 
     return GateResult(passed=all(r.passed for r in out), rules=tuple(out),
                       failing_classes=tuple(short), evaluation=ev, baseline=baseline,
                       comparison=comparison, warnings=tuple(dict.fromkeys(notes)))
+
+
+def _check_kind(ev: Evaluation, rules: GateRules) -> None:
+    allowed = RULES_BY_KIND[ev.kind]
+    wrong = [name for name in rules.given if name not in allowed]
+    if wrong:
+        raise OptionError(f"`{wrong[0]}` does not apply to a {ev.kind} evaluation; its rules "
+                          f"are {', '.join(allowed)}")
 
 
 def _count(n) -> str:
@@ -341,8 +379,9 @@ def _furthest_below_first(c: ClassShortfall) -> float:
 
 
 def _class_rule(ev: Evaluation, floors: dict, name: str):
-    pc = ev.per_class
-    labels = pc.coords["class"].values.tolist()
+    pc = ev.rows
+    labels = ev.row_names
+    noun = "labels" if ev.row_scope == "label" else "classes"
     index = {label: i for i, label in enumerate(labels)}
     mcc = pc["mcc"].values.astype(float)
     support = pc["support"].values
@@ -368,9 +407,9 @@ def _class_rule(ev: Evaluation, floors: dict, name: str):
         described = [f"{c.label!s} {_f(c.mcc)} < {c.floor:.3f}" for c in missed]
         head = "smallest margin MCC - floor over"
     if missed:
-        detail = f"{len(missed)} of {checked} classes below: " + _listed(described)
+        detail = f"{len(missed)} of {checked} {noun} below: " + _listed(described)
     else:
-        detail = f"{head} {checked} classes"
+        detail = f"{head} {checked} {noun}"
     return RuleResult(name, value, threshold, ">=", not missed, detail), missed
 
 

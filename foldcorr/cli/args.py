@@ -11,11 +11,10 @@ import argparse
 
 from foldcorr._version import __version__
 from foldcorr.pipeline import ScoreOptions
+from foldcorr.report.formats import FORMATS
 
-__all__ = ["get_parser", "FORMATS", "GATE_FORMATS", "OPTION_OF_DEST", "flag_names"]
+__all__ = ["get_parser", "OPTION_OF_DEST", "flag_names"]
 
-FORMATS = ("text", "json", "markdown", "html")
-GATE_FORMATS = ("text", "json", "markdown")
 #: Not given: absent from the namespace (the pipeline holds the defaults).
 UNSET = argparse.SUPPRESS
 #: Destinations whose option of the pipeline has another name.
@@ -219,13 +218,19 @@ def get_parser() -> argparse.ArgumentParser:
                       help="column of unique sample ids in prediction tables (for a paired "
                            "baseline comparison)")
     rules = gate.add_argument_group("rules")
-    rules.add_argument("--min-rk", type=_number, metavar="X", help="pooled R_K must be >= X")
+    rules.add_argument("--min-rk", type=_number, metavar="X",
+                       help="pooled R_K must be >= X (multiclass)")
+    rules.add_argument("--min-micro-mcc", type=_number, metavar="X",
+                       help="pooled micro MCC must be >= X (multilabel)")
+    rules.add_argument("--min-macro-mcc", type=_number, metavar="X",
+                       help="pooled macro MCC must be >= X")
     rules.add_argument("--min-fold-rk", type=_number, metavar="X",
-                       help="R_K of every fold must be >= X")
+                       help="R_K of every fold must be >= X (multiclass)")
     rules.add_argument("--min-class-mcc", type=_number, metavar="X",
-                       help="one-vs-rest MCC of every class must be >= X")
+                       help="MCC of every class (one-vs-rest) or label must be >= X")
     rules.add_argument("--class-floors", metavar="FILE",
-                       help="CSV class,floor: each listed class's MCC must be >= its floor")
+                       help="CSV class,floor (or label,floor): each listed class's MCC must be "
+                            ">= its floor")
     rules.add_argument("--max-marginal-mismatch", type=_number, metavar="X",
                        help="marginal mismatch term must be <= X")
     rules.add_argument("--baseline", metavar="FILE",
@@ -246,7 +251,8 @@ def get_parser() -> argparse.ArgumentParser:
     gate.add_argument("--undefined", choices=("zero", "nan"), default=UNSET,
                       help="value of 0/0 metrics (default: as saved, else zero); "
                            "an undefined figure fails its rule")
-    _add_output_options(gate, GATE_FORMATS)
+    _add_multilabel_options(gate)
+    _add_output_options(gate)
     gate.add_argument("--junit", metavar="FILE", help="also write a JUnit XML report")
     gate.add_argument("--markdown", metavar="FILE",
                       help="also write a Markdown summary (job summary, pull-request comment)")

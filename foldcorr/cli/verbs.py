@@ -14,7 +14,7 @@ import sys
 from foldcorr.cli.args import OPTION_OF_DEST, flag_names
 
 __all__ = ["VERBS", "EXIT_OK", "EXIT_FAILED", "EXIT_USAGE", "check_targets", "given_options",
-           "present", "emit", "write_out"]
+           "present", "emit", "emit_evaluation", "write_out"]
 
 EXIT_OK, EXIT_FAILED, EXIT_USAGE = 0, 1, 2
 
@@ -129,8 +129,8 @@ def run_gate(args) -> int:
     from foldcorr.errors import OptionError
     from foldcorr.gate import GateRules, check_gate
     from foldcorr.pipeline import load_gate_inputs
-    from foldcorr.report.gate import gate_report, junit_xml, render_gate
-    from foldcorr.report.text import render_rich
+    from foldcorr.report import render
+    from foldcorr.report.gate import junit_xml
     from foldcorr.sources.floors import read_class_floors
 
     given = present(args, ("resamples", "seed"))
@@ -145,13 +145,17 @@ def run_gate(args) -> int:
         check_level(args.confidence, name="--confidence")
         if "resamples" in given:
             check_resamples(given["resamples"], name="--resamples")
-    table = given_options(args, ["truth", "pred", "fold", "weight", "classes", "matrix"])
+    from foldcorr.pipeline import MULTILABEL_OPTIONS
+
+    table = given_options(args, ["truth", "pred", "fold", "weight", "classes", "matrix",
+                                 *MULTILABEL_OPTIONS])
     ev, samples, baseline, base_samples = load_gate_inputs(
         args.path, args.baseline, undefined=getattr(args, "undefined", None),
         id_column=args.id_column, **table)
-    floors = read_class_floors(args.class_floors, ev.classes) if args.class_floors else None
+    floors = read_class_floors(args.class_floors, ev.row_names) if args.class_floors else None
     rules = GateRules(
-        min_rk=args.min_rk, min_fold_rk=args.min_fold_rk, min_class_mcc=args.min_class_mcc,
+        min_rk=args.min_rk, min_micro_mcc=args.min_micro_mcc, min_macro_mcc=args.min_macro_mcc,
+        min_fold_rk=args.min_fold_rk, min_class_mcc=args.min_class_mcc,
         class_floors=floors, max_marginal_mismatch=args.max_marginal_mismatch,
         max_drop=(args.max_drop if args.max_drop is not None else 0.0) if args.baseline else None,
         allow_new_classes=args.allow_new_classes, confidence=args.confidence,
@@ -162,8 +166,8 @@ def run_gate(args) -> int:
     if args.junit:
         write_out(args.junit, junit_xml(result))
     if args.markdown:
-        write_out(args.markdown, render_gate(result, "markdown"))
-    emit(args, lambda fmt: render_gate(result, fmt), lambda: render_rich(gate_report(result)))
+        write_out(args.markdown, render(result, "markdown"))
+    emit(args, result)
     return EXIT_OK if result.passed else EXIT_FAILED
 
 
@@ -243,10 +247,7 @@ def run_sweep(args) -> int:
 
         paths = plot_sweep(result, args.plot)
         print(f"{len(paths)} figure(s) written to {args.plot}", file=sys.stderr)
-    from foldcorr.report.sweep import sweep_dict, sweep_report
-
-    emit_report(args, sweep_report(result, **present(args, ("top",)), source=table.source),
-                lambda: sweep_dict(result, source=table.source))
+    emit(args, result, **present(args, ("top",)), source=table.source)
     return EXIT_OK
 
 
@@ -258,8 +259,6 @@ COMPARE_SETTINGS = {"ci": "level", "resamples": "n_resamples", "permutations": "
 def run_compare(args) -> int:
     from foldcorr.analysis.compare import compare_models
     from foldcorr.analysis.resampling import check_level, check_resamples
-    from foldcorr.report.compare import compare_report, render_compare
-    from foldcorr.report.text import render_rich
     from foldcorr.sources.paired import PairSpec, load_joint
 
     spec = PairSpec(**present(args, ("truth", "pred_a", "pred_b", "pred", "id", "fold", "classes")))
@@ -280,9 +279,7 @@ def run_compare(args) -> int:
         names = (f"{Path(args.path).name}, column {spec.pred_a or spec.pred!r}",
                  f"{Path(args.path_b).name}, column {spec.pred_b or spec.pred!r}")
     source = joint.attrs.get("source")
-    top = present(args, ("top",))
-    emit(args, lambda fmt: render_compare(result, fmt, names=names, **top, source=source),
-         lambda: render_rich(compare_report(result, names=names, **top, source=source)))
+    emit(args, result, **present(args, ("top",)), names=names, source=source)
     return EXIT_OK
 
 
@@ -310,14 +307,6 @@ def _console():
 
 
 
-def emit_report(args, report, make_json) -> None:
-    """:func:`emit` of a Report (text, Markdown, HTML) or its JSON document."""
-    from foldcorr.report.documents import render_report
-    from foldcorr.report.text import render_rich
-
-    emit(args, lambda fmt: render_report(report, make_json, fmt), lambda: render_rich(report))
-
-
 def emit_evaluation(args, ev, top) -> None:
     """:func:`emit` of what :func:`foldcorr.pipeline.score` returned (and its ``--plot`` files)."""
     if getattr(args, "plot", None):
@@ -325,23 +314,27 @@ def emit_evaluation(args, ev, top) -> None:
 
         written = save_plots(ev, args.plot)
         print(f"{len(written)} plot files written to {args.plot}", file=sys.stderr)
-    from foldcorr.report import render_score
-    from foldcorr.report.text import render_rich
-
-    emit(args, lambda fmt: render_score(ev, fmt, top=top), lambda: render_rich(ev, top=top))
+    emit(args, ev, top=top)
 
 
-def emit(args, render, rich) -> None:
-    """The one way out: ``render(fmt)`` to ``--output`` or stdout, or ``rich()`` on the console.
+def emit(args, result, **context) -> None:
+    """The one way out: any result, in ``--format``, to ``--output`` or stdout.
 
     Plain text without ``--output`` goes through a rich console (colour only on
-    a terminal, never with ``NO_COLOR``); everything else is the text
-    ``render(args.format)`` written by :func:`write_out`.
+    a terminal, never with ``NO_COLOR``); everything else is the text of
+    :func:`foldcorr.report.render`, written by :func:`write_out`. ``context``
+    is what the result's document takes (``top``, ``names``, ``source``).
     """
+    from foldcorr.report import document
+    from foldcorr.report.documents import write
+
+    doc = document(result, **context)
     if args.output or args.format != "text":
-        write_out(args.output, render(args.format))
+        write_out(args.output, write(doc, args.format))
     else:
-        _console().print(rich())
+        from foldcorr.report.text import render_rich
+
+        _console().print(render_rich(doc.report))
 
 
 def write_out(target, text: str) -> None:

@@ -16,7 +16,7 @@ from pathlib import Path
 from foldcorr.errors import OptionError
 from foldcorr.pipeline.options import ScoreOptions, given_text, option_namer
 
-__all__ = ["TABLE_OPTIONS", "MULTILABEL_OPTIONS", "KINDS", "score", "evaluate_with", "tensor_kind",
+__all__ = ["TABLE_OPTIONS", "MULTILABEL_OPTIONS", "KINDS", "score", "evaluate_with",
            "load_source", "replay", "load_evaluation", "load_gate_inputs"]
 
 #: Options naming the multilabel layout of a table; any of them makes a source multilabel.
@@ -51,7 +51,8 @@ def _shift(ev, options):
 def _repair(ev, options):
     from foldcorr.analysis.repair import repair_analysis
 
-    return ev.with_extra("repair", repair_analysis(ev.tensor, top=options.top,
+    # complete: every confusion is ranked and kept (JSON carries them all); reports cut to --top
+    return ev.with_extra("repair", repair_analysis(ev.tensor, top=None,
                                                    undefined=options.undefined))
 
 
@@ -83,20 +84,6 @@ KINDS = {
 }
 
 
-def tensor_kind(tensor) -> str:
-    """``"multilabel"`` for a tensor with a ``label`` dim, else ``"multiclass"``.
-
-    Examples
-    --------
-    >>> from foldcorr.tensor import confusion_tensor
-    >>> tensor_kind(confusion_tensor([[2, 1], [0, 3]], ["a", "b"]))
-    'multiclass'
-    """
-    from foldcorr.tensor import LABEL
-
-    return "multilabel" if LABEL in tensor.dims else "multiclass"
-
-
 def evaluate_with(tensor, options: ScoreOptions | None = None):
     """Evaluate a tensor in memory and run the analyses of ``options`` on it.
 
@@ -124,7 +111,7 @@ def evaluate_with(tensor, options: ScoreOptions | None = None):
     from foldcorr.evaluation import evaluate
 
     ev = evaluate(tensor, undefined=options.undefined)
-    for name, step in KINDS[tensor_kind(tensor)]:
+    for name, step in KINDS[ev.kind]:
         if name in options.analyses:
             ev = step(ev, options)
     return ev

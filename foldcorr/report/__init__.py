@@ -1,44 +1,71 @@
-"""The report layer: an evaluation in, text out (terminal, plain, Markdown, JSON, HTML).
+"""The report layer: a result in, text out (terminal, plain, Markdown, JSON, HTML).
 
-Renderers take result objects and never compute a metric.
+:func:`render` writes any result (an evaluation, a comparison, a gate result, a
+threshold sweep) in any of :data:`FORMATS`, through one
+:class:`~foldcorr.report.documents.Document` per result kind (:data:`DOCUMENTS`)
+and one writer per format (:data:`WRITERS`). Renderers take result objects and
+never compute a metric. Importing this package loads nothing heavy, so the
+command line can list the formats cheaply.
 """
 
 from __future__ import annotations
 
-__all__ = ["FORMATS", "render_score"]
+import importlib
 
-FORMATS = ("text", "json", "markdown", "html")
+from foldcorr.report.formats import DOCUMENTS, FORMATS, WRITERS
+
+__all__ = ["FORMATS", "WRITERS", "DOCUMENTS", "document", "render", "render_score"]
+
+def _load(spec: str):
+    module, name = spec.split(":")
+    return getattr(importlib.import_module(module), name)
 
 
-def render_score(ev, fmt: str, *, top: int | None = 20) -> str:
-    """Render an evaluation in one of :data:`FORMATS` as plain text (no colour).
+def document(result, *, top: int | None = 20, **context):
+    """The :class:`~foldcorr.report.documents.Document` of a result.
+
+    ``top`` limits the rows shown in text, Markdown and HTML (None: all); the
+    JSON document always carries every row. ``context`` passes what a result
+    kind needs besides (e.g. the model ``names`` of a comparison, ``source``).
 
     Examples
     --------
     >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
-    >>> render_score(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])), "json")[:32]
+    >>> document(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))).report.title
+    'foldcorr score'
+    """
+    kind = type(result).__name__
+    if kind not in DOCUMENTS:
+        from foldcorr.errors import OptionError
+
+        raise OptionError(f"cannot render a {kind!r}; expected one of {sorted(DOCUMENTS)!r}")
+    return _load(DOCUMENTS[kind])(result, top=top, **context)
+
+
+def render(result, fmt: str = "text", *, top: int | None = 20, **context) -> str:
+    """Render any result in one of :data:`FORMATS` as plain text (no colour).
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> from foldcorr.evaluation import evaluate
+    >>> render(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])), "json")[:32]
     '{\\n  "schema": "foldcorr.score/1"'
     """
-    from foldcorr.errors import check_choice
+    from foldcorr.report.documents import write
 
-    check_choice("format", fmt, FORMATS)
-    if fmt == "json":
-        from foldcorr.report.json import dumps, score_dict
+    return write(document(result, top=top, **context), fmt)
 
-        return dumps(score_dict(ev))
-    from foldcorr.report.tables import score_report
 
-    report = score_report(ev, top=top)
-    if fmt == "markdown":
-        from foldcorr.report.markdown import render_markdown
+def render_score(ev, fmt: str, *, top: int | None = 20) -> str:
+    """Render an evaluation (the output of ``foldcorr score``); :func:`render` of ``ev``.
 
-        return render_markdown(report)
-    if fmt == "html":
-        from foldcorr.report.html import render_html, svg_figures
-
-        figures, note = svg_figures(ev)
-        return render_html(report, figures=figures, plots_note=note)
-    from foldcorr.report.text import render_text
-
-    return render_text(report)
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> from foldcorr.evaluation import evaluate
+    >>> render_score(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])), "markdown")[:17]
+    '## foldcorr score'
+    """
+    return render(ev, fmt, top=top)

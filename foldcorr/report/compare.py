@@ -12,7 +12,7 @@ from foldcorr.report.json import plain
 from foldcorr.report.tables import Column, Report, Table, format_value
 from foldcorr.report.uncertainty import percent
 
-__all__ = ["COMPARE_SCHEMA", "verdict", "compare_report", "compare_dict", "render_compare"]
+__all__ = ["COMPARE_SCHEMA", "verdict", "compare_report", "compare_dict", "compare_document"]
 
 COMPARE_SCHEMA = "foldcorr.compare/1"
 
@@ -173,24 +173,24 @@ def compare_dict(c, *, labels=("A", "B"), names=None, source: str | None = None)
     return plain(doc)
 
 
-def render_compare(c, fmt: str, *, labels=("A", "B"), names=None, top: int | None = 20,
-                   source: str | None = None) -> str:
-    """A comparison as text (no colour), JSON, Markdown or one self-contained HTML page.
+def compare_document(c, *, labels=("A", "B"), names=None, top: int | None = 20,
+                     source: str | None = None):
+    """The :class:`~foldcorr.report.documents.Document` of a comparison.
 
     Examples
     --------
     >>> import numpy as np
     >>> from foldcorr.analysis.compare import compare_models
+    >>> from foldcorr.report import render
     >>> from foldcorr.tensor import joint_tally
     >>> y = np.array([0, 1, 2] * 60)
     >>> c = compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=200, seed=0)
-    >>> render_compare(c, "markdown").splitlines()[0]
+    >>> render(c, "markdown").splitlines()[0]
     '## foldcorr compare'
-    >>> render_compare(c, "html").startswith("<!DOCTYPE html>")
+    >>> render(c, "html").startswith("<!DOCTYPE html>")
     True
     """
-    from foldcorr.report.documents import render_report
+    from foldcorr.report.documents import Document
 
     report = compare_report(c, labels=labels, names=names, top=top, source=source)
-    return render_report(report, lambda: compare_dict(c, labels=labels, names=names,
-                                                      source=source), fmt)
+    return Document(report, lambda: compare_dict(c, labels=labels, names=names, source=source))

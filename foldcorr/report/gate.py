@@ -19,7 +19,7 @@ from foldcorr.gate import GateResult
 from foldcorr.report.json import dumps, plain
 from foldcorr.report.tables import Column, Report, Table, format_value
 
-__all__ = ["GATE_SCHEMA", "gate_report", "gate_dict", "junit_xml", "render_gate"]
+__all__ = ["GATE_SCHEMA", "gate_report", "gate_dict", "junit_xml", "gate_document"]
 
 GATE_SCHEMA = "foldcorr.gate/1"
 
@@ -30,6 +30,10 @@ def _verdict(passed: bool) -> str:
 
 def _source(ev) -> str:
     return str(ev.tensor.attrs.get("source", "(in memory)"))
+
+
+def _nouns(ev) -> str:
+    return "labels" if ev.row_scope == "label" else "classes"
 
 
 def gate_report(result: GateResult) -> Report:
@@ -50,7 +54,7 @@ def gate_report(result: GateResult) -> Report:
     verdict = (f"PASS (all {len(result.rules)} rules hold)" if result.passed
                else f"FAIL ({failed} of {len(result.rules)} rules failed)")
     facts = [("result", verdict), ("source", _source(ev)),
-             ("samples", format_value(ev.n, "count")), ("classes", str(len(ev.classes)))]
+             ("samples", format_value(ev.n, "count")), (_nouns(ev), str(len(ev.row_names)))]
     if result.baseline is not None:
         facts.append(("baseline", _source(result.baseline)))
         facts.append(("comparison", result.comparison))
@@ -62,8 +66,8 @@ def gate_report(result: GateResult) -> Report:
     if result.failing_classes:
         rows = tuple((c.label, c.mcc, c.floor, c.support, c.rule.replace("_", "-"))
                      for c in result.failing_classes)
-        tables.append(Table(f"Classes below their floors ({len(rows)})",
-                            (Column("class", "label"), Column("MCC", "correlation"),
+        tables.append(Table(f"{_nouns(ev).capitalize()} below their floors ({len(rows)})",
+                            (Column(ev.row_scope, "label"), Column("MCC", "correlation"),
                              Column("floor"), Column("support", "count"),
                              Column("rule", "text")), rows))
     return Report("foldcorr gate", tuple(facts), tuple(tables), result.warnings)
@@ -142,27 +146,19 @@ def junit_xml(result: GateResult) -> str:
     return '<?xml version="1.0" encoding="UTF-8"?>\n' + ET.tostring(root, encoding="unicode") + "\n"
 
 
-def render_gate(result: GateResult, fmt: str) -> str:
-    """The gate result as ``text``, ``markdown`` or ``json`` text.
+def gate_document(result: GateResult, *, top: int | None = None):
+    """The :class:`~foldcorr.report.documents.Document` of a gate result (every row shown).
 
     Examples
     --------
     >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> from foldcorr.gate import GateRules, check_gate
+    >>> from foldcorr.report import render
     >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
-    >>> print(render_gate(check_gate(ev, GateRules(min_rk=0.4)), "markdown").splitlines()[2])
+    >>> print(render(check_gate(ev, GateRules(min_rk=0.4)), "markdown").splitlines()[2])
     - **result**: PASS (all 1 rules hold)
     """
-    from foldcorr.errors import check_choice
+    from foldcorr.report.documents import Document
 
-    check_choice("format", fmt, ("text", "markdown", "json"))
-    if fmt == "json":
-        return dumps(gate_dict(result))
-    if fmt == "markdown":
-        from foldcorr.report.markdown import render_markdown
-
-        return render_markdown(gate_report(result))
-    from foldcorr.report.text import render_text
-
-    return render_text(gate_report(result))
+    return Document(gate_report(result), lambda: gate_dict(result))

@@ -10,16 +10,11 @@ Nothing here computes: every figure comes from a
 
 from __future__ import annotations
 
-import warnings
-from dataclasses import replace
-
 import numpy as np
 
-from foldcorr.errors import UndefinedMetricWarning
 from foldcorr.report.tables import Column, Table
 
-__all__ = ["KEY", "class_columns", "tables", "json", "confusion_table", "render_rich",
-           "every_confusion"]
+__all__ = ["KEY", "class_columns", "tables", "json", "confusion_table", "render_rich"]
 
 #: Key of the section in ``Evaluation.extras``.
 KEY = "repair"
@@ -116,32 +111,6 @@ def tables(ev, top) -> list:
     return [confusion_table(ev.extras[KEY], top)]
 
 
-def every_confusion(ra, tensor):
-    """The repair analysis with every confusion it ranks, not only the first ``ra.top``.
-
-    JSON carries every confusion whatever ``--top`` says (``--top`` limits the
-    rows of text, Markdown and HTML); when the analysis kept fewer, the ranking
-    is asked for again in full.
-
-    Examples
-    --------
-    >>> from foldcorr.tensor import confusion_tensor
-    >>> from foldcorr.analysis.repair import repair_analysis
-    >>> t = confusion_tensor([[5, 1, 1], [2, 6, 0], [0, 3, 4]], ["a", "b", "c"])
-    >>> len(every_confusion(repair_analysis(t, top=1), t).confusion_rows())
-    4
-    """
-    if ra.top is None:
-        return ra
-    from foldcorr.analysis.repair import costliest_confusions
-    from foldcorr.tensor import pool
-
-    with warnings.catch_warnings():  # the analysis has named its undefined values already
-        warnings.simplefilter("ignore", UndefinedMetricWarning)
-        full = costliest_confusions(pool(tensor), top=None, undefined=ra.undefined)
-    return replace(ra, confusions=full, top=None)
-
-
 def json(ev, doc: dict) -> None:
     """Add ``confusions`` and the per-class repair keys to a score document.
 
@@ -158,7 +127,7 @@ def json(ev, doc: dict) -> None:
     >>> sorted(k for k in doc["per_class"][0] if k.startswith("gain"))
     ['gain_fix_both', 'gain_fix_fn', 'gain_fix_fp']
     """
-    ra = every_confusion(ev.extras[KEY], ev.tensor)
+    ra = ev.extras[KEY]
     doc["confusions"] = [
         {"actual": a, "predicted": p, "count": n, "gain": _number(g)}
         for a, p, n, g in ra.confusion_rows()

@@ -168,17 +168,17 @@ def write_curve(result: SweepResult, path) -> None:
             frame.to_parquet(tmp, index=False)
 
 
-def render_sweep(result: SweepResult, fmt: str, *, top: int | None = 20,
-                 source: str | None = None) -> str:
-    """Render a sweep as plain text, Markdown or JSON.
+def sweep_document(result: SweepResult, *, top: int | None = 20, source: str | None = None):
+    """The :class:`~foldcorr.report.documents.Document` of a threshold sweep.
 
     Examples
     --------
     >>> from foldcorr.analysis.thresholds import sweep
-    >>> render_sweep(sweep([0, 1, 1, 0], [0.1, 0.8, 0.6, 0.3]), "markdown").splitlines()[0]
+    >>> from foldcorr.report import render
+    >>> render(sweep([0, 1, 1, 0], [0.1, 0.8, 0.6, 0.3]), "markdown").splitlines()[0]
     '## foldcorr sweep'
     """
-    from foldcorr.report.documents import render_report
+    from foldcorr.report.documents import Document
 
-    return render_report(sweep_report(result, top=top, source=source),
-                         lambda: sweep_dict(result, source=source), fmt)
+    return Document(sweep_report(result, top=top, source=source),
+                    lambda: sweep_dict(result, source=source))

@@ -1,0 +1,30 @@
+"""The Document of an evaluation: what ``foldcorr score`` and ``foldcorr show`` write."""
+
+from __future__ import annotations
+
+from foldcorr.evaluation import Evaluation
+from foldcorr.report.documents import Document
+from foldcorr.report.json import score_dict
+from foldcorr.report.tables import score_report
+
+__all__ = ["score_document"]
+
+
+def score_document(ev: Evaluation, *, top: int | None = 20, source: str | None = None) -> Document:
+    """The tables (cut to ``top`` rows), the complete JSON and the plots of an evaluation.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> from foldcorr.evaluation import evaluate
+    >>> doc = score_document(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])), top=1)
+    >>> len(doc.report.tables[-1].rows), len(doc.make_json()["per_class"])
+    (1, 2)
+    """
+
+    def figures():
+        from foldcorr.report.html import svg_figures
+
+        return svg_figures(ev)
+
+    return Document(score_report(ev, top=top, source=source), lambda: score_dict(ev), figures)
