@@ -10,7 +10,7 @@ from pathlib import Path
 
 from foldcorr.errors import InvalidInputError
 
-__all__ = ["atomic_target", "write_text"]
+__all__ = ["atomic_target", "write_text", "same_path"]
 
 
 @contextlib.contextmanager
@@ -83,3 +83,20 @@ def write_text(path, text: str) -> None:
     with atomic_target(path) as tmp:
         with open(tmp, "w", encoding="utf-8") as fh:
             fh.write(text)
+
+
+def same_path(a, b) -> bool:
+    """Whether two paths name the same file (the same inode when both exist).
+
+    Examples
+    --------
+    >>> same_path("runs/../p.csv", "p.csv"), same_path("a.csv", "b.csv")
+    (True, False)
+    """
+    a, b = Path(a), Path(b)
+    try:
+        if a.exists() and b.exists():
+            return a.samefile(b)
+        return a.resolve() == b.resolve()
+    except OSError:
+        return False

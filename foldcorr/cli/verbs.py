@@ -11,6 +11,7 @@ from __future__ import annotations
 import os
 import sys
 
+from foldcorr._files import same_path
 from foldcorr.cli.args import OPTION_OF_DEST, flag_names
 
 __all__ = ["VERBS", "EXIT_OK", "EXIT_FAILED", "EXIT_USAGE", "check_targets", "given_options",
@@ -205,12 +206,12 @@ def check_targets(args) -> None:
                                                         and not os.access(target, os.W_OK)):
             raise InvalidInputError(f"cannot write {path!r}: permission denied")
         for other, other_path in inputs:
-            if _same_path(target, Path(other_path)):
+            if same_path(target, Path(other_path)):
                 raise OptionError(f"`--{name}` {path!r} is the input file {other_path!r} "
                                   f"({_flag(other)}); writing there would replace it, choose "
                                   "another path")
         for other, other_path in seen.items():
-            if _same_path(target, Path(other_path)):
+            if same_path(target, Path(other_path)):
                 raise OptionError(f"`--{name}` {path!r} is also given to `--{other}`; give "
                                   "each output its own path")
         seen[name] = path
@@ -218,15 +219,6 @@ def check_targets(args) -> None:
 
 def _flag(name: str) -> str:
     return {"path": "PATH", "path_b": "PATH_B"}.get(name, "--" + name.replace("_", "-"))
-
-
-def _same_path(a, b) -> bool:
-    try:
-        if a.exists() and b.exists():
-            return a.samefile(b)
-        return a.resolve() == b.resolve()
-    except OSError:
-        return False
 
 
 def run_sweep(args) -> int:

@@ -35,6 +35,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
+from foldcorr._files import same_path
 from foldcorr._files import atomic_target
 from foldcorr._version import __version__
 from foldcorr.errors import InvalidInputError, OptionError
@@ -141,7 +142,7 @@ def check_save_target(target, source=None, *, name: str = "--save") -> Path:
     if not is_saved_path(path):
         raise OptionError(f"`{name}` writes a NetCDF-4 file; expected a path ending in "
                           f"{' or '.join(SAVED_SUFFIXES)}, got {str(target)!r}")
-    if source is not None and _same_file(path, Path(source)):
+    if source is not None and same_path(path, Path(source)):
         raise OptionError(f"`{name}` {str(target)!r} is the input file {str(source)!r}; "
                           "saving there would replace it, choose another path")
     return path
@@ -199,15 +200,6 @@ def check_saved_options(path, spec=None, *, matrix: bool = False, where=None,
             raise OptionError(f"{Path(path).name} is a saved evaluation: its counts are already "
                               f"tallied, so `{name}` ({flag}) cannot apply; {value!r} was given. "
                               "Only `classes` (--classes) applies to a saved file")
-
-
-def _same_file(a: Path, b: Path) -> bool:
-    try:
-        if a.exists() and b.exists():
-            return a.samefile(b)
-        return a.resolve() == b.resolve()
-    except OSError:
-        return False
 
 
 def file_sha256(path) -> str:
