@@ -39,6 +39,7 @@ _EXPORTS = {
     "foldcorr.tensor.samples": ["Samples"],
     "foldcorr.gate": ["GateRules", "GateResult", "check_gate"],
     "foldcorr.sources.saved": ["SavedEvaluation", "save_evaluation", "load_saved"],
+    "foldcorr.report": ["render"],
     "foldcorr.report.plots": [
         "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
     ],

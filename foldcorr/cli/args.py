@@ -126,7 +126,10 @@ def _add_source_options(p: argparse.ArgumentParser) -> None:
 
 
 def _add_analysis_options(p: argparse.ArgumentParser) -> None:
-    """Options of the analyses in :data:`ANALYSES`, shared by ``score`` and ``demo``."""
+    """Options of the score pipeline's analyses (see :class:`foldcorr.pipeline.ScoreOptions`).
+
+    Shared by ``score`` and ``demo``.
+    """
     p.add_argument("--plot", metavar="DIR",
                    help="also draw the loss budget, confusion heatmap and fold plot "
                         "into DIR as PNG and SVG (needs the 'plot' extra)")
