@@ -7,7 +7,7 @@ until a function that needs them is used.
 
 from __future__ import annotations
 
-import importlib
+from foldcorr._lazy import lazy_exports
 
 from foldcorr._version import __version__
 
@@ -53,19 +53,6 @@ _EXPORTS = {
         "MissingDependencyError", "EngineError", "UndefinedMetricWarning",
     ],
 }
-_WHERE = {name: module for module, names in _EXPORTS.items() for name in names}
+_WHERE, __getattr__, __dir__ = lazy_exports("foldcorr", _EXPORTS, globals())
 
 __all__ = ["__version__", *_WHERE]
-
-
-def __getattr__(name: str):
-    module = _WHERE.get(name)
-    if module is None:
-        raise AttributeError(f"module 'foldcorr' has no attribute {name!r}")
-    value = getattr(importlib.import_module(module), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return sorted(__all__)

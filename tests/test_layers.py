@@ -20,7 +20,7 @@ PACKAGE = pathlib.Path(foldcorr.__file__).parent
 ORDER = ["errors", "tensor", "metrics", "analysis", "evaluation", "gate", "sources", "pipeline",
          "report", "cli"]
 #: Top-level modules that are not a layer of their own name.
-LAYER_OF_MODULE = {"_files": "errors", "_version": "errors", "testing": "tensor",
+LAYER_OF_MODULE = {"_files": "errors", "_version": "errors", "_lazy": "errors", "testing": "tensor",
                    "figures": "metrics", "__main__": "cli", "__init__": "cli"}
 #: Methods of result objects that may import their renderer at call time.
 DISPLAY_HOOKS = {"__rich__", "_repr_html_"}

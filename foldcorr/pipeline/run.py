@@ -56,31 +56,29 @@ def _repair(ev, options):
                                                    undefined=options.undefined))
 
 
+#: Per tensor kind: the interval analysis, as (extras key, module, function).
+_INTERVALS = {
+    "multiclass": ("uncertainty", "foldcorr.analysis.uncertainty", "summarise_uncertainty"),
+    "multilabel": ("intervals", "foldcorr.analysis.multilabel", "multilabel_intervals"),
+}
+
+
 def _intervals(ev, options):
     settings = options.interval_settings()
     if settings is None:
         return ev
-    from foldcorr.analysis.uncertainty import summarise_uncertainty
+    import importlib
 
-    return ev.with_extra("uncertainty", summarise_uncertainty(ev.tensor, **settings,
-                                                              undefined=ev.undefined))
-
-
-def _label_intervals(ev, options):
-    settings = options.interval_settings()
-    if settings is None:
-        return ev
-    from foldcorr.analysis.multilabel import multilabel_intervals
-
-    return ev.with_extra("intervals", multilabel_intervals(ev.tensor, **settings,
-                                                           undefined=ev.undefined))
+    key, module, name = _INTERVALS[ev.kind]
+    compute = getattr(importlib.import_module(module), name)
+    return ev.with_extra(key, compute(ev.tensor, **settings, undefined=ev.undefined))
 
 
 #: Per tensor kind: its analyses, in the order they run (one evaluation serves every kind).
 KINDS = {
     "multiclass": (("skipped_files", _skipped_files), ("shift", _shift), ("repair", _repair),
                    ("intervals", _intervals)),
-    "multilabel": (("intervals", _label_intervals),),
+    "multilabel": (("intervals", _intervals),),
 }
 
 

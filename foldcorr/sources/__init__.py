@@ -7,7 +7,7 @@ pyarrow, dask nor rich. Nothing here computes a metric.
 
 from __future__ import annotations
 
-import importlib
+from foldcorr._lazy import lazy_exports
 
 _EXPORTS = {
     "foldcorr.sources.dispatch": ["load", "load_tensor", "tally_dataset"],
@@ -16,19 +16,6 @@ _EXPORTS = {
     "foldcorr.sources.where": ["Where", "parse_where"],
     "foldcorr.sources.stream": ["StreamResult", "stream_tensor"],
 }
-_WHERE = {name: module for module, names in _EXPORTS.items() for name in names}
+_WHERE, __getattr__, __dir__ = lazy_exports("foldcorr.sources", _EXPORTS, globals())
 
 __all__ = list(_WHERE)
-
-
-def __getattr__(name: str):
-    module = _WHERE.get(name)
-    if module is None:
-        raise AttributeError(f"module 'foldcorr.sources' has no attribute {name!r}")
-    value = getattr(importlib.import_module(module), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return sorted(__all__)
