@@ -31,6 +31,11 @@ def main(argv=None) -> int:
     from foldcorr.cli.verbs import EXIT_OK, EXIT_USAGE, VERBS, check_targets
     from foldcorr.errors import FoldcorrError
 
+    if getattr(args, "engine", None) != "dask":
+        from foldcorr.cli.startup import defer_dask_lookup
+
+        defer_dask_lookup()  # a run that uses no Dask does not import it
+
     try:
         check_targets(args)
         return VERBS[args.verb](args)
