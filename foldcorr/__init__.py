@@ -33,6 +33,7 @@ _EXPORTS = {
     ],
     "foldcorr.analysis.folds": ["fold_statistics", "FoldStatistics"],
     "foldcorr.analysis.compare": ["compare_models", "Comparison"],
+    "foldcorr.analysis.many": ["compare_many", "ManyComparison", "holm"],
     "foldcorr.tensor.cells": ["cluster_tally", "ClusterCells"],
     "foldcorr.analysis.crossval": ["cross_tally", "rk_score", "rk_scorer"],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
