@@ -31,6 +31,7 @@ from foldcorr.tensor import ACTUAL, FOLD, JOINT_DIMS, PREDICTED, ClusterCells, v
 from foldcorr.analysis.clustered import (
     ClusterStrata, check_cells, cluster_notes, dense_cells, same_samples, scatter,
 )
+from foldcorr.analysis.support import blank_thin_classes, thin_classes, thin_note
 from foldcorr.analysis.resampling import (
     RESAMPLE, check_level, check_resamples, interval, resample_blocks, whole_counts,
 )
@@ -327,9 +328,12 @@ def compare_cells(cells: ClusterCells, *, clustered: bool, n_resamples: int = 20
     ci = (float(low), float(high))
     est_c = (mcc_b - mcc_a).rename("difference")
     low_c, high_c, _ = interval(d_mcc, est_c, level, "percentile")
+    thin = thin_classes(pa) & thin_classes(pb)
+    notes.extend(thin_note(list(cells.classes), thin, "per-class intervals"))
     per_class = xr.Dataset({
         "mcc_a": mcc_a, "mcc_b": mcc_b, "difference": est_c,
-        "low": est_c.copy(data=low_c), "high": est_c.copy(data=high_c),
+        "low": blank_thin_classes(est_c.copy(data=low_c), thin),
+        "high": blank_thin_classes(est_c.copy(data=high_c), thin),
     })
     folds = None
     if fold_a is not None:

@@ -22,6 +22,7 @@ import xarray as xr
 
 from foldcorr.analysis.compare import PairStrata, compare_cells, paired_draws
 from foldcorr.analysis.resampling import check_level, check_resamples, interval
+from foldcorr.analysis.support import thin_classes
 from foldcorr.analysis.uncertainty import bootstrap
 from foldcorr.errors import InvalidInputError, check_choice
 from foldcorr.metrics import ovr_mcc, rk
@@ -178,7 +179,9 @@ def compare_many(truth, predictions: Mapping, *, folds=None, cluster=None,
 
     A class's winner is the model with the highest one-vs-rest MCC; the data
     *tell* it when the paired interval of its margin over the runner-up
-    excludes 0 (per class, not adjusted over classes).
+    excludes 0 (per class, not adjusted over classes). Classes too thin for
+    an interval (:func:`foldcorr.analysis.support.thin_classes`) get none
+    and are never told.
 
     References
     ----------
@@ -293,6 +296,9 @@ def _class_winners(truth, predictions, singles, tally_of, options, undefined) ->
                              partial(rk, undefined=undefined), stat_mcc)[1]
         est = xr.DataArray(values[w] - values[r], dims=CLASS)
         lo, hi, _ = interval(draws, est, options["level"], "percentile")
+        t_r, t_w = (p.sum(FOLD) if FOLD in p.dims else p for p in pair.observed())
+        thin = thin_classes(t_r) & thin_classes(t_w)
+        lo, hi = np.where(thin, np.nan, lo), np.where(thin, np.nan, hi)
         mine = (winner == w) & (runner == r)
         low[mine], high[mine] = lo[mine], hi[mine]
     margin = values[winner, np.arange(k)] - values[runner, np.arange(k)]
@@ -300,5 +306,5 @@ def _class_winners(truth, predictions, singles, tally_of, options, undefined) ->
         "mcc": mcc, "winner": (CLASS, np.asarray(names, dtype=object)[winner]),
         "runner_up": (CLASS, np.asarray(names, dtype=object)[runner]),
         "margin": (CLASS, margin), "low": (CLASS, low), "high": (CLASS, high),
-        "told": (CLASS, (low > 0) | (high < 0)),
+        "told": (CLASS, (low > 0) | (high < 0)),  # NaN (withheld) never tells
     }, coords={CLASS: mcc.coords[CLASS].values})

@@ -23,13 +23,14 @@ from foldcorr.analysis.clustered import (
     CLUSTER_RK, cluster_notes, cluster_strata, design_effect,
 )
 from foldcorr.analysis.folds import FoldStatistics, fold_statistics
+from foldcorr.analysis.support import blank_thin_classes, thin_classes, thin_note
 from foldcorr.analysis.resampling import (
     METHODS, RESAMPLE, Strata, apply_statistic, check_level, check_resamples, draw_notes,
     interval, jackknife_moments, pool_folds, statistic_draws, statistic_label, whole_counts,
 )
 from foldcorr.errors import InvalidTensorError, UndefinedMetricWarning, check_choice
 from foldcorr.metrics import decompose, ovr_mcc, rk
-from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, validate_tensor
+from foldcorr.tensor import ACTUAL, CLASS, FOLD, PREDICTED, validate_tensor
 
 __all__ = [
     "BootstrapResult",
@@ -146,11 +147,14 @@ def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_dra
         if mom is not None:
             mom = tuple(m.transpose(*est.dims).values for m in mom)
         low, high, undefined = interval(draws[name], est, level, method, mom)
+        thin = thin_classes(t) if CLASS in est.dims else np.zeros(0, bool)
         results[name] = BootstrapResult(
-            estimate=est, low=_like(est, low, "low"), high=_like(est, high, "high"),
+            estimate=est, low=blank_thin_classes(_like(est, low, "low"), thin),
+            high=blank_thin_classes(_like(est, high, "high"), thin),
             level=level, method=method, n_resamples=n,
             draws=draws[name].transpose(RESAMPLE, *est.dims) if keep_draws else None,
-            pooled=pooled, warnings=draw_notes(label, caught, undefined, est, n) + notes,
+            pooled=pooled, warnings=draw_notes(label, caught, undefined, est, n)
+            + thin_note(t.coords[ACTUAL].values.tolist(), thin, "per-class intervals") + notes,
             **clusters,
         )
     for note in {w for r in results.values() for w in r.warnings} - set(notes):
@@ -212,7 +216,10 @@ def bootstrap(t, statistic=rk, *, n_resamples: int = 2000, level: float = 0.95,
     -----
     UndefinedMetricWarning
         When the statistic is undefined in some resamples (also kept in
-        ``warnings``).
+        ``warnings``), and once naming the classes whose per-class interval
+        (a statistic with a ``class`` dim) is withheld as NaN because they
+        have fewer than :data:`foldcorr.analysis.support.MIN_CLASS_SUPPORT`
+        samples in the truth.
 
     Notes
     -----
@@ -450,7 +457,8 @@ def summarise_uncertainty(t, *, level: float = 0.95, n_resamples: int = 2000,
     Examples
     --------
     >>> from foldcorr.tensor import tally
-    >>> t = tally(list("aabbccaabbcc"), list("aabbcaabbbcc"), folds=[1] * 6 + [2] * 6)
+    >>> t = tally(list("aabbccaabbcc") * 3, list("aabbcaabbbcc") * 3,
+    ...           folds=([1] * 6 + [2] * 6) * 3)
     >>> u = summarise_uncertainty(t, n_resamples=200, seed=0)
     >>> u.rk.low.dims, u.mcc.low.dims, u.fold_rk.low.dims
     ((), ('class',), ('fold',))
@@ -475,6 +483,8 @@ def summarise_uncertainty(t, *, level: float = 0.95, n_resamples: int = 2000,
     notes = [w for r in res.values() for w in r.warnings]
     if folds is not None:
         notes.extend(folds.warnings)
+    for note in set(res["mcc"].warnings) & set(res["drag"].warnings):
+        warnings.warn(note, UndefinedMetricWarning, stacklevel=2)  # withheld class intervals
     return Uncertainty(
         level=float(level), method=method, n_resamples=int(n_resamples),
         seed=seed if isinstance(seed, (int, np.integer)) else None,
