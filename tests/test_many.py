@@ -67,15 +67,22 @@ def test_holm_equals_statsmodels():
         # reference: statsmodels.stats.multitest.multipletests(method="holm")
         expected = multipletests(p, method="holm")[1]
         assert np.allclose(fc.holm(p), expected, atol=1e-15)
+        # a larger family: the untested hypotheses enter as p = 1
+        padded = np.concatenate([p, np.ones(2 * m)])
+        assert np.allclose(fc.holm(p, family=3 * m),
+                           multipletests(padded, method="holm")[1][:m], atol=1e-15)
 
 
 def test_the_adjusted_p_values_in_the_result_are_holm_of_the_raw_ones(digits_models):
     y, preds, folds = digits_models
     res = fc.compare_many(y, preds, folds=folds, n_resamples=100, n_permutations=200, seed=1)
     raw = res.ranking["p_value"].values[1:]
-    # reference: statsmodels.stats.multitest.multipletests(method="holm")
-    assert np.allclose(res.ranking["p_adjusted"].values[1:], multipletests(raw, method="holm")[1])
-    assert res.adjustment == "holm"
+    # reference: statsmodels.stats.multitest.multipletests(method="holm") over all 6 pairs of
+    # the 4 models, the 3 pairs not compared with the best entering as p = 1
+    family = np.concatenate([raw, np.ones(3)])
+    assert np.allclose(res.ranking["p_adjusted"].values[1:],
+                       multipletests(family, method="holm")[1][:3])
+    assert res.adjustment.startswith("holm")
 
 
 def test_two_models_give_the_numbers_of_compare_models():
@@ -115,3 +122,13 @@ def test_refusals():
         fc.compare_many([0, 1], {"a": [0, 1]})
     with pytest.raises(InvalidInputError, match="model 'b' have 1 values"):
         fc.compare_many([0, 1], {"a": [0, 1], "b": [0]})
+
+
+def test_too_few_permutations_to_separate_anything_is_said():
+    rng = np.random.default_rng(2)
+    truth = rng.integers(0, 3, 200)
+    preds = {f"m{i}": np.where(rng.random(200) < 0.3 + 0.15 * i, truth, (truth + 1) % 3)
+             for i in range(5)}
+    res = fc.compare_many(truth, preds, n_resamples=100, n_permutations=150, seed=0)
+    assert any("no model can be separated" in w for w in res.warnings)
+    assert not res.ranking["separated"].any()

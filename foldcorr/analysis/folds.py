@@ -62,7 +62,7 @@ class FoldStatistics:
         The same with the uncorrected variance :math:`s^2 / J` (fold values
         taken as independent).
     naive_se : float
-        :math:`s / \sqrt J`.
+        :math:`s / \\sqrt J`.
     target : str
         What both intervals estimate, in words (:data:`FOLD_TARGET`).
     warnings : tuple of str
