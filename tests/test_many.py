@@ -11,7 +11,6 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from sklearn.datasets import load_digits
-from sklearn.linear_model import LogisticRegression
 from sklearn.metrics import matthews_corrcoef
 from sklearn.model_selection import StratifiedKFold, cross_val_predict
 from sklearn.naive_bayes import GaussianNB
@@ -32,7 +31,7 @@ def digits_models():
         folds[test] = f
     models = {
         "knn": KNeighborsClassifier(3),
-        "logistic": LogisticRegression(max_iter=300),
+        "knn15": KNeighborsClassifier(15),
         "bayes": GaussianNB(),
         "tree": DecisionTreeClassifier(random_state=0),
     }
@@ -42,7 +41,7 @@ def digits_models():
 
 def test_rk_of_every_model_equals_sklearn_on_digits(digits_models):
     y, preds, folds = digits_models
-    res = fc.compare_many(y, preds, folds=folds, n_resamples=200, seed=0)
+    res = fc.compare_many(y, preds, folds=folds, n_resamples=100, n_permutations=300, seed=0)
     for name, p in preds.items():
         # reference: sklearn.metrics.matthews_corrcoef (multiclass = R_K)
         assert float(res.ranking["rk"].sel(model=name)) == pytest.approx(
@@ -51,7 +50,7 @@ def test_rk_of_every_model_equals_sklearn_on_digits(digits_models):
             assert float(res.per_fold.sel(model=name, fold=f)) == pytest.approx(
                 matthews_corrcoef(y[folds == f], p[folds == f]), abs=1e-12)
     assert res.ranking["rk"].values.tolist() == sorted(res.ranking["rk"].values, reverse=True)
-    assert res.best == "knn" and res.ranking["model"].values[-1] in ("tree", "bayes")
+    assert res.best in ("knn", "knn15") and res.ranking["model"].values[-1] in ("tree", "bayes")
     assert bool(res.ranking["separated"].sel(model="tree"))
     assert (res.ranking["low"] < res.ranking["rk"]).all()
     assert res.per_class["mcc"].dims == ("model", "class")
