@@ -19,7 +19,8 @@ from scipy import stats
 from sklearn.metrics import confusion_matrix, matthews_corrcoef
 
 import foldcorr as fc
-from foldcorr.analysis.compare import _permutation_draws
+from foldcorr.analysis.compare import PairStrata, permutation_draws
+from foldcorr.analysis.clustered import dense_cells
 from foldcorr.tensor import model_tensors, validate_joint
 from foldcorr.errors import InvalidInputError, InvalidTensorError, OptionError
 from foldcorr.tensor import tally
@@ -139,7 +140,8 @@ def test_permutation_distribution_matches_exact_enumeration():
     p_exact = np.mean(np.abs(exact) >= abs(observed) - 1e-12)
     j = fc.joint_tally(truth, a, b)
     t_a, t_b = model_tensors(j)
-    draws = _permutation_draws(j, np.random.default_rng(6), 20_000, fc.rk, t_a, t_b)
+    pair = PairStrata.of(dense_cells(j), clustered=False)
+    draws = permutation_draws(pair, np.random.default_rng(6), 20_000, fc.rk)
     p_mc = np.mean(np.abs(draws) >= abs(observed) - 1e-12)
     assert abs(p_mc - p_exact) < 5 * math.sqrt(p_exact * (1 - p_exact) / 20_000)
     # and the distribution itself: mean and spread of the difference

@@ -27,18 +27,17 @@ import xarray as xr
 
 from foldcorr.errors import UndefinedMetricWarning, check_choice
 from foldcorr.metrics import ovr_mcc, rk
-from foldcorr.tensor import ACTUAL, FOLD, JOINT_DIMS, PREDICTED, model_tensors, validate_joint
+from foldcorr.tensor import ACTUAL, FOLD, JOINT_DIMS, PREDICTED, ClusterCells, validate_joint
+from foldcorr.analysis.clustered import (
+    ClusterStrata, check_cells, cluster_notes, dense_cells, same_samples, scatter,
+)
+from foldcorr.analysis.support import blank_thin_classes, thin_classes, thin_note
 from foldcorr.analysis.resampling import (
-    RESAMPLE,
-    Strata,
-    check_level,
-    check_resamples,
-    interval,
-    resample_blocks,
-    whole_counts,
+    RESAMPLE, check_level, check_resamples, interval, resample_blocks, whole_counts,
 )
 
-__all__ = ["Comparison", "compare_models"]
+__all__ = ["Comparison", "compare_models", "compare_cells", "PairStrata", "paired_draws",
+           "permutation_draws"]
 
 
 @dataclass(frozen=True)
@@ -75,6 +74,11 @@ class Comparison:
         Bootstrap draws of the pooled difference, when kept.
     warnings : tuple of str
         Undefined values, in plain language.
+    n_clusters : int or None
+        Clusters resampled whole, or None without ``cluster``.
+    design_effect : float or None
+        With clusters: variance of the cluster bootstrap of the pooled
+        difference over that of the sample-by-sample one.
     """
 
     n: int
@@ -92,6 +96,8 @@ class Comparison:
     folds: xr.Dataset | None
     draws: xr.DataArray | None = None
     warnings: tuple[str, ...] = field(default_factory=tuple)
+    n_clusters: int | None = None
+    design_effect: float | None = None
 
     @property
     def decided(self) -> bool:
@@ -113,36 +119,69 @@ class Comparison:
         return render_rich(compare_report(self))
 
 
-class _Cells:
-    """The nonzero joint cells of each fold, decoded to (actual, a, b) codes."""
+class PairStrata:
+    """Resamples of a joint tensor's sparse cells, read as the two models' tensors.
 
-    def __init__(self, j: xr.DataArray):
-        self.k = j.sizes[ACTUAL]
-        self.strata = Strata.of(j, JOINT_DIMS)
-        index = np.where(self.strata.index >= self.k**3, 0, self.strata.index)
-        self.actual = index // (self.k * self.k)
-        self.a = (index // self.k) % self.k
-        self.b = index % self.k
+    ``strata`` is a :class:`foldcorr.analysis.clustered.ClusterStrata` over
+    ``(actual, predicted_a, predicted_b)`` cells; every row is decoded once to
+    its fold, actual class and the two predictions, so each model's tensor of a
+    block of resamples is one ``numpy.bincount`` (:func:`scatter`), and a
+    sign-flip permutation moves rows between the two models.
 
-    def tensors(self, draws: np.ndarray, coords, lead):
-        """Model tensors (resample, [fold,] actual, predicted) from joint-cell draws."""
-        size, strata, _ = draws.shape
-        k = self.k
-        rows = (np.arange(size)[:, None, None] * strata + np.arange(strata)[None, :, None]) * k
-        base = (rows + self.actual[None]) * k
-        out = []
-        for pred in (self.a, self.b):
-            flat = np.bincount((base + pred[None]).ravel(), weights=draws.ravel(),
-                               minlength=size * strata * k * k)
-            shape = (size, *([strata] if lead else []), k, k)
-            out.append(xr.DataArray(flat.astype(np.int64).reshape(shape),
-                                    dims=(RESAMPLE, *lead, ACTUAL, PREDICTED), coords=coords))
-        return out
+    Examples
+    --------
+    >>> from foldcorr.tensor import cluster_tally
+    >>> cells = cluster_tally([0, 1, 1], [0, 1, 0], [0, 0, 1], cluster=[0, 1, 2])
+    >>> p = PairStrata.of(cells, clustered=False)
+    >>> a, b = p.tensors(p.strata.counts[None])
+    >>> a.values.tolist(), b.values.tolist()
+    ([[[1, 0], [1, 1]]], [[[1, 0], [1, 1]]])
+    """
+
+    def __init__(self, strata: ClusterStrata):
+        self.strata = strata
+        cells = strata.cells
+        self.k = k = cells.k
+        self.lead = [] if cells.folds is None else [FOLD]
+        self.actual, self.a, self.b = strata.cell // (k * k), (strata.cell // k) % k, strata.cell % k
+        classes = cells.classes
+        self.coords = {ACTUAL: classes, PREDICTED: classes}
+        if self.lead:
+            self.coords[FOLD] = cells.folds
+
+    @classmethod
+    def of(cls, cells: ClusterCells, *, clustered: bool) -> PairStrata:
+        return cls(ClusterStrata.of(cells, clustered=clustered))
+
+    def tensors(self, draws: np.ndarray, flip=None):
+        """Model A and B tensors (resample, [fold,] actual, predicted) from row counts.
+
+        ``flip`` (resample, rows) swaps the two predictions of the rows where True.
+        """
+        k, size = self.k, draws.shape[0]
+        folds = self.strata.cells.n_folds
+        base = (self.strata.fold * k + self.actual) * k
+        pa, pb = (self.a, self.b) if flip is None else \
+            (np.where(flip, self.b, self.a), np.where(flip, self.a, self.b))
+        shape = (size, *([folds] if self.lead else []), k, k)
+        dims = (RESAMPLE, *self.lead, ACTUAL, PREDICTED)
+        return [xr.DataArray(scatter(draws, base + pred, folds * k * k).reshape(shape),
+                             dims=dims, coords=self.coords) for pred in (pa, pb)]
+
+    @property
+    def block_cells(self) -> int:
+        """Cells one resample occupies while drawn: rows, or both models' tensors."""
+        return max(len(self.strata.counts), 2 * self.strata.cells.n_folds * self.k * self.k)
+
+    def observed(self):
+        """Model A and B tensors of the observed samples."""
+        return [t.isel({RESAMPLE: 0}, drop=True)
+                for t in self.tensors(self.strata.counts[None].astype(np.int64))]
 
 
 def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=None,
                    n_permutations: int | None = None, undefined: str = "zero",
-                   keep_draws: bool = False) -> Comparison:
+                   keep_draws: bool = False, cluster=None) -> Comparison:
     r"""Paired comparison of two models' R_K on the same samples.
 
     Parameters
@@ -161,6 +200,13 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
         Convention for undefined R_K and MCC.
     keep_draws : bool, default False
         Keep the bootstrap draws of the pooled difference.
+    cluster : ClusterCells, optional
+        The same samples by cluster, from
+        ``cluster_tally(truth, pred_a, pred_b, cluster=ids, folds=...)``:
+        the bootstrap resamples whole clusters (within folds when every
+        cluster lies in one fold) and the permutation test swaps the two
+        predictions of a whole cluster at once. The result gives
+        ``n_clusters`` and ``design_effect`` (of the pooled difference).
 
     Returns
     -------
@@ -171,7 +217,8 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     OptionError
         On a level outside (0, 1) or fewer than 100 resamples or permutations.
     InvalidTensorError
-        On a malformed joint tensor or a fold with no samples.
+        On a malformed joint tensor, a fold with no samples, or a ``cluster``
+        that does not count the samples of ``joint``.
 
     Notes
     -----
@@ -186,6 +233,9 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     samples, :math:`S \sim \mathrm{Binomial}(n, 1/2)` samples move to
     (i, k, j). The p-value is
     :math:`(1 + \#\{|d^*| \ge |d|\}) / (1 + P)` over P permutations [2]_.
+    The null is exchangeability of the two predictions, a stronger statement
+    than equal R_K: models with equal R_K that err on different samples are
+    not exchangeable. With clusters the unit swapped is a cluster.
 
     References
     ----------
@@ -206,16 +256,46 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     >>> c.difference > 0, c.ci[0] > 0, c.p_value < 0.01, c.better
     (True, True, True, 'b')
     """
+    j = whole_counts(validate_joint(joint), what="the paired comparison")
+    if cluster is None:
+        cells = dense_cells(j)
+    else:
+        cells = check_cells(cluster, JOINT_DIMS)
+        same_samples(j, cells)
+    return compare_cells(cells, clustered=cluster is not None, n_resamples=n_resamples,
+                         level=level, seed=seed, n_permutations=n_permutations,
+                         undefined=undefined, keep_draws=keep_draws)
+
+
+def compare_cells(cells: ClusterCells, *, clustered: bool, n_resamples: int = 2000,
+                  level: float = 0.95, seed=None, n_permutations: int | None = None,
+                  undefined: str = "zero", keep_draws: bool = False, rng=None) -> Comparison:
+    """The paired comparison of :func:`compare_models`, from sparse joint cells.
+
+    ``clustered`` resamples and swaps whole clusters of ``cells``; otherwise
+    single samples (the cluster codes are then ignored). ``rng``, when given,
+    is used instead of a generator made from ``seed`` (``seed`` is then only
+    recorded), so several comparisons can share one stream of randoms.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import cluster_tally
+    >>> y = [0, 1, 2] * 30
+    >>> cells = cluster_tally(y, y[1:] + y[:1], y, cluster=range(90))
+    >>> c = compare_cells(cells, clustered=False, n_resamples=200, seed=0)
+    >>> round(c.difference, 3), c.better
+    (1.5, 'b')
+    """
     level = check_level(level)
     n = check_resamples(n_resamples)
     n_perm = n if n_permutations is None else check_resamples(n_permutations,
                                                               name="n_permutations")
     check_choice("undefined", undefined, ("zero", "nan"))
-    j = whole_counts(validate_joint(joint), what="the paired comparison")
     stat_rk = partial(rk, undefined=undefined)
     stat_mcc = partial(ovr_mcc, undefined=undefined)
-    rng = np.random.default_rng(seed)
-    t_a, t_b = model_tensors(j)
+    rng = np.random.default_rng(seed) if rng is None else rng
+    pair = PairStrata.of(cells, clustered=clustered)
+    t_a, t_b = pair.observed()
     notes: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", UndefinedMetricWarning)
@@ -227,11 +307,18 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     for w in caught:
         notes.append(f"comparison: {w.message}")
     difference = rk_b - rk_a
+    extra, point_notes = {}, bool(notes)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", UndefinedMetricWarning)
-        d_rk, d_mcc, d_fold = _paired_draws(j, rng, n, stat_rk, stat_mcc)
-        perm = _permutation_draws(j, rng, n_perm, stat_rk, t_a, t_b)
-    if caught and not notes:
+        d_rk, d_mcc, d_fold = paired_draws(pair, rng, n, stat_rk, stat_mcc)
+        perm = permutation_draws(pair, rng, n_perm, stat_rk)
+        if clustered:
+            iid = paired_draws(PairStrata.of(cells, clustered=False), rng, n, stat_rk, None)[0]
+            var_iid = float(np.nanvar(iid.values))
+            extra = {"n_clusters": cells.n_clusters, "design_effect": (
+                float(np.nanvar(d_rk.values)) / var_iid if var_iid > 0 else float("nan"))}
+            notes.extend(cluster_notes(pair.strata))
+    if caught and not point_notes:
         notes.append("comparison: R_K or MCC undefined (0/0) in some resamples or "
                      f"permutations; they count as {'0' if undefined == 'zero' else 'NaN'}")
     tol = 1e-12 * max(1.0, abs(difference))
@@ -241,9 +328,12 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     ci = (float(low), float(high))
     est_c = (mcc_b - mcc_a).rename("difference")
     low_c, high_c, _ = interval(d_mcc, est_c, level, "percentile")
+    thin = thin_classes(pa) & thin_classes(pb)
+    notes.extend(thin_note(list(cells.classes), thin, "per-class intervals"))
     per_class = xr.Dataset({
         "mcc_a": mcc_a, "mcc_b": mcc_b, "difference": est_c,
-        "low": est_c.copy(data=low_c), "high": est_c.copy(data=high_c),
+        "low": blank_thin_classes(est_c.copy(data=low_c), thin),
+        "high": blank_thin_classes(est_c.copy(data=high_c), thin),
     })
     folds = None
     if fold_a is not None:
@@ -254,58 +344,94 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     if undefined_mask.any():
         notes.append("comparison: the R_K difference is undefined (NaN); no interval given")
     return Comparison(
-        n=int(j.values.sum()), classes=j.coords[ACTUAL].values.tolist(), rk_a=rk_a, rk_b=rk_b,
+        n=int(cells.count.sum()), classes=list(cells.classes), rk_a=rk_a, rk_b=rk_b,
         difference=difference, ci=ci, p_value=float(p_value), level=level, n_resamples=n,
         n_permutations=n_perm, seed=seed if isinstance(seed, (int, np.integer)) else None,
         per_class=per_class, folds=folds, draws=d_rk if keep_draws else None,
-        warnings=tuple(dict.fromkeys(notes)),
+        warnings=tuple(dict.fromkeys(notes)), **extra,
     )
 
 
-def _paired_draws(j, rng, n, stat_rk, stat_mcc):
-    cells = _Cells(j)
-    lead = [FOLD] if FOLD in j.dims else []
-    coords = {d: j.coords[d] for d in lead}
-    coords.update({ACTUAL: j.coords[ACTUAL].values, PREDICTED: j.coords[ACTUAL].values})
-    k = cells.k
-    per = cells.strata.index.shape[0] * k * k
+def paired_draws(pair: PairStrata, rng, n, stat_rk, stat_mcc):
+    """Bootstrap draws of the R_K difference B - A: pooled, per class (MCC) and per fold.
+
+    Returns ``(pooled, per_class, per_fold)``; ``per_class`` is None without
+    ``stat_mcc`` and ``per_fold`` None without folds.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import cluster_tally
+    >>> y = [0, 1, 2] * 30
+    >>> pair = PairStrata.of(cluster_tally(y, y, y, cluster=range(90)), clustered=False)
+    >>> d, _, _ = paired_draws(pair, np.random.default_rng(0), 10, rk, None)
+    >>> d.values.tolist() == [0.0] * 10
+    True
+    """
+    lead = pair.lead
     rks, mccs, folds = [], [], []
-    for size in resample_blocks(n, per):
-        ta, tb = cells.tensors(cells.strata.draw(rng, size), coords, lead)
+    for size in resample_blocks(n, pair.block_cells):
+        ta, tb = pair.tensors(pair.strata.draw(rng, size))
         pa, pb = (ta.sum(FOLD), tb.sum(FOLD)) if lead else (ta, tb)
         rks.append(stat_rk(pb) - stat_rk(pa))
-        mccs.append(stat_mcc(pb) - stat_mcc(pa))
+        if stat_mcc is not None:
+            mccs.append(stat_mcc(pb) - stat_mcc(pa))
         if lead:
             folds.append(stat_rk(tb) - stat_rk(ta))
     cat = partial(xr.concat, dim=RESAMPLE)
-    return cat(rks), cat(mccs), (cat(folds) if folds else None)
+    return cat(rks), (cat(mccs) if mccs else None), (cat(folds) if folds else None)
 
 
-def _permutation_draws(j, rng, n, stat_rk, t_a, t_b) -> np.ndarray:
-    pooled = j.sum(FOLD) if FOLD in j.dims else j
-    k = pooled.sizes[ACTUAL]
-    vals = pooled.values
-    i, a, b = np.nonzero(vals)
+def permutation_draws(pair: PairStrata, rng, n, stat_rk) -> np.ndarray:
+    """The pooled R_K difference B - A under ``n`` random sign-flip permutations.
+
+    Without clusters each sample's predictions are swapped with probability
+    1/2 (a Binomial(n, 1/2) per off-diagonal joint cell); with clusters each
+    cluster's at once.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import cluster_tally
+    >>> y = [0, 1, 2] * 30
+    >>> pair = PairStrata.of(cluster_tally(y, y, y[1:] + y[:1], cluster=range(90)),
+    ...                      clustered=False)
+    >>> d = permutation_draws(pair, np.random.default_rng(0), 50, rk)
+    >>> d.shape, bool(abs(d.mean()) < 0.3)
+    ((50,), True)
+    """
+    strata = pair.strata
+    if strata.clustered:
+        return _cluster_flips(pair, rng, n, stat_rk)
+    k = pair.k
+    code, inverse = np.unique(strata.cell, return_inverse=True)
+    pooled = np.bincount(inverse, weights=strata.counts, minlength=len(code)).astype(np.int64)
+    i, a, b = code // (k * k), (code // k) % k, code % k
     off = a != b
-    i, a, b = i[off], a[off], b[off]
-    counts = vals[i, a, b]
-    base_a = (t_a.sum(FOLD) if FOLD in t_a.dims else t_a).values
-    base_b = (t_b.sum(FOLD) if FOLD in t_b.dims else t_b).values
-    classes = pooled.coords[ACTUAL].values
+    i, a, b, counts = i[off], a[off], b[off], pooled[off]
+    t_a, t_b = pair.observed()
+    base_a = (t_a.sum(FOLD) if pair.lead else t_a).values
+    base_b = (t_b.sum(FOLD) if pair.lead else t_b).values
+    coords = {ACTUAL: pair.coords[ACTUAL], PREDICTED: pair.coords[PREDICTED]}
+    dims = (RESAMPLE, ACTUAL, PREDICTED)
     out = []
     for size in resample_blocks(n, max(k * k, counts.size)):
         swapped = rng.binomial(counts, 0.5, size=(size, counts.size))
-        rows = np.arange(size)[:, None] * k * k
-        into_b = (rows + i * k + b).ravel()
-        into_a = (rows + i * k + a).ravel()
-        w = swapped.ravel().astype(np.float64)
-        delta = (np.bincount(into_b, weights=w, minlength=size * k * k)
-                 - np.bincount(into_a, weights=w, minlength=size * k * k))
-        delta = delta.astype(np.int64).reshape(size, k, k)
-        dims = (RESAMPLE, ACTUAL, PREDICTED)
-        coords = {ACTUAL: classes, PREDICTED: classes}
+        delta = (scatter(swapped, i * k + b, k * k)
+                 - scatter(swapped, i * k + a, k * k)).reshape(size, k, k)
         ta = xr.DataArray(base_a[None] + delta, dims=dims, coords=coords)
         tb = xr.DataArray(base_b[None] - delta, dims=dims, coords=coords)
         out.append((stat_rk(tb) - stat_rk(ta)).values)
     return np.concatenate(out) if out else np.zeros(0)
 
+
+def _cluster_flips(pair: PairStrata, rng, n, stat_rk) -> np.ndarray:
+    """Permutations that swap the two predictions of whole clusters."""
+    strata = pair.strata
+    out = []
+    for size in resample_blocks(n, pair.block_cells):
+        flip = rng.random((size, strata.cells.n_clusters)) < 0.5
+        draws = np.broadcast_to(strata.counts, (size, len(strata.counts)))
+        ta, tb = pair.tensors(draws, flip=flip[:, strata.unit])
+        if pair.lead:
+            ta, tb = ta.sum(FOLD), tb.sum(FOLD)
+        out.append((stat_rk(tb) - stat_rk(ta)).values)
+    return np.concatenate(out)

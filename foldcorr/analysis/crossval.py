@@ -3,7 +3,7 @@
 :func:`cross_tally` fits a fresh copy of an estimator on every training split
 and tallies its predictions on the held-out split into one fold tensor, ready
 for :func:`foldcorr.evaluation.evaluate`, :func:`foldcorr.analysis.uncertainty.bootstrap`
-and :func:`foldcorr.analysis.uncertainty.fold_statistics`. :data:`rk_scorer` lets
+and :func:`foldcorr.analysis.folds.fold_statistics`. :data:`rk_scorer` lets
 scikit-learn's own model selection (``cross_validate``, ``GridSearchCV``) rank
 models by R_K.
 

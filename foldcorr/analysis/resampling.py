@@ -27,7 +27,7 @@ import numpy as np
 import xarray as xr
 
 from foldcorr.errors import InvalidTensorError, OptionError, UndefinedMetricWarning
-from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, validate_tensor
+from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, py_value, validate_tensor
 
 __all__ = [
     "RESAMPLE", "METHODS", "MIN_RESAMPLES", "check_level", "check_resamples", "whole_counts",
@@ -166,14 +166,10 @@ def _weighted_reason(t: xr.DataArray) -> str | None:
         at = ""
         if len(cells):
             index = tuple(cells[0])
-            at = f", e.g. {_py(values[index])!r} at {_where(t, index)}"
+            at = f", e.g. {py_value(values[index])!r} at {_where(t, index)}"
         return (f"{values.dtype} counts{at}, as a weighted tally has; if these are plain "
                 "sample counts, give them an integer dtype with .astype('int64')")
     return None
-
-
-def _py(value):
-    return value.item() if isinstance(value, np.generic) else value
 
 
 @dataclass(frozen=True)
@@ -236,6 +232,10 @@ class Strata:
         totals = self.counts.sum(axis=1)
         probs = self.counts / totals[:, None]
         return rng.multinomial(totals, probs, size=(size, len(totals)))
+
+    def resample(self, rng: np.random.Generator, size: int) -> xr.DataArray:
+        """``size`` resampled tensors (the protocol :func:`statistic_draws` asks for)."""
+        return self.dense(self.draw(rng, size))
 
     def dense(self, draws: np.ndarray) -> xr.DataArray:
         """Scatter draws back into full tensors with a leading ``resample`` dim."""
@@ -372,7 +372,8 @@ def resample_blocks(total: int, cells: int):
 def statistic_draws(strata: Strata, rng, n, jobs) -> dict:
     """The statistic of every resample, for several statistics sharing the resamples.
 
-    ``jobs`` maps a name to ``(statistic, pooled, label)``; each value holds
+    ``strata`` is anything with a dense ``tensor`` and ``resample(rng, size)``
+    (:class:`Strata`, or :class:`foldcorr.analysis.clustered.ClusterStrata`). ``jobs`` maps a name to ``(statistic, pooled, label)``; each value holds
     dim ``resample`` first.
 
     Raises
@@ -391,8 +392,8 @@ def statistic_draws(strata: Strata, rng, n, jobs) -> dict:
     (('resample',), 5)
     """
     out = {name: [] for name in jobs}
-    for size in resample_blocks(n, strata.tensor.size):
-        block = strata.dense(strata.draw(rng, size))
+    for size in resample_blocks(n, max(strata.tensor.size, strata.counts.size)):
+        block = strata.resample(rng, size)
         for name, (statistic, pooled, label) in jobs.items():
             values = apply_statistic(statistic, pool_folds(block, pooled), label)
             if RESAMPLE not in values.dims:

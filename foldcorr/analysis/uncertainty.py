@@ -12,8 +12,6 @@ Nothing here reads files or prints. Randomness comes from one keyword-only
 
 from __future__ import annotations
 
-import math
-import numbers
 import warnings
 from dataclasses import dataclass, field
 from functools import partial
@@ -21,21 +19,24 @@ from functools import partial
 import numpy as np
 import xarray as xr
 
+from foldcorr.analysis.clustered import (
+    CLUSTER_RK, cluster_notes, cluster_strata, design_effect,
+)
+from foldcorr.analysis.folds import FoldStatistics, fold_statistics
+from foldcorr.analysis.support import blank_thin_classes, thin_classes, thin_note
 from foldcorr.analysis.resampling import (
     METHODS, RESAMPLE, Strata, apply_statistic, check_level, check_resamples, draw_notes,
     interval, jackknife_moments, pool_folds, statistic_draws, statistic_label, whole_counts,
 )
-from foldcorr.errors import InvalidTensorError, OptionError, UndefinedMetricWarning, check_choice
+from foldcorr.errors import InvalidTensorError, UndefinedMetricWarning, check_choice
 from foldcorr.metrics import decompose, ovr_mcc, rk
-from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, validate_tensor
+from foldcorr.tensor import ACTUAL, CLASS, FOLD, PREDICTED, validate_tensor
 
 __all__ = [
     "BootstrapResult",
-    "FoldStatistics",
     "Uncertainty",
     "bootstrap",
     "bootstrap_difference",
-    "fold_statistics",
     "drag",
     "summarise_uncertainty",
 ]
@@ -63,6 +64,14 @@ class BootstrapResult:
         Whether the statistic was applied to the resamples summed over folds.
     warnings : tuple of str
         Undefined values met in the resamples, in plain language.
+    n_clusters : int or None
+        Clusters resampled whole (see ``cluster`` of :func:`bootstrap`), or
+        None when samples were resampled one by one.
+    design_effect : float or None
+        With clusters: the variance of the cluster bootstrap of pooled R_K over
+        that of the sample-by-sample bootstrap (1 for independent samples;
+        intervals that ignore clusters are about ``sqrt(design_effect)`` too
+        narrow).
     """
 
     estimate: xr.DataArray
@@ -74,6 +83,8 @@ class BootstrapResult:
     draws: xr.DataArray | None = None
     pooled: bool = True
     warnings: tuple[str, ...] = field(default_factory=tuple)
+    n_clusters: int | None = None
+    design_effect: float | None = None
 
     @property
     def ci(self) -> tuple[xr.DataArray, xr.DataArray]:
@@ -98,7 +109,8 @@ def _like(estimate: xr.DataArray, values: np.ndarray, suffix: str) -> xr.DataArr
     return estimate.copy(data=np.asarray(values, dtype=float)).rename(name)
 
 
-def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_draws):
+def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_draws,
+                    cluster=None):
     """Bootstrap several statistics on the same resamples of ``t``.
 
     ``jobs`` maps a name to ``(statistic, pooled)``; returns name -> BootstrapResult.
@@ -107,8 +119,12 @@ def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_dra
     n = check_resamples(n_resamples)
     check_choice("method", method, METHODS)
     t = whole_counts(t)
-    strata = Strata.of(t, (ACTUAL, PREDICTED))
     rng = np.random.default_rng(seed)
+    if cluster is None:
+        strata, clusters = Strata.of(t, (ACTUAL, PREDICTED)), {}
+    else:
+        strata = cluster_strata(t, cluster, method)
+        jobs = {**jobs, CLUSTER_RK: (rk, True)}
     jobs = {name: (stat, bool(pooled), statistic_label(stat)) for name, (stat, pooled) in jobs.items()}
     estimates = {name: apply_statistic(stat, pool_folds(t, pooled), label)
                  for name, (stat, pooled, label) in jobs.items()}
@@ -119,6 +135,11 @@ def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_dra
         if method == "bca":
             for name, (stat, pooled, label) in jobs.items():
                 moments[name] = jackknife_moments(t, stat, pooled, estimates[name], label)
+        if cluster is not None:
+            clusters = {"n_clusters": strata.n_units, "design_effect": design_effect(
+                t, draws.pop(CLUSTER_RK), rk, rng, n)}
+            jobs.pop(CLUSTER_RK)
+    notes = cluster_notes(strata) if cluster is not None else ()
     results = {}
     for name, (stat, pooled, label) in jobs.items():
         est = estimates[name]
@@ -126,13 +147,17 @@ def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_dra
         if mom is not None:
             mom = tuple(m.transpose(*est.dims).values for m in mom)
         low, high, undefined = interval(draws[name], est, level, method, mom)
+        thin = thin_classes(t) if CLASS in est.dims else np.zeros(0, bool)
         results[name] = BootstrapResult(
-            estimate=est, low=_like(est, low, "low"), high=_like(est, high, "high"),
+            estimate=est, low=blank_thin_classes(_like(est, low, "low"), thin),
+            high=blank_thin_classes(_like(est, high, "high"), thin),
             level=level, method=method, n_resamples=n,
             draws=draws[name].transpose(RESAMPLE, *est.dims) if keep_draws else None,
-            pooled=pooled, warnings=draw_notes(label, caught, undefined, est, n),
+            pooled=pooled, warnings=draw_notes(label, caught, undefined, est, n)
+            + thin_note(t.coords[ACTUAL].values.tolist(), thin, "per-class intervals") + notes,
+            **clusters,
         )
-    for note in {w for r in results.values() for w in r.warnings}:
+    for note in {w for r in results.values() for w in r.warnings} - set(notes):
         warnings.warn(note, UndefinedMetricWarning, stacklevel=3)
     return results
 
@@ -143,7 +168,7 @@ def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_dra
 
 def bootstrap(t, statistic=rk, *, n_resamples: int = 2000, level: float = 0.95,
               method: str = "percentile", seed=None, keep_draws: bool = False,
-              pool: bool = True) -> BootstrapResult:
+              pool: bool = True, cluster=None) -> BootstrapResult:
     r"""Bootstrap interval of any statistic of a confusion tensor.
 
     Parameters
@@ -166,6 +191,12 @@ def bootstrap(t, statistic=rk, *, n_resamples: int = 2000, level: float = 0.95,
     pool : bool, default True
         Apply the statistic to each resample summed over ``fold`` (pooled
         figure); ``False`` gives one interval per fold.
+    cluster : ClusterCells, optional
+        The same samples counted by cluster
+        (:func:`foldcorr.tensor.cluster_tally` with one cluster id per sample):
+        whole clusters are resampled, within folds when every cluster lies in
+        one fold. The result then gives ``n_clusters`` and ``design_effect``.
+        Percentile intervals only.
 
     Returns
     -------
@@ -175,15 +206,20 @@ def bootstrap(t, statistic=rk, *, n_resamples: int = 2000, level: float = 0.95,
     ------
     OptionError
         On a level outside (0, 1), fewer than 100 resamples, an unknown method,
-        or a statistic that does not broadcast over leading dims.
+        a statistic that does not broadcast over leading dims, or BCa with
+        ``cluster``.
     InvalidTensorError
-        On a weighted tensor or a slice (fold) with no samples.
+        On a weighted tensor, a slice (fold) with no samples, or a ``cluster``
+        that does not count the samples of ``t``.
 
     Warns
     -----
     UndefinedMetricWarning
         When the statistic is undefined in some resamples (also kept in
-        ``warnings``).
+        ``warnings``), and once naming the classes whose per-class interval
+        (a statistic with a ``class`` dim) is withheld as NaN because they
+        have fewer than :data:`foldcorr.analysis.support.MIN_CLASS_SUPPORT`
+        samples in the truth.
 
     Notes
     -----
@@ -197,6 +233,11 @@ def bootstrap(t, statistic=rk, *, n_resamples: int = 2000, level: float = 0.95,
     clipped to :math:`[1/2B, 1 - 1/2B]`) and the jackknife acceleration
     :math:`a`; deleting any one sample of a cell gives the same tensor, so the
     jackknife costs one statistic per nonzero cell.
+
+    With ``cluster``, each fold's G_f clusters are drawn G_f times with
+    replacement (multiplicities Multinomial(G_f, 1/G_f)) and the tensor of a
+    resample is the sum of the drawn clusters' cells
+    (:mod:`foldcorr.analysis.clustered`).
 
     References
     ----------
@@ -213,9 +254,23 @@ def bootstrap(t, statistic=rk, *, n_resamples: int = 2000, level: float = 0.95,
     >>> from foldcorr.metrics import ovr_mcc
     >>> bootstrap(t, ovr_mcc, n_resamples=200, seed=7).low.dims
     ('class',)
+
+    Clusters of samples that share their fate:
+
+    >>> import numpy as np
+    >>> from foldcorr.tensor import cluster_tally
+    >>> rng = np.random.default_rng(0)
+    >>> site = np.repeat(np.arange(20), 10)
+    >>> truth = rng.integers(0, 2, 200)
+    >>> pred = np.where(rng.random(20)[site] < 0.7, truth, 1 - truth)
+    >>> c = cluster_tally(truth, pred, cluster=site)
+    >>> res = bootstrap(c.tensor(), cluster=c, n_resamples=500, seed=1)
+    >>> res.n_clusters, res.design_effect > 2
+    (20, True)
     """
     return _bootstrap_many(t, {"x": (statistic, pool)}, n_resamples=n_resamples, level=level,
-                           method=method, seed=seed, keep_draws=keep_draws)["x"]
+                           method=method, seed=seed, keep_draws=keep_draws,
+                           cluster=cluster)["x"]
 
 
 def bootstrap_difference(t_a, t_b, statistic=rk, *, n_resamples: int = 2000,
@@ -326,174 +381,6 @@ def drag(t, *, undefined: str = "zero") -> xr.DataArray:
 
 
 # ----------------------------------------------------------------------------
-# fold statistics
-
-
-@dataclass(frozen=True)
-class FoldStatistics:
-    """Spread of per-fold R_K, pooled against averaged, and a corrected t interval.
-
-    Attributes
-    ----------
-    per_fold : xarray.DataArray
-        The statistic of every fold, dim ``fold``.
-    count : int
-        Number of folds J.
-    mean, sd, min, max : float
-        Mean, sample standard deviation (ddof = 1), minimum and maximum of the
-        per-fold values. ``mean`` is the averaged figure.
-    pooled : float
-        The statistic of the tensor summed over folds.
-    gap : float
-        ``pooled - mean``.
-    level : float
-        Level of the interval.
-    test_train_ratio : float
-        n_test / n_train used in the correction.
-    corrected_se : float
-        :math:`\\sqrt{(1/J + n_{test}/n_{train})\\, s^2}`.
-    corrected_ci : tuple of float
-        ``mean -/+ t_{(1+level)/2, J-1} * corrected_se``.
-    naive_ci : tuple of float
-        The same with the uncorrected variance :math:`s^2 / J`, for comparison.
-    warnings : tuple of str
-        A note when pooled and averaged differ by more than the fold spread
-        explains, or when a fold's value is undefined.
-    """
-
-    per_fold: xr.DataArray
-    count: int
-    mean: float
-    sd: float
-    min: float
-    max: float
-    pooled: float
-    gap: float
-    level: float
-    test_train_ratio: float
-    corrected_se: float
-    corrected_ci: tuple[float, float]
-    naive_ci: tuple[float, float]
-    warnings: tuple[str, ...] = field(default_factory=tuple)
-
-    @property
-    def averaged(self) -> float:
-        """The mean of the per-fold values (alias of ``mean``)."""
-        return self.mean
-
-
-def fold_statistics(t, statistic=rk, *, level: float = 0.95,
-                    test_train_ratio: float | None = None) -> FoldStatistics:
-    r"""Mean, spread and a Nadeau-Bengio corrected t interval of per-fold R_K.
-
-    Parameters
-    ----------
-    t : xarray.DataArray
-        Confusion tensor with a ``fold`` dim of at least two folds.
-    statistic : callable, default :func:`foldcorr.metrics.rk`
-        Tensor -> DataArray giving one value per fold.
-    level : float, default 0.95
-        Level of the t interval.
-    test_train_ratio : float, optional
-        n_test / n_train of one fold. Default ``1 / (J - 1)``, right for J-fold
-        cross-validation where each fold is tested once and trained on the rest.
-
-    Returns
-    -------
-    FoldStatistics
-
-    Raises
-    ------
-    InvalidTensorError
-        Without a ``fold`` dim, with fewer than two folds, or when the
-        statistic does not give one value per fold.
-    OptionError
-        On a level outside (0, 1) or a ratio that is not positive.
-
-    Notes
-    -----
-    With per-fold values :math:`r_1..r_J`, mean :math:`\bar r` and sample
-    variance :math:`s^2`, the corrected variance of the mean is [1]_
-
-    .. math:: \hat\sigma^2 = \left(\frac1J + \frac{n_{test}}{n_{train}}\right) s^2
-
-    and the interval is :math:`\bar r \pm t_{(1+\ell)/2,\,J-1}\,\hat\sigma`.
-    Training sets overlap, so fold values are positively correlated and the
-    naive :math:`s^2/J` understates the variance. A warning is raised when
-    :math:`|\text{pooled} - \bar r|` exceeds the naive half-width
-    :math:`t_{(1+\ell)/2, J-1}\, s/\sqrt J`: pooled and averaged figures then
-    differ by more than fold-to-fold noise explains (folds differ in class mix
-    or in how the model behaves on them).
-
-    References
-    ----------
-    .. [1] C. Nadeau, Y. Bengio, "Inference for the generalization error",
-       Machine Learning 52 (2003) 239-281.
-
-    Examples
-    --------
-    >>> from foldcorr.tensor import tally
-    >>> t = tally([0, 1, 0, 1, 0, 1, 1, 0, 0, 1, 1, 0],
-    ...           [0, 1, 0, 0, 0, 1, 1, 1, 0, 1, 1, 0], folds=[1, 1, 1, 1, 2, 2, 2, 2, 3, 3, 3, 3])
-    >>> fs = fold_statistics(t)
-    >>> fs.count, round(fs.mean, 4), fs.corrected_ci[0] < fs.mean < fs.corrected_ci[1]
-    (3, 0.7182, True)
-    """
-    level = check_level(level)
-    t = validate_tensor(t)
-    if FOLD not in t.dims or t.sizes[FOLD] < 2:
-        got = t.sizes.get(FOLD, 0) if FOLD in t.dims else "no fold dim"
-        raise InvalidTensorError(
-            f"fold statistics need a 'fold' dim with at least 2 folds; got {got!r}"
-        )
-    j = int(t.sizes[FOLD])
-    if test_train_ratio is None:
-        ratio = 1.0 / (j - 1)
-    else:
-        ok = isinstance(test_train_ratio, numbers.Real) and not isinstance(test_train_ratio, bool)
-        if not ok or not (test_train_ratio > 0 and math.isfinite(test_train_ratio)):
-            raise OptionError(
-                f"`test_train_ratio` must be a positive number (n_test / n_train); "
-                f"got {test_train_ratio!r}"
-            )
-        ratio = float(test_train_ratio)
-    per_fold = statistic(t)
-    if tuple(per_fold.dims) != (FOLD,):
-        raise InvalidTensorError(
-            f"fold statistics need one value per fold; the statistic returned dims "
-            f"{per_fold.dims!r}"
-        )
-    pooled = float(statistic(t.sum(FOLD)))
-    values = per_fold.values.astype(float)
-    notes = []
-    if np.isnan(values).any() or math.isnan(pooled):
-        notes.append("fold statistics: a fold's value is undefined (NaN); mean, spread and "
-                     "interval are not given")
-    mean = float(np.mean(values))
-    sd = float(np.std(values, ddof=1))
-    from scipy.stats import t as student
-
-    quantile = float(student.ppf((1 + level) / 2, j - 1))
-    se = math.sqrt((1.0 / j + ratio) * sd**2)
-    naive_half = quantile * sd / math.sqrt(j)
-    gap = pooled - mean
-    if abs(gap) > naive_half and not notes:
-        notes.append(
-            f"pooled R_K {pooled:.3f} and the mean of per-fold R_K {mean:.3f} differ by "
-            f"{abs(gap):.3f}, more than the fold-to-fold spread explains (the {level:.0%} "
-            f"t half-width is {naive_half:.3f}); the folds differ in class mix or in how the "
-            "model does on them, so report both figures"
-        )
-    return FoldStatistics(
-        per_fold=per_fold, count=j, mean=mean, sd=sd, min=float(np.min(values)),
-        max=float(np.max(values)), pooled=pooled, gap=gap, level=level,
-        test_train_ratio=ratio, corrected_se=se,
-        corrected_ci=(mean - quantile * se, mean + quantile * se),
-        naive_ci=(mean - naive_half, mean + naive_half), warnings=tuple(notes),
-    )
-
-
-# ----------------------------------------------------------------------------
 # everything the score report shows
 
 
@@ -515,6 +402,8 @@ class Uncertainty:
         Fold statistics, or None with fewer than two folds.
     warnings : tuple of str
         Notes from the resamples and the fold statistics.
+    n_clusters, design_effect : int, float or None
+        As in :class:`BootstrapResult`, with ``cluster``; None without.
     """
 
     level: float
@@ -527,12 +416,14 @@ class Uncertainty:
     drag: BootstrapResult
     folds: FoldStatistics | None
     warnings: tuple[str, ...] = field(default_factory=tuple)
+    n_clusters: int | None = None
+    design_effect: float | None = None
 
 
 def summarise_uncertainty(t, *, level: float = 0.95, n_resamples: int = 2000,
                           method: str = "percentile", seed=None,
                           undefined: str = "zero",
-                          test_train_ratio: float | None = None) -> Uncertainty:
+                          test_train_ratio: float | None = None, cluster=None) -> Uncertainty:
     """Intervals for pooled R_K, per-fold R_K, per-class MCC and drag, on shared resamples.
 
     Parameters
@@ -545,6 +436,8 @@ def summarise_uncertainty(t, *, level: float = 0.95, n_resamples: int = 2000,
         Convention of the metrics.
     test_train_ratio : float, optional
         As in :func:`fold_statistics`.
+    cluster : ClusterCells, optional
+        As in :func:`bootstrap`: resample whole clusters.
 
     Returns
     -------
@@ -564,7 +457,8 @@ def summarise_uncertainty(t, *, level: float = 0.95, n_resamples: int = 2000,
     Examples
     --------
     >>> from foldcorr.tensor import tally
-    >>> t = tally(list("aabbccaabbcc"), list("aabbcaabbbcc"), folds=[1] * 6 + [2] * 6)
+    >>> t = tally(list("aabbccaabbcc") * 3, list("aabbcaabbbcc") * 3,
+    ...           folds=([1] * 6 + [2] * 6) * 3)
     >>> u = summarise_uncertainty(t, n_resamples=200, seed=0)
     >>> u.rk.low.dims, u.mcc.low.dims, u.fold_rk.low.dims
     ((), ('class',), ('fold',))
@@ -581,7 +475,7 @@ def summarise_uncertainty(t, *, level: float = 0.95, n_resamples: int = 2000,
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UndefinedMetricWarning)
         res = _bootstrap_many(t, jobs, n_resamples=n_resamples, level=level, method=method,
-                              seed=seed, keep_draws=False)
+                              seed=seed, keep_draws=False, cluster=cluster)
         folds = None
         if FOLD in t.dims and t.sizes[FOLD] >= 2:
             folds = fold_statistics(t, partial(rk, undefined=undefined), level=level,
@@ -589,9 +483,12 @@ def summarise_uncertainty(t, *, level: float = 0.95, n_resamples: int = 2000,
     notes = [w for r in res.values() for w in r.warnings]
     if folds is not None:
         notes.extend(folds.warnings)
+    for note in set(res["mcc"].warnings) & set(res["drag"].warnings):
+        warnings.warn(note, UndefinedMetricWarning, stacklevel=2)  # withheld class intervals
     return Uncertainty(
         level=float(level), method=method, n_resamples=int(n_resamples),
         seed=seed if isinstance(seed, (int, np.integer)) else None,
         rk=res["rk"], fold_rk=res.get("fold_rk"), mcc=res["mcc"], drag=res["drag"],
         folds=folds, warnings=tuple(dict.fromkeys(notes)),
+        n_clusters=res["rk"].n_clusters, design_effect=res["rk"].design_effect,
     )
