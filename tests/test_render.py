@@ -7,6 +7,7 @@ import numpy as np
 import pytest
 
 from foldcorr.analysis.compare import compare_models
+from foldcorr.analysis.many import compare_many
 from foldcorr.analysis.thresholds import sweep
 from foldcorr.errors import OptionError
 from foldcorr.evaluation import evaluate
@@ -23,6 +24,8 @@ def _results():
         "Comparison": compare_models(joint_tally(y, np.roll(y, 1), y), n_resamples=100, seed=0),
         "GateResult": check_gate(ev, GateRules(min_rk=0.2)),
         "SweepResult": sweep([0, 1, 1, 0, 1], [0.1, 0.8, 0.6, 0.3, 0.4]),
+        "ManyComparison": compare_many(y, {"a": y, "b": np.roll(y, 1), "c": y[::-1]},
+                                       n_resamples=100, seed=0),
     }
 
 

@@ -306,13 +306,18 @@ def get_parser() -> argparse.ArgumentParser:
     _add_analysis_options(demo)
 
     compare = verbs.add_parser(
-        "compare", help="compare two models scored on the same samples",
-        description="Paired comparison of two models on the same samples: either one table "
-                    "with two prediction columns (--pred-a COL --pred-b COL), or two tables, "
-                    "one per model, joined on an id column (--id COL).")
-    compare.add_argument("path", metavar="PATH", help="table with truth (and both predictions)")
+        "compare", help="compare models scored on the same samples",
+        description="Paired comparison of models on the same samples: one table with two "
+                    "prediction columns (--pred-a COL --pred-b COL) or more (--models A,B,C), "
+                    "or one table per model, joined on an id column (--id COL). With three or "
+                    "more models: ranked by R_K, each against the best (Holm-adjusted).")
+    compare.add_argument("path", metavar="PATH", help="table with truth (and the predictions)")
     compare.add_argument("path_b", metavar="PATH_B", nargs="?",
                          help="second table with model B's predictions, joined on --id")
+    compare.add_argument("more", metavar="PATH_C", nargs="*",
+                         help="more tables, one per model, joined on --id")
+    compare.add_argument("--models", type=_column_list, metavar="A,B,...",
+                         help="prediction columns of one table, one per model (2 to 50)")
     compare.add_argument("--truth", default=UNSET, metavar="COL",
                          help="column of actual labels (default: actual)")
     compare.add_argument("--pred-a", metavar="COL", help="prediction column of model A")

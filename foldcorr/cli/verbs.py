@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import os
 import sys
+from dataclasses import replace
 
 from foldcorr._files import same_path
 from foldcorr.cli.args import OPTION_OF_DEST, flag_names
@@ -261,6 +262,11 @@ def run_compare(args) -> int:
     for dest in ("resamples", "permutations"):
         if COMPARE_SETTINGS[dest] in settings:
             check_resamples(settings[COMPARE_SETTINGS[dest]], name=f"--{dest}")
+    paths = [p for p in (args.path, args.path_b, *args.more) if p is not None]
+    if args.models is not None and len(args.models) == 2 and len(paths) == 1:
+        spec = replace(spec, pred_a=args.models[0], pred_b=args.models[1])
+    elif args.models is not None or len(paths) > 2:
+        return _compare_many(args, paths, spec, settings)
     joint = load_joint(args.path, spec, path_b=args.path_b)
     result = compare_models(joint, **settings)
     if args.path_b is None:
@@ -272,6 +278,33 @@ def run_compare(args) -> int:
                  f"{Path(args.path_b).name}, column {spec.pred_b or spec.pred!r}")
     source = joint.attrs.get("source")
     emit(args, result, **present(args, ("top",)), names=names, source=source)
+    return EXIT_OK
+
+
+#: The most models one comparison takes.
+MAX_MODELS = 50
+
+
+def _compare_many(args, paths, spec, settings) -> int:
+    """``compare`` with three or more models: rank them and compare each with the best."""
+    from foldcorr.analysis.many import compare_many
+    from foldcorr.errors import OptionError
+    from foldcorr.sources.paired import load_models
+
+    for flag, value in (("--pred-a", spec.pred_a), ("--pred-b", spec.pred_b),
+                        ("--classes", spec.classes)):
+        if value is not None:
+            raise OptionError(f"`{flag}` applies to two models; with more, name them with "
+                              "--models (one table) or give one table per model")
+    table = load_models(paths, spec, models=args.models)
+    if len(table.predictions) > MAX_MODELS:
+        raise OptionError(f"`--models` takes at most {MAX_MODELS} models; got "
+                          f"{len(table.predictions)}")
+    result = compare_many(table.truth.to_numpy(), {k: v.to_numpy() for k, v in
+                                                   table.predictions.items()},
+                          folds=None if table.folds is None else table.folds.to_numpy(),
+                          **settings)
+    emit(args, result, **present(args, ("top",)), source=table.source)
     return EXIT_OK
 
 

@@ -22,4 +22,5 @@ DOCUMENTS = {
     "Comparison": "foldcorr.report.compare:compare_document",
     "GateResult": "foldcorr.report.gate:gate_document",
     "SweepResult": "foldcorr.report.sweep:sweep_document",
+    "ManyComparison": "foldcorr.report.many:many_document",
 }

@@ -1,6 +1,6 @@
-"""The sources layer for comparisons: two models' predictions of the same samples.
+"""The sources layer for comparisons: models' predictions of the same samples.
 
-Either one table holds both predictions (two prediction columns), or two
+Either one table holds every prediction (one column per model), or the
 tables, one per model, are joined on an id column. Every problem is an
 :class:`~foldcorr.errors.InvalidInputError` naming the file and column; ids
 that repeat or that are not in both tables are refused with counts.
@@ -21,7 +21,7 @@ from foldcorr.sources.problems import file_error
 from foldcorr.sources.tables import classes_like, read_table, text_labels
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_columns
 
-__all__ = ["PairSpec", "load_joint"]
+__all__ = ["PairSpec", "load_joint", "ModelTable", "load_models"]
 
 
 @dataclass(frozen=True)
@@ -187,3 +187,113 @@ def _check_ids(path_a, path_b, ids_a: pd.Series, ids_b: pd.Series, name: str) ->
                          f"{Path(path_a).name} (first {_first(ids_b[only_b])})")
         raise InvalidInputError(f"the tables must hold the same ids in column {name!r}: "
                                 + "; ".join(parts))
+
+
+@dataclass(frozen=True)
+class ModelTable:
+    """Several models' predictions of the same samples, row-aligned.
+
+    Attributes
+    ----------
+    truth : pandas.Series
+        Actual label per sample.
+    predictions : dict of str to pandas.Series
+        Model name -> predicted label per sample, in the order given.
+    folds : pandas.Series or None
+        Fold per sample, or None.
+    source : str
+        The file name(s) read.
+    """
+
+    truth: pd.Series
+    predictions: dict
+    folds: pd.Series | None
+    source: str
+
+
+def _model_names(paths) -> list[str]:
+    stems = [Path(p).stem for p in paths]
+    return [s if stems.count(s) == 1 else f"{s} ({i + 1})" for i, s in enumerate(stems)]
+
+
+def load_models(paths, spec: PairSpec = PairSpec(), *, models=None) -> ModelTable:
+    """Read the predictions of two or more models of the same samples.
+
+    Parameters
+    ----------
+    paths : sequence of str or path-like
+        One table holding a column per model (``models``), or one table per
+        model joined on ``spec.id`` (the first holds truth and folds; each
+        holds its predictions in ``spec.pred``; models are named by file).
+    spec : PairSpec
+        Column roles (``truth``, ``pred``, ``id``, ``fold``).
+    models : sequence of str, optional
+        With one table, its prediction columns, one per model.
+
+    Returns
+    -------
+    ModelTable
+
+    Raises
+    ------
+    InvalidInputError
+        On a missing or repeated column, fewer than two models, a missing
+        ``id`` with several tables, ids that repeat or differ between tables,
+        or truth that differs between tables.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (d / "p.csv").write_text("actual,m1,m2,m3\\nx,x,y,x\\ny,y,y,x\\n")
+    >>> mt = load_models([d / "p.csv"], models=["m1", "m2", "m3"])
+    >>> list(mt.predictions), mt.predictions["m3"].tolist()
+    (['m1', 'm2', 'm3'], ['x', 'x'])
+    """
+    paths = [Path(p) for p in paths]
+    first = read_table(paths[0])
+    fold = _fold_of(first, spec)
+    if len(paths) == 1:
+        models = list(models or [])
+        if len(models) < 2 or len(set(models)) < len(models):
+            raise InvalidInputError(f"name two or more different prediction columns, one per "
+                                    f"model (--models A,B,...); got {models!r}")
+        _need(paths[0], first, [spec.truth, *models, fold])
+        predictions = {name: first[name] for name in models}
+        source = paths[0].name
+    else:
+        if models is not None:
+            raise InvalidInputError("--models names the prediction columns of one table; with "
+                                    "one table per model, each table's column is --pred")
+        if spec.id is None:
+            raise InvalidInputError("with one table per model, name the id column that joins "
+                                    "them (--id COL)")
+        _need(paths[0], first, [spec.id, spec.truth, spec.pred, fold])
+        first = first.reset_index(drop=True)
+        predictions = {}
+        for name, path in zip(_model_names(paths), paths):
+            table = first if path == paths[0] else _aligned(paths[0], first, path, spec)
+            predictions[name] = table[spec.pred]
+        source = " + ".join(p.name for p in paths)
+    truth, *preds = _same_kind(first[spec.truth], *predictions.values())
+    return ModelTable(truth, dict(zip(predictions, preds)),
+                      None if fold is None else first[fold], source)
+
+
+def _aligned(path_a: Path, first: pd.DataFrame, path: Path, spec: PairSpec) -> pd.DataFrame:
+    """The table ``path`` in the row order of ``first``, joined on ``spec.id``; truth checked."""
+    other = read_table(path)
+    _need(path, other, [spec.id, spec.pred])
+    ids_a, ids_b = _same_kind(first[spec.id], other[spec.id])
+    _check_ids(path_a, path, ids_a, ids_b, spec.id)
+    other = other.iloc[pd.Index(ids_b).get_indexer(ids_a)].reset_index(drop=True)
+    if spec.truth in other.columns:
+        t_a, t_b = _same_kind(first[spec.truth], other[spec.truth])
+        differ = (t_a.astype(object) != t_b.astype(object)).to_numpy()
+        if differ.any():
+            raise InvalidInputError(
+                f"{path_a.name} and {path.name} disagree on column {spec.truth!r} for "
+                f"{int(differ.sum())} of {len(first)} ids (first id "
+                f"{ids_a.iloc[int(differ.nonzero()[0][0])]!r}); every table must describe the "
+                "same samples")
+    return other
