@@ -197,6 +197,9 @@ def get_parser() -> argparse.ArgumentParser:
                        help="prediction table, a folder or a quoted glob of them, "
                             "or a counts matrix")
     _add_table_options(score)
+    score.add_argument("--cluster", default=UNSET, metavar="COL",
+                       help="column of cluster ids (specimen, site, patient): intervals resample "
+                            "whole clusters, within folds; the table is read whole")
     _add_source_options(score)
     _add_report_options(score)
     _add_save_options(score)

@@ -58,6 +58,11 @@ def run_score(args) -> int:
     from foldcorr.pipeline import score
 
     given = given_options(args)
+    if given.get("cluster") is not None and getattr(args, "save", None):
+        from foldcorr.errors import OptionError
+
+        raise OptionError("`--save` keeps counts, not the samples' clusters, so a saved run "
+                          "could not show its clustered intervals again; drop --save or --cluster")
     options, table = _split(given)
     _check_save(args, args.path)
     ev = score(args.path, names=flag_names(), progress=False if args.quiet else None, **table,

@@ -22,16 +22,17 @@ __all__ = ["TABLE_OPTIONS", "MULTILABEL_OPTIONS", "KINDS", "score", "evaluate_wi
 #: Options naming the multilabel layout of a table; any of them makes a source multilabel.
 MULTILABEL_OPTIONS = ("truth_cols", "pred_cols", "truth_prefix", "pred_prefix", "sep")
 #: Options describing how a source is read (see :func:`load_source`).
-TABLE_OPTIONS = ("truth", "pred", "fold", "weight", "classes", "where", "matrix", "engine",
+TABLE_OPTIONS = ("truth", "pred", "fold", "weight", "classes", "cluster", "where", "matrix", "engine",
                  "scheduler", "skip_bad_files", "progress", *MULTILABEL_OPTIONS)
 _SPEC_KEYS = ("truth", "pred", "fold", "weight", "classes")
 
 
 # ----------------------------------------------------------------------------
-# analyses: each is (evaluation, options) -> evaluation, unchanged when not asked for
+# analyses: each is (evaluation, options, samples) -> evaluation, unchanged when not
+# asked for; samples holds per-sample data beside the tensor (``cluster``: ClusterCells)
 
 
-def _skipped_files(ev, options):
+def _skipped_files(ev, options, samples):
     if not ev.tensor.attrs.get("skipped_files"):
         return ev
     from foldcorr.sources.stream import SkippedFiles
@@ -39,7 +40,7 @@ def _skipped_files(ev, options):
     return ev.with_extra("skipped_files", SkippedFiles.of(ev.tensor))
 
 
-def _shift(ev, options):
+def _shift(ev, options, samples):
     if options.prevalence is None:
         return ev
     from foldcorr.analysis.shift import shifted_figures
@@ -48,7 +49,7 @@ def _shift(ev, options):
                                                     undefined=ev.undefined))
 
 
-def _repair(ev, options):
+def _repair(ev, options, samples):
     from foldcorr.analysis.repair import repair_analysis
 
     # complete: every confusion is ranked and kept (JSON carries them all); reports cut to --top
@@ -63,7 +64,7 @@ _INTERVALS = {
 }
 
 
-def _intervals(ev, options):
+def _intervals(ev, options, samples):
     settings = options.interval_settings()
     if settings is None:
         return ev
@@ -71,7 +72,8 @@ def _intervals(ev, options):
 
     key, module, name = _INTERVALS[ev.kind]
     compute = getattr(importlib.import_module(module), name)
-    return ev.with_extra(key, compute(ev.tensor, **settings, undefined=ev.undefined))
+    more = {} if samples.get("cluster") is None else {"cluster": samples["cluster"]}
+    return ev.with_extra(key, compute(ev.tensor, **settings, **more, undefined=ev.undefined))
 
 
 #: Per tensor kind: its analyses, in the order they run (one evaluation serves every kind).
@@ -82,7 +84,7 @@ KINDS = {
 }
 
 
-def evaluate_with(tensor, options: ScoreOptions | None = None):
+def evaluate_with(tensor, options: ScoreOptions | None = None, *, cluster=None):
     """Evaluate a tensor in memory and run the analyses of ``options`` on it.
 
     Parameters
@@ -92,6 +94,8 @@ def evaluate_with(tensor, options: ScoreOptions | None = None):
         ``([fold,] label, actual, predicted)`` for multilabel.
     options : ScoreOptions, optional
         Default: ``ScoreOptions()``.
+    cluster : foldcorr.tensor.ClusterCells, optional
+        The same samples counted by cluster: intervals resample whole clusters.
 
     Returns
     -------
@@ -111,7 +115,7 @@ def evaluate_with(tensor, options: ScoreOptions | None = None):
     ev = evaluate(tensor, undefined=options.undefined)
     for name, step in KINDS[ev.kind]:
         if name in options.analyses:
-            ev = step(ev, options)
+            ev = step(ev, options, {"cluster": cluster})
     return ev
 
 
@@ -235,7 +239,35 @@ def score(source, *, names: Mapping | None = None, **options):
             raise OptionError(f"table options {sorted(table)!r} describe a file; a tensor in "
                               "memory takes only the options of ScoreOptions")
         return evaluate_with(source, chosen)
+    if table.get("cluster") is not None:
+        cells = _load_clustered(source, table, option_namer(names))
+        tensor = cells.tensor().assign_attrs(source=Path(source).name,
+                                              cluster_column=table["cluster"])
+        return evaluate_with(tensor, chosen, cluster=cells)
+    table.pop("cluster", None)
     return evaluate_with(load_source(source, names=names, **table), chosen)
+
+
+#: Table options that do not combine with ``cluster`` (the table is read whole, unweighted).
+_NOT_WITH_CLUSTER = ("weight", "where", "matrix", "engine", "scheduler", "skip_bad_files",
+                     *MULTILABEL_OPTIONS)
+
+
+def _load_clustered(source, table: dict, name):
+    """The samples of a prediction table by cluster (``cluster`` option)."""
+    wrong = [k for k in _NOT_WITH_CLUSTER if table.get(k) not in (None, False, "local")]
+    if wrong:
+        raise OptionError(f"`{name('cluster')}` reads a prediction table whole and unweighted; "
+                          f"it does not combine with `{name(wrong[0])}`")
+    from foldcorr.sources.saved import is_saved_path
+
+    if is_saved_path(source):
+        raise OptionError(f"`{name('cluster')}` needs the prediction table; a saved evaluation "
+                          "holds counts, not the samples' clusters")
+    from foldcorr.sources.paired import load_clustered
+
+    return load_clustered(source, **{k: table[k] for k in (*_SPEC_KEYS, "cluster")
+                                     if k in table and k != "weight"})
 
 
 def replay(path, *, names: Mapping | None = None, **overrides) -> tuple:

@@ -40,8 +40,10 @@ def summary_notes(ev) -> dict:
     """The pooled R_K interval, as text beside R_K."""
     u = ev.extras[KEY]
     r = u.rk
-    return {"rk": f"{percent(u.level)} CI {_span(r.low, r.high)} "
-                  f"({u.method}, {u.n_resamples} resamples)"}
+    how = f"{u.method}, {u.n_resamples} resamples"
+    if getattr(u, "n_clusters", None) is not None:
+        how += f", {u.n_clusters} clusters, design effect {u.design_effect:.2f}"
+    return {"rk": f"{percent(u.level)} CI {_span(r.low, r.high)} ({how})"}
 
 
 def fold_columns(ev) -> list:
@@ -125,4 +127,5 @@ def json(ev, doc) -> None:
             "averaged_rk": None if f is None else f.mean,
         })
     doc["ci"] = {"level": u.level, "method": u.method, "resamples": u.n_resamples,
-                 "seed": u.seed}
+                 "seed": u.seed, "clusters": getattr(u, "n_clusters", None),
+                 "design_effect": getattr(u, "design_effect", None)}

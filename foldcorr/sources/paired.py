@@ -21,7 +21,8 @@ from foldcorr.sources.problems import file_error
 from foldcorr.sources.tables import classes_like, read_table, text_labels
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_columns
 
-__all__ = ["PairSpec", "load_joint", "ModelTable", "load_models"]
+__all__ = ["PairSpec", "load_joint", "ModelTable", "load_models", "same_kind",
+           "load_clustered"]
 
 
 @dataclass(frozen=True)
@@ -70,7 +71,14 @@ def _first(values) -> str:
     return repr(values.iloc[0].item() if hasattr(values.iloc[0], "item") else values.iloc[0])
 
 
-def _same_kind(*columns: pd.Series) -> list[pd.Series]:
+def same_kind(*columns: pd.Series) -> list[pd.Series]:
+    """Label columns compared in one type: all as text when numeric meets non-numeric.
+
+    Examples
+    --------
+    >>> [c.tolist() for c in same_kind(pd.Series([1, 2]), pd.Series(["1", "x"]))]
+    [['1', '2'], ['1', 'x']]
+    """
     numeric = {pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s)
                for s in columns}
     return [text_labels(s) for s in columns] if len(numeric) > 1 else list(columns)
@@ -134,13 +142,13 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
         _need(path, df, [spec.id, spec.truth, col_a, fold])
         other = read_table(path_b)
         _need(path_b, other, [spec.id, col_b])
-        ids_a, ids_b = _same_kind(df[spec.id], other[spec.id])
+        ids_a, ids_b = same_kind(df[spec.id], other[spec.id])
         _check_ids(path, path_b, ids_a, ids_b, spec.id)
         position = pd.Index(ids_b).get_indexer(ids_a)
         other = other.iloc[position].reset_index(drop=True)
         df = df.reset_index(drop=True)
         if spec.truth in other.columns:
-            t_a, t_b = _same_kind(df[spec.truth], other[spec.truth])
+            t_a, t_b = same_kind(df[spec.truth], other[spec.truth])
             differ = (t_a.astype(object) != t_b.astype(object)).to_numpy()
             if differ.any():
                 first = ids_a.iloc[int(differ.nonzero()[0][0])]
@@ -151,7 +159,7 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
         truth, a, b = df[spec.truth], df[col_a], other[col_b]
         names = (spec.truth, col_a, col_b)
         source = f"{path.name} + {path_b.name}"
-    truth, a, b = _same_kind(truth, a, b)
+    truth, a, b = same_kind(truth, a, b)
     classes = None if spec.classes is None else classes_like(spec.classes, truth)
     if path_b is not None:  # B's labels checked in B's own row order, before the join's
         try:
@@ -275,7 +283,7 @@ def load_models(paths, spec: PairSpec = PairSpec(), *, models=None) -> ModelTabl
             table = first if path == paths[0] else _aligned(paths[0], first, path, spec)
             predictions[name] = table[spec.pred]
         source = " + ".join(p.name for p in paths)
-    truth, *preds = _same_kind(first[spec.truth], *predictions.values())
+    truth, *preds = same_kind(first[spec.truth], *predictions.values())
     return ModelTable(truth, dict(zip(predictions, preds)),
                       None if fold is None else first[fold], source)
 
@@ -284,11 +292,11 @@ def _aligned(path_a: Path, first: pd.DataFrame, path: Path, spec: PairSpec) -> p
     """The table ``path`` in the row order of ``first``, joined on ``spec.id``; truth checked."""
     other = read_table(path)
     _need(path, other, [spec.id, spec.pred])
-    ids_a, ids_b = _same_kind(first[spec.id], other[spec.id])
+    ids_a, ids_b = same_kind(first[spec.id], other[spec.id])
     _check_ids(path_a, path, ids_a, ids_b, spec.id)
     other = other.iloc[pd.Index(ids_b).get_indexer(ids_a)].reset_index(drop=True)
     if spec.truth in other.columns:
-        t_a, t_b = _same_kind(first[spec.truth], other[spec.truth])
+        t_a, t_b = same_kind(first[spec.truth], other[spec.truth])
         differ = (t_a.astype(object) != t_b.astype(object)).to_numpy()
         if differ.any():
             raise InvalidInputError(
@@ -297,3 +305,46 @@ def _aligned(path_a: Path, first: pd.DataFrame, path: Path, spec: PairSpec) -> p
                 f"{ids_a.iloc[int(differ.nonzero()[0][0])]!r}); every table must describe the "
                 "same samples")
     return other
+
+
+def load_clustered(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
+                   cluster: str, classes=None):
+    """Read a prediction table whole and count its samples by cluster (and fold).
+
+    Parameters
+    ----------
+    path : str or path-like
+        A prediction table (CSV, Parquet, JSON Lines).
+    truth, pred, fold : str
+        Column roles, as for :func:`foldcorr.sources.load`.
+    cluster : str
+        Column of cluster ids: samples sharing one are resampled together.
+    classes : sequence, optional
+        Fixed class order.
+
+    Returns
+    -------
+    foldcorr.tensor.ClusterCells
+        Its ``tensor()`` is the table's confusion tensor.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "p.csv"
+    >>> _ = p.write_text("actual,predicted,site\\nx,x,s1\\ny,x,s1\\ny,y,s2\\n")
+    >>> load_clustered(p, cluster="site").n_clusters
+    2
+    """
+    from foldcorr.tensor import cluster_tally
+
+    path = Path(path)
+    df = read_table(path)
+    fold = FOLD if fold == "auto" and FOLD in df.columns else (None if fold == "auto" else fold)
+    _need(path, df, [truth, pred, cluster, fold])
+    actual, predicted = same_kind(df[truth], df[pred])
+    chosen = None if classes is None else classes_like(classes, actual)
+    try:
+        return cluster_tally(actual, predicted, cluster=df[cluster],
+                             folds=None if fold is None else df[fold], classes=chosen)
+    except InvalidInputError as exc:
+        raise file_error(path, str(exc)) from None
