@@ -23,7 +23,7 @@ __all__ = ["TABLE_OPTIONS", "MULTILABEL_OPTIONS", "KINDS", "score", "evaluate_wi
 MULTILABEL_OPTIONS = ("truth_cols", "pred_cols", "truth_prefix", "pred_prefix", "sep")
 #: Options describing how a source is read (see :func:`load_source`).
 TABLE_OPTIONS = ("truth", "pred", "fold", "weight", "classes", "where", "matrix", "engine",
-                 "scheduler", "skip_bad_files", "progress", *MULTILABEL_OPTIONS)
+                 "scheduler", "skip_bad_files", "progress", "count", *MULTILABEL_OPTIONS)
 _SPEC_KEYS = ("truth", "pred", "fold", "weight", "classes")
 
 
