@@ -80,6 +80,10 @@ def test_hive_filter_prunes_files_and_mixes_with_file_columns(tmp_path):
     labels, ref = _sklearn(keep)
     t = load(tmp_path / "runs", where='fold != 1 and split == "test"', classes=labels)
     np.testing.assert_array_equal(t.values, ref)
+    expr = (pc.field("fold") != 1) & (pc.field("split") == "test")
+    np.testing.assert_array_equal(load(tmp_path / "runs", where=expr, classes=labels).values, ref)
+    t = load(tmp_path / "runs", where='fold == 1 and split == "test"')
+    assert t.coords["fold"].values.tolist() == [1] and t.attrs["n_files"] == 1
     with pytest.raises(InvalidInputError, match="^runs: no rows pass the filter"):
         load(tmp_path / "runs", where="fold == 7")
 

@@ -160,3 +160,21 @@ def test_dask_counts_equal_the_expanded_rows(client, tmp_path):
         t = tally_dataset(source, engine="dask", scheduler=client, count="n").tensor
         assert t.dtype == np.int64
         np.testing.assert_array_equal(t.values, ref)
+
+
+def test_dask_reads_hive_partitions_like_the_local_engine(client, tmp_path):
+    import pyarrow as pa
+    import pyarrow.dataset as ds
+
+    (tmp_path / "flat").mkdir()
+    whole = _dataset(tmp_path / "flat", n_files=1)
+    ds.write_dataset(pa.Table.from_pandas(whole, preserve_index=False), tmp_path / "runs",
+                     format="parquet", partitioning=["fold"], partitioning_flavor="hive")
+    labels, ref = _reference(whole)
+    t = tally_dataset(tmp_path / "runs", engine="dask", scheduler=client).tensor
+    # sklearn.metrics.confusion_matrix per fold on the concatenated rows
+    np.testing.assert_array_equal(t.values, ref)
+    one = tally_dataset(tmp_path / "runs", engine="dask", scheduler=client,
+                        where='fold == "b"').tensor
+    assert one.coords["fold"].values.tolist() == ["b"]
+    np.testing.assert_array_equal(one.sel(fold="b").values, ref[1])

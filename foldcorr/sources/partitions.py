@@ -4,8 +4,10 @@ A dataset written by Spark, Dask or Arrow as ``runs/fold=3/part-0.parquet``
 holds ``fold`` 3 in every row of that file. :func:`hive_partitions` reads the
 folders between the dataset's root and each file, :func:`typed_partitions`
 types the values alike over the dataset, :func:`excluded` prunes a file whose
-partition values fail a filter that names only them (the file is never
-opened), and :func:`with_partitions` adds the values to each record batch.
+partition values fail the parts of a filter that name only them (the file is
+never opened), the parts naming none of them are pushed down to the file's
+reader (:func:`conjuncts`), and :func:`with_partitions` adds the values to
+each record batch, which the whole filter then checks.
 """
 
 from __future__ import annotations
@@ -15,9 +17,10 @@ import re
 from pathlib import Path
 
 from foldcorr.sources.locations import RemoteFile, is_url
+from foldcorr.sources.where import Where
 
-__all__ = ["HIVE_NULL", "hive_partitions", "partition_types", "typed_partitions", "excluded",
-           "with_partitions"]
+__all__ = ["HIVE_NULL", "hive_partitions", "partition_types", "typed_partitions", "conjuncts",
+           "excluded", "with_partitions"]
 
 _HIVE = re.compile(r"^([A-Za-z_][A-Za-z0-9_.]*)=(.*)$")
 #: The folder value hive writers give a missing partition value.
@@ -126,8 +129,41 @@ def typed_partitions(path, files, text: bool = False) -> dict:
             for f, parts in raw.items()}
 
 
+def conjuncts(where, parts, *, naming: bool) -> object:
+    """The ``and``-joined parts of a filter that name partition columns only (``naming``) or
+    none of them (not ``naming``), as one filter; None when there are none.
+
+    A filter that is not an ``and`` chain is one part. An Arrow expression
+    cannot be split: it counts as naming partition columns when it reads any.
+
+    Examples
+    --------
+    >>> from foldcorr.sources.where import as_where
+    >>> w = as_where("fold != 1 and split == 'test'")
+    >>> conjuncts(w, {"fold": None}, naming=True).tree
+    ('cmp', 'fold', '!=', 1)
+    >>> conjuncts(w, {"fold": None}, naming=False).tree
+    ('cmp', 'split', '==', 'test')
+    """
+    if where is None:
+        return None
+    names = set(parts)
+
+    def fits(columns) -> bool:
+        return set(columns) <= names if naming else not set(columns) & names
+
+    if not isinstance(where, Where):
+        return where if fits(where.columns) else None
+    nodes = where.tree[1:] if where.tree[0] == "and" else (where.tree,)
+    keep = [n for n in nodes if fits(Where(where.text, n).columns)]
+    if not keep:
+        return None
+    return Where(where.text, keep[0] if len(keep) == 1 else ("and", *keep))
+
+
 def excluded(where, parts) -> bool:
-    """Whether a file's partition values alone exclude it (a filter naming only them).
+    """Whether a file's partition values alone exclude it: the parts of the filter that name
+    only partition columns (see :func:`conjuncts`) hold for no row of it.
 
     Examples
     --------
@@ -136,14 +172,17 @@ def excluded(where, parts) -> bool:
     >>> excluded(as_where("fold == 1"), {"fold": pa.scalar(2)})
     True
     >>> excluded(as_where("fold == 1 and split == 'test'"), {"fold": pa.scalar(2)})
+    True
+    >>> excluded(as_where("fold == 1 or split == 'test'"), {"fold": pa.scalar(2)})
     False
     """
     import pyarrow as pa
 
-    if where is None or not parts or not set(where.columns) <= set(parts):
+    own = conjuncts(where, parts or {}, naming=True)
+    if own is None or not parts:
         return False
     table = pa.table({c: pa.array([v.as_py()], v.type) for c, v in parts.items()})
-    return table.filter(where.expression(table.schema)).num_rows == 0
+    return table.filter(own.expression(table.schema)).num_rows == 0
 
 
 def with_partitions(batch, parts: dict, columns, where=None):

@@ -19,7 +19,7 @@ from foldcorr.errors import FoldcorrError, InvalidInputError
 from foldcorr.sources.formats import TABLE_SUFFIXES
 from foldcorr.sources.locations import STDIN, BytesFile, is_url, list_url, read_stdin
 from foldcorr.sources.memory import is_memory_table, memory_table
-from foldcorr.sources.partitions import with_partitions
+from foldcorr.sources.partitions import conjuncts, with_partitions
 from foldcorr.sources.problems import UnreadableFile, file_error, first_line
 from foldcorr.tensor.coding import arrow_kind
 
@@ -151,8 +151,9 @@ def read_batches(f, fmt, columns, text_cols, where, batch_rows, partitions=None)
     """Record batches of one file, read ahead; read errors become skippable errors naming it.
 
     Partition columns (``key=value`` folders) are added to every batch as
-    constants; a filter that names none of them is pushed down to the reader,
-    any other is applied to the batches once those columns are added.
+    constants; the parts of the filter that name none of them are pushed down
+    to the reader, and the whole filter is applied once those columns are
+    added.
 
     Parameters
     ----------
@@ -191,13 +192,13 @@ def read_batches(f, fmt, columns, text_cols, where, batch_rows, partitions=None)
     [1]
     """
     parts = partitions or {}
-    inner = None if where is not None and set(where.columns) & set(parts) else where
+    inner = conjuncts(where, parts, naming=False) if parts else where
     read = fmt.batches(f, [c for c in columns if c not in parts],
                        [c for c in text_cols if c not in parts], inner, batch_rows)
     with contextlib.closing(prefetch(read, PREFETCH)) as it:
         for batch in _checked_batches(f, fmt, it, where):
             if parts:
-                batch = with_partitions(batch, parts, columns, where if inner is None else None)
+                batch = with_partitions(batch, parts, columns, where if inner is not where else None)
             yield batch
 
 
