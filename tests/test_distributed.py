@@ -134,3 +134,47 @@ def test_unreachable_scheduler(monkeypatch):
     monkeypatch.setattr(foldcorr.sources.cluster, "CONNECT_TIMEOUT", 1.0)
     with pytest.raises(EngineError, match="cannot reach the Dask scheduler"):
         tally_dataset(".", engine="dask", scheduler="tcp://127.0.0.1:9")
+
+
+def test_the_running_client_is_used_and_no_second_cluster_starts(client, tmp_path, monkeypatch):
+    whole = _dataset(tmp_path, n_files=3)
+    labels, ref = _reference(whole)
+
+    def no_second_cluster(*args, **kwargs):
+        raise AssertionError("a second cluster was started")
+
+    monkeypatch.setattr(distributed, "LocalCluster", no_second_cluster)
+    with client.as_current():
+        t = tally_dataset(tmp_path, engine="dask").tensor
+    # sklearn.metrics.confusion_matrix per fold on the concatenated rows
+    np.testing.assert_array_equal(t.values, ref)
+    assert client.status == "running"          # the caller's client is left open
+
+
+def test_dask_counts_equal_the_expanded_rows(client, tmp_path):
+    whole = _dataset(tmp_path, n_files=2)
+    labels, ref = _reference(whole)
+    counts = whole.groupby(["actual", "predicted", "fold"]).size().rename("n").reset_index()
+    counts.to_parquet(tmp_path / "counts.parquet")
+    for source in (dd.from_pandas(counts, npartitions=3), tmp_path / "counts.parquet"):
+        t = tally_dataset(source, engine="dask", scheduler=client, count="n").tensor
+        assert t.dtype == np.int64
+        np.testing.assert_array_equal(t.values, ref)
+
+
+def test_dask_reads_hive_partitions_like_the_local_engine(client, tmp_path):
+    import pyarrow as pa
+    import pyarrow.dataset as ds
+
+    (tmp_path / "flat").mkdir()
+    whole = _dataset(tmp_path / "flat", n_files=1)
+    ds.write_dataset(pa.Table.from_pandas(whole, preserve_index=False), tmp_path / "runs",
+                     format="parquet", partitioning=["fold"], partitioning_flavor="hive")
+    labels, ref = _reference(whole)
+    t = tally_dataset(tmp_path / "runs", engine="dask", scheduler=client).tensor
+    # sklearn.metrics.confusion_matrix per fold on the concatenated rows
+    np.testing.assert_array_equal(t.values, ref)
+    one = tally_dataset(tmp_path / "runs", engine="dask", scheduler=client,
+                        where='fold == "b"').tensor
+    assert one.coords["fold"].values.tolist() == ["b"]
+    np.testing.assert_array_equal(one.sel(fold="b").values, ref[1])

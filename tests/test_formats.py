@@ -14,6 +14,7 @@ from foldcorr.sources.formats import (
     CountsMatrixFormat,
     CsvFormat,
     JsonLinesFormat,
+    MemoryFormat,
     NetcdfFormat,
     ParquetFormat,
     format_of,
@@ -27,8 +28,8 @@ ENDINGS = {CsvFormat: (".csv", ".tsv"), ParquetFormat: (".parquet", ".pq"),
 
 def test_the_registry_lists_each_kind_of_file_once():
     assert [type(f) for f in FORMATS] == [NetcdfFormat, CountsMatrixFormat, CsvFormat,
-                                          ParquetFormat, JsonLinesFormat]
-    assert [f.name for f in TABLE_FORMATS] == ["csv", "parquet", "jsonl"]
+                                          ParquetFormat, JsonLinesFormat, MemoryFormat]
+    assert [f.name for f in TABLE_FORMATS] == ["csv", "parquet", "jsonl", "table in memory"]
     assert TABLE_SUFFIXES == {".csv": "csv", ".tsv": "tsv", ".parquet": "parquet",
                               ".pq": "parquet", ".jsonl": "jsonl", ".ndjson": "jsonl"}
 

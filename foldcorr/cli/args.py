@@ -96,6 +96,7 @@ def _add_table_options(p: argparse.ArgumentParser,
     p.add_argument("--fold", default=UNSET, metavar="COL",
                    help="column of fold labels (default: 'fold' when present)")
     p.add_argument("--weight", default=UNSET, metavar="COL", help="column of sample weights")
+    p.add_argument("--count", default=UNSET, metavar="COL", help="column of whole counts (rows already aggregated)")
     p.add_argument("--classes", type=_class_list, default=UNSET, metavar="A,B,...",
                    help="fixed class order; labels outside it are an error")
     p.add_argument("--matrix", action="store_true", default=UNSET, help=matrix_help)
@@ -119,6 +120,7 @@ def _add_source_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--scheduler", default=UNSET, metavar="ADDRESS",
                    help="Dask scheduler to use, e.g. tcp://scheduler.example:8786 (default: a local "
                         "cluster on 127.0.0.1, one worker per core)")
+    p.add_argument("--input-format", choices=("csv", "tsv", "jsonl", "parquet"), help="format of a table on standard input (PATH -); default: read from its first bytes")
     p.add_argument("--skip-bad-files", action="store_true", default=UNSET,
                    help="skip unreadable files of a dataset and report them, instead of stopping")
     p.add_argument("--quiet", action="store_true",

@@ -56,6 +56,7 @@ def _split(given: dict) -> tuple:
 
 def run_score(args) -> int:
     from foldcorr.pipeline import score
+    from foldcorr.sources.locations import read_stdin
 
     given = given_options(args)
     if given.get("cluster") is not None and getattr(args, "save", None):
@@ -65,7 +66,8 @@ def run_score(args) -> int:
                           "could not show its clustered intervals again; drop --save or --cluster")
     options, table = _split(given)
     _check_save(args, args.path)
-    ev = score(args.path, names=flag_names(), progress=False if args.quiet else None, **table,
+    source = args.path if args.path != "-" else read_stdin(input_format=args.input_format)
+    ev = score(source, names=flag_names(), progress=False if args.quiet else None, **table,
                **options.to_dict())
     request = _prepare_save(args, ev, options)
     for line in getattr(ev.extras.get("skipped_files"), "warnings", ()):
@@ -200,7 +202,7 @@ def check_targets(args) -> None:
               if isinstance(getattr(args, name, None), str)]
     for name in TARGET_OPTIONS:
         path = getattr(args, name, None)
-        if not path:
+        if not path or path == "-":  # standard output
             continue
         target = Path(path)
         folder = target.parent if str(target.parent) else Path(".")
@@ -368,8 +370,8 @@ def emit(args, result, **context) -> None:
 
 
 def write_out(target, text: str) -> None:
-    """Write ``text`` to the file ``target`` (replaced whole), or to stdout when it is None."""
-    if target:
+    """Write ``text`` to the file ``target`` (replaced whole), or to stdout when it is None or -."""
+    if target and target != "-":
         from foldcorr._files import write_text
 
         write_text(target, text)

@@ -22,8 +22,9 @@ __all__ = ["TABLE_OPTIONS", "MULTILABEL_OPTIONS", "KINDS", "score", "evaluate_wi
 #: Options naming the multilabel layout of a table; any of them makes a source multilabel.
 MULTILABEL_OPTIONS = ("truth_cols", "pred_cols", "truth_prefix", "pred_prefix", "sep")
 #: Options describing how a source is read (see :func:`load_source`).
-TABLE_OPTIONS = ("truth", "pred", "fold", "weight", "classes", "cluster", "where", "matrix", "engine",
-                 "scheduler", "skip_bad_files", "progress", *MULTILABEL_OPTIONS)
+TABLE_OPTIONS = ("truth", "pred", "fold", "weight", "classes", "cluster", "where", "matrix",
+                 "engine", "scheduler", "skip_bad_files", "progress", "count",
+                 *MULTILABEL_OPTIONS)
 _SPEC_KEYS = ("truth", "pred", "fold", "weight", "classes")
 
 
@@ -249,8 +250,8 @@ def score(source, *, names: Mapping | None = None, **options):
 
 
 #: Table options that do not combine with ``cluster`` (the table is read whole, unweighted).
-_NOT_WITH_CLUSTER = ("weight", "where", "matrix", "engine", "scheduler", "skip_bad_files",
-                     *MULTILABEL_OPTIONS)
+_NOT_WITH_CLUSTER = ("weight", "count", "where", "matrix", "engine", "scheduler",
+                     "skip_bad_files", *MULTILABEL_OPTIONS)
 
 
 def _load_clustered(source, table: dict, name):

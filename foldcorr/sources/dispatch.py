@@ -10,11 +10,12 @@ streamed in this process, or on a Dask cluster).
 from __future__ import annotations
 
 import os
-from pathlib import Path
 
 from foldcorr.errors import OptionError, check_choice
 from foldcorr.sources.formats import FORMATS, FileFormat
+from foldcorr.sources.locations import BytesFile
 from foldcorr.sources.matrix import reorder_classes
+from foldcorr.sources.memory import memory_table
 from foldcorr.sources.reading import BATCH_ROWS
 from foldcorr.sources.stream import StreamResult, stream_tensor
 from foldcorr.sources.tables import TableSpec
@@ -44,7 +45,7 @@ def counts_format(source, *, matrix: bool = False) -> FileFormat | None:
 def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
          weight: str | None = None, classes=None, where=None, matrix: bool = False,
          engine: str = "local", scheduler=None, skip_bad_files: bool = False,
-         progress: bool | None = False):
+         progress: bool | None = False, count: str | None = None):
     """Read any source into a confusion tensor.
 
     Prediction tables are streamed batch by batch (see
@@ -54,11 +55,16 @@ def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None
 
     Parameters
     ----------
-    source : str, path-like or dask.dataframe.DataFrame
-        A prediction table, a folder or a glob of them; a counts matrix CSV
-        when ``matrix`` is true; a saved evaluation (``.nc``, see
-        :mod:`foldcorr.sources.saved`), which stands wherever a table can; or,
-        with ``engine="dask"``, a Dask DataFrame.
+    source : str, path-like, URL, ``"-"`` or a table in memory
+        A prediction table, a folder or a glob of them, local or at a URL
+        (``s3://``, ``gs://``, ``file://``, ``memory://``, any fsspec
+        protocol; ``key=value`` folders are columns, see
+        :mod:`foldcorr.sources.partitions`); ``"-"`` for standard input; a
+        pandas or polars DataFrame, an Arrow table, record batch reader or
+        dataset, or a Dask DataFrame (see :mod:`foldcorr.sources.memory`); a
+        counts matrix CSV when ``matrix`` is true; a saved evaluation
+        (``.nc``, see :mod:`foldcorr.sources.saved`), which stands wherever a
+        table can.
     truth, pred : str
         Columns of actual and predicted labels.
     fold : str or None, default "auto"
@@ -68,7 +74,7 @@ def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None
     classes : sequence, optional
         Fixed class order; labels outside it are an error. With a counts
         matrix or a saved evaluation, a new order of its classes.
-    where : str or Where, optional
+    where : str, Where or pyarrow.compute.Expression, optional
         Row filter, e.g. ``'split == "test"'`` (see
         :func:`foldcorr.sources.where.parse_where`).
     matrix : bool, default False
@@ -81,6 +87,9 @@ def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None
         Skip unreadable files of a dataset (listed in ``attrs["skipped_files"]``).
     progress : bool or None, default False
         Progress bar on stderr; None shows it when stderr is a terminal.
+    count : str, optional
+        Column of whole counts: rows already aggregated (see
+        :mod:`foldcorr.sources.counts`); the tensor stays int64.
 
     Returns
     -------
@@ -107,14 +116,16 @@ def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None
     """
     fmt = counts_format(source, matrix=matrix)
     if fmt is not None:
-        spec = TableSpec(truth=truth, pred=pred, fold=fold, weight=weight, classes=classes)
+        spec = TableSpec(truth=truth, pred=pred, fold=fold, weight=weight or count,
+                         classes=classes)
         fmt.check_options(source, spec, matrix=matrix, where=where,
                           skip_bad_files=skip_bad_files, engine=engine, scheduler=scheduler)
         t = fmt.tensor(source)
         return t if classes is None else reorder_classes(source, t, classes, fmt.title)
     return tally_dataset(source, truth=truth, pred=pred, fold=fold, weight=weight,
                          classes=classes, where=where, skip_bad_files=skip_bad_files,
-                         progress=progress, engine=engine, scheduler=scheduler).tensor
+                         progress=progress, engine=engine, scheduler=scheduler,
+                         count=count).tensor
 
 
 def load_tensor(path, spec: TableSpec = TableSpec(), **options):
@@ -122,7 +133,7 @@ def load_tensor(path, spec: TableSpec = TableSpec(), **options):
 
     The name the command line uses; ``options`` are those of :func:`load`
     (``matrix``, ``where``, ``skip_bad_files``, ``progress``, ``engine``,
-    ``scheduler``).
+    ``scheduler``, ``count``).
 
     Examples
     --------
@@ -139,24 +150,26 @@ def load_tensor(path, spec: TableSpec = TableSpec(), **options):
 def tally_dataset(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
                   weight: str | None = None, classes=None, where=None,
                   skip_bad_files: bool = False, progress: bool | None = None,
-                  engine: str = "local", scheduler=None, batch_rows: int = BATCH_ROWS
-                  ) -> StreamResult:
+                  engine: str = "local", scheduler=None, batch_rows: int = BATCH_ROWS,
+                  count: str | None = None) -> StreamResult:
     """Tally a dataset on this machine (streaming) or on a Dask cluster.
 
     Parameters
     ----------
-    data : str, path-like or dask.dataframe.DataFrame
-        A file, folder or glob of prediction tables; with ``engine="dask"``
-        also a Dask DataFrame.
-    truth, pred, fold, weight, classes, where, skip_bad_files, progress, batch_rows
+    data : str, path-like, URL, ``"-"`` or a table in memory
+        A file, folder or glob of prediction tables, local or at a URL;
+        standard input (``"-"``); or a table in memory (see :func:`load`).
+    truth, pred, fold, weight, classes, where, skip_bad_files, progress, batch_rows, count
         As in :func:`foldcorr.sources.stream.stream_tensor`.
     engine : {"local", "dask"}, default "local"
-        ``"local"`` streams in this process; ``"dask"`` tallies each piece
-        on the workers of a Dask cluster and sums the partial tallies in a
-        tree (see :func:`foldcorr.sources.cluster.dask_tally`).
-    scheduler : str, optional
+        ``"local"`` streams in this process (a Dask DataFrame partition by
+        partition); ``"dask"`` tallies each piece on the workers of a Dask
+        cluster and sums the partial tallies with Dask's tree reduction (see
+        :func:`foldcorr.sources.cluster.dask_tally`).
+    scheduler : str or distributed.Client, optional
         Address of a running Dask scheduler, e.g. ``"tcp://scheduler.example:8786"``.
-        Without it a ``distributed.LocalCluster`` on 127.0.0.1 with one
+        Without it the running Dask client is used (``distributed.get_client``);
+        without one, a ``distributed.LocalCluster`` on 127.0.0.1 with one
         worker per core is started for the run and shut down after.
 
     Returns
@@ -186,14 +199,13 @@ def tally_dataset(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
     if engine == "local":
         if scheduler is not None:
             raise OptionError(f"`scheduler` needs engine 'dask'; got engine {engine!r}")
-        if not isinstance(data, (str, Path)):
-            raise OptionError(f"engine 'local' reads a file, folder or glob; got "
-                              f"{type(data).__name__!r} (use engine 'dask' for a Dask DataFrame)")
+        if not isinstance(data, (str, os.PathLike, BytesFile)):
+            data = memory_table(data)
         return stream_tensor(data, truth=truth, pred=pred, fold=fold, weight=weight,
                              classes=classes, where=where, skip_bad_files=skip_bad_files,
-                             progress=progress, batch_rows=batch_rows)
+                             progress=progress, batch_rows=batch_rows, count=count)
     from foldcorr.sources.cluster import dask_tally
 
     return dask_tally(data, truth=truth, pred=pred, fold=fold, weight=weight, classes=classes,
                       where=where, skip_bad_files=skip_bad_files, progress=progress,
-                      scheduler=scheduler, batch_rows=batch_rows)
+                      scheduler=scheduler, batch_rows=batch_rows, count=count)

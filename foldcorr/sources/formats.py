@@ -14,13 +14,15 @@ from __future__ import annotations
 import io
 from pathlib import Path
 
+from foldcorr.sources.locations import BytesFile, RemoteFile, input_of, open_dataset, size_of
 from foldcorr.sources.matrix import read_matrix
+from foldcorr.sources.memory import MemoryTable
 from foldcorr.sources.problems import UnreadableFile, file_error
 from foldcorr.sources.saved import SAVED_SUFFIXES, check_saved_options, is_saved_path, load_saved
 from foldcorr.tensor.coding import arrow_kind
 
 __all__ = ["FileFormat", "CsvFormat", "ParquetFormat", "JsonLinesFormat", "CountsMatrixFormat",
-           "NetcdfFormat", "FORMATS", "TABLE_FORMATS", "TABLE_SUFFIXES", "format_for",
+           "NetcdfFormat", "MemoryFormat", "FORMATS", "TABLE_FORMATS", "TABLE_SUFFIXES", "format_for",
            "format_of", "BLOCK_BYTES", "BATCH_READAHEAD"]
 
 #: Bytes per CSV / JSON Lines block.
@@ -56,7 +58,7 @@ class FileFormat:
 
     def can_open(self, path, *, matrix: bool = False) -> bool:
         """Whether this format reads ``path`` (``matrix``: a counts matrix is asked for)."""
-        return Path(path).suffix.lower() in self.suffixes and not matrix
+        return Path(str(path)).suffix.lower() in self.suffixes and not matrix
 
     def name_of(self, path) -> str:
         """The format's name for ``path`` in messages."""
@@ -113,7 +115,7 @@ class CsvFormat(FileFormat):
     text = True
 
     def name_of(self, path) -> str:
-        return "tsv" if Path(path).suffix.lower() == ".tsv" else "csv"
+        return "tsv" if Path(str(path)).suffix.lower() == ".tsv" else "csv"
 
     def _sep(self, path) -> str:
         return "\t" if self.name_of(path) == "tsv" else ","
@@ -126,9 +128,9 @@ class CsvFormat(FileFormat):
     def schema(self, path):
         import pyarrow.csv as pcsv
 
-        if Path(path).stat().st_size == 0:
+        if size_of(path) == 0:
             raise UnreadableFile(file_error(path, "the file is empty"))
-        reader = pcsv.open_csv(path, read_options=pcsv.ReadOptions(block_size=1 << 16),
+        reader = pcsv.open_csv(input_of(path), read_options=pcsv.ReadOptions(block_size=1 << 16),
                                parse_options=self._parse_options(path),
                                convert_options=pcsv.ConvertOptions(
                                    column_types=_AllText(), strings_can_be_null=True))
@@ -139,7 +141,7 @@ class CsvFormat(FileFormat):
         import pyarrow.csv as pcsv
 
         reader = pcsv.open_csv(
-            path, read_options=pcsv.ReadOptions(block_size=BLOCK_BYTES),
+            input_of(path), read_options=pcsv.ReadOptions(block_size=BLOCK_BYTES),
             parse_options=self._parse_options(path),
             convert_options=pcsv.ConvertOptions(
                 include_columns=columns, strings_can_be_null=True,
@@ -150,15 +152,15 @@ class CsvFormat(FileFormat):
     def frame(self, path, columns=None):
         import pandas as pd
 
-        if Path(path).stat().st_size == 0:
+        if size_of(path) == 0:
             raise file_error(path, "the file is empty")
         usecols = None if columns is None else (lambda c: c in set(columns))
-        return pd.read_csv(path, sep=self._sep(path), usecols=usecols, encoding="utf-8-sig")
+        return pd.read_csv(input_of(path), sep=self._sep(path), usecols=usecols, encoding="utf-8-sig")
 
     def column_names(self, path) -> list:
         import pandas as pd
 
-        return list(pd.read_csv(path, sep=self._sep(path), nrows=0, encoding="utf-8-sig").columns)
+        return list(pd.read_csv(input_of(path), sep=self._sep(path), nrows=0, encoding="utf-8-sig").columns)
 
 
 class ParquetFormat(FileFormat):
@@ -170,13 +172,13 @@ class ParquetFormat(FileFormat):
     def schema(self, path):
         import pyarrow.parquet as pq
 
-        return pq.read_schema(path)
+        return pq.read_schema(input_of(path))
 
     def batches(self, path, columns, text_columns, where, batch_rows: int):
         import pyarrow as pa
         import pyarrow.dataset as ds
 
-        dataset = ds.dataset(path, format="parquet")
+        dataset = open_dataset(path, "parquet")
         expr = None if where is None else where.expression(dataset.schema)
         # Text labels are read as they are stored, a dictionary of the distinct
         # values and int32 indices: the coder then maps the small dictionary,
@@ -186,7 +188,7 @@ class ParquetFormat(FileFormat):
                          and arrow_kind(dataset.schema.field(c).type) == "text"
                          and not pa.types.is_dictionary(dataset.schema.field(c).type)]
         if as_dictionary:
-            dataset = ds.dataset(path, format=ds.ParquetFileFormat(
+            dataset = open_dataset(path, ds.ParquetFileFormat(
                 read_options=ds.ParquetReadOptions(dictionary_columns=as_dictionary)))
         yield from dataset.to_batches(columns=columns, filter=expr, batch_size=batch_rows,
                                       batch_readahead=BATCH_READAHEAD, fragment_readahead=1)
@@ -196,7 +198,7 @@ class ParquetFormat(FileFormat):
 
         names = self.schema(path).names
         cols = None if columns is None else [c for c in columns if c in names]
-        return pq.read_table(path, columns=cols).to_pandas()
+        return pq.read_table(input_of(path), columns=cols).to_pandas()
 
 
 class JsonLinesFormat(FileFormat):
@@ -217,7 +219,7 @@ class JsonLinesFormat(FileFormat):
         import pyarrow.json as pjson
 
         def selected():
-            reader = pjson.open_json(path,
+            reader = pjson.open_json(input_of(path),
                                      read_options=pjson.ReadOptions(block_size=BLOCK_BYTES))
             for batch in reader:
                 missing = [c for c in columns if c not in batch.schema.names]
@@ -230,13 +232,13 @@ class JsonLinesFormat(FileFormat):
     def frame(self, path, columns=None):
         import pandas as pd
 
-        df = pd.read_json(path, lines=True)
+        df = pd.read_json(input_of(path), lines=True)
         return df if columns is None else df[[c for c in columns if c in df.columns]]
 
     def column_names(self, path) -> list:
         import pandas as pd
 
-        return list(pd.read_json(path, lines=True, nrows=1).columns)
+        return list(pd.read_json(input_of(path), lines=True, nrows=1).columns)
 
 
 class CountsMatrixFormat(FileFormat):
@@ -278,9 +280,34 @@ class NetcdfFormat(FileFormat):
         check_saved_options(path, spec, **options)
 
 
+class MemoryFormat(FileFormat):
+    """A table already in memory (see :mod:`foldcorr.sources.memory`): typed, like Parquet."""
+
+    name = "table in memory"
+
+    def can_open(self, path, *, matrix: bool = False) -> bool:
+        return isinstance(path, MemoryTable)
+
+    def name_of(self, path) -> str:
+        return path.kind
+
+    def schema(self, path):
+        return path.schema()
+
+    def batches(self, path, columns, text_columns, where, batch_rows: int):
+        yield from path.batches(columns, where, batch_rows)
+
+    def frame(self, path, columns=None):
+        import pyarrow as pa
+
+        table = pa.Table.from_batches(list(path.batches(columns or path.schema().names, None,
+                                                        1 << 30)), schema=None)
+        return table.to_pandas()
+
+
 #: Every format, in the order :func:`format_for` asks them.
 FORMATS = (NetcdfFormat(), CountsMatrixFormat(), CsvFormat(), ParquetFormat(),
-           JsonLinesFormat())
+           JsonLinesFormat(), MemoryFormat())
 #: The formats of prediction tables (one row per sample).
 TABLE_FORMATS = tuple(f for f in FORMATS if f.rows)
 #: File ending -> format name, of every prediction table format.
@@ -322,7 +349,7 @@ def format_for(path, *, matrix: bool = False, among=FORMATS) -> FileFormat:
         if fmt.can_open(path, matrix=matrix):
             return fmt
     known = ", ".join(sorted({s for f in among for s in f.suffixes}))
-    raise file_error(path, f"unknown file type {Path(path).suffix!r}; expected one of {known}")
+    raise file_error(path, f"unknown file type {Path(str(path)).suffix!r}; expected one of {known}")
 
 
 def format_of(path) -> str:
@@ -350,7 +377,7 @@ def _filtered(batches, where):
 
 
 def _first_lines(path, n: int = 1000):
-    with open(path, "rb") as fh:
+    with (path.open() if isinstance(path, (RemoteFile, BytesFile)) else open(path, "rb")) as fh:
         lines = []
         for _ in range(n):
             line = fh.readline()

@@ -22,7 +22,7 @@ def file_error(path, message: str) -> InvalidInputError:
     >>> str(file_error("runs/p.csv", "the file is empty"))
     'p.csv: the file is empty'
     """
-    return InvalidInputError(f"{Path(path).name}: {message}")
+    return InvalidInputError(f"{Path(str(path)).name}: {message}")
 
 
 def first_line(exc: BaseException) -> str:

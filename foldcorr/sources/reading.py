@@ -17,6 +17,9 @@ from pathlib import Path
 
 from foldcorr.errors import FoldcorrError, InvalidInputError
 from foldcorr.sources.formats import TABLE_SUFFIXES
+from foldcorr.sources.locations import STDIN, BytesFile, is_url, list_url, read_stdin
+from foldcorr.sources.memory import is_memory_table, memory_table
+from foldcorr.sources.partitions import conjuncts, with_partitions
 from foldcorr.sources.problems import UnreadableFile, file_error, first_line
 from foldcorr.tensor.coding import arrow_kind
 
@@ -29,7 +32,7 @@ BATCH_ROWS = 1 << 20
 PREFETCH = 2
 
 
-def resolve_paths(path) -> list[Path]:
+def resolve_paths(path) -> list:
     """The files of a dataset: one file, every table file in a folder, or a glob.
 
     Parameters
@@ -37,11 +40,12 @@ def resolve_paths(path) -> list[Path]:
     path : str or path-like
         A file; a folder (its table files, searched recursively, in sorted
         order; hidden files are left out); or a glob pattern such as
-        ``"runs/part-*.parquet"`` (``**`` matches folders recursively).
+        ``"runs/part-*.parquet"`` (``**`` matches folders recursively); any
+        of these as a URL (see :func:`foldcorr.sources.locations.list_url`).
 
     Returns
     -------
-    list of pathlib.Path
+    list of pathlib.Path or RemoteFile
         The files, sorted.
 
     Raises
@@ -60,7 +64,15 @@ def resolve_paths(path) -> list[Path]:
     >>> [p.name for p in resolve_paths(d / "*.csv")]
     ['a.csv', 'b.csv']
     """
+    if is_memory_table(path):
+        return [memory_table(path)]
+    if isinstance(path, BytesFile):
+        return [path]
     text = str(path)
+    if text == STDIN:
+        return [read_stdin()]
+    if is_url(text):
+        return list_url(text, TABLE_SUFFIXES)
     p = Path(path)
     if p.is_file():
         return [p]
@@ -135,8 +147,13 @@ def prefetch(items, depth: int):
         worker.join()
 
 
-def read_batches(f, fmt, columns, text_cols, where, batch_rows):
+def read_batches(f, fmt, columns, text_cols, where, batch_rows, partitions=None):
     """Record batches of one file, read ahead; read errors become skippable errors naming it.
+
+    Partition columns (``key=value`` folders) are added to every batch as
+    constants; the parts of the filter that name none of them are pushed down
+    to the reader, and the whole filter is applied once those columns are
+    added.
 
     Parameters
     ----------
@@ -150,6 +167,8 @@ def read_batches(f, fmt, columns, text_cols, where, batch_rows):
         Row filter.
     batch_rows : int
         Rows per batch.
+    partitions : dict, optional
+        Partition column -> ``pyarrow.Scalar`` of this file.
 
     Yields
     ------
@@ -172,9 +191,15 @@ def read_batches(f, fmt, columns, text_cols, where, batch_rows):
     >>> [b.num_rows for b in read_batches(p, format_for(p), ["actual"], ["actual"], None, 10)]
     [1]
     """
-    with contextlib.closing(prefetch(fmt.batches(f, columns, text_cols, where, batch_rows),
-                                     PREFETCH)) as it:
-        yield from _checked_batches(f, fmt, it, where)
+    parts = partitions or {}
+    inner = conjuncts(where, parts, naming=False) if parts else where
+    read = fmt.batches(f, [c for c in columns if c not in parts],
+                       [c for c in text_cols if c not in parts], inner, batch_rows)
+    with contextlib.closing(prefetch(read, PREFETCH)) as it:
+        for batch in _checked_batches(f, fmt, it, where):
+            if parts:
+                batch = with_partitions(batch, parts, columns, where if inner is not where else None)
+            yield batch
 
 
 def _checked_batches(f, fmt, it, where):
@@ -197,7 +222,7 @@ def _checked_batches(f, fmt, it, where):
         yield batch
 
 
-def checked_schema(f, fmt, truth, pred, fold, weight, first_types, where):
+def checked_schema(f, fmt, truth, pred, fold, weight, first_types, where, partitions=None):
     """A file's schema, checked before any row is read.
 
     The named columns must be there, the filter's columns too, and (unless
@@ -217,6 +242,8 @@ def checked_schema(f, fmt, truth, pred, fold, weight, first_types, where):
         ``"__text__"`` (whether it is CSV text); empty for the first file.
     where : Where or None
         Row filter.
+    partitions : dict, optional
+        Partition column -> ``pyarrow.Scalar``, added to the schema.
 
     Returns
     -------
@@ -238,12 +265,17 @@ def checked_schema(f, fmt, truth, pred, fold, weight, first_types, where):
     >>> checked_schema(p, format_for(p), "actual", "predicted", "auto", None, {}, None).names
     ['actual', 'predicted']
     """
+    import pyarrow as pa
+
     try:
         schema = fmt.schema(f)
     except UnreadableFile:
         raise
     except Exception as exc:  # pyarrow raises its own error types
         raise UnreadableFile(file_error(f, f"cannot read as {fmt.name_of(f)}: {first_line(exc)}")) from None
+    for col, value in (partitions or {}).items():
+        if col not in schema.names:
+            schema = schema.append(pa.field(col, value.type))
     names = [c for c in (truth, pred, weight) if c]
     if fold not in (None, "auto"):
         names.append(fold)

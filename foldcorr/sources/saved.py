@@ -98,7 +98,7 @@ def is_saved_path(path) -> bool:
     >>> is_saved_path("run.nc"), is_saved_path("run.csv")
     (True, False)
     """
-    return Path(path).suffix.lower() in SAVED_SUFFIXES
+    return Path(str(path)).suffix.lower() in SAVED_SUFFIXES
 
 
 def check_save_target(target, source=None, *, name: str = "--save") -> Path:

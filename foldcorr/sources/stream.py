@@ -21,14 +21,16 @@ from __future__ import annotations
 
 import contextlib
 import sys
-from dataclasses import dataclass
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
 
 from foldcorr._version import __version__
-from foldcorr.errors import InvalidInputError
+from foldcorr.errors import InvalidInputError, OptionError
+from foldcorr.sources.counts import as_counts, whole_counts
 from foldcorr.sources.formats import TABLE_FORMATS, format_for
+from foldcorr.sources.partitions import excluded, typed_partitions
 from foldcorr.sources.problems import UnreadableFile, file_error
 from foldcorr.sources.reading import (
     BATCH_ROWS,
@@ -38,7 +40,7 @@ from foldcorr.sources.reading import (
     require_columns,
     resolve_paths,
 )
-from foldcorr.sources.where import parse_where
+from foldcorr.sources.where import ExpressionWhere, as_where
 from foldcorr.tensor import (
     ACTUAL,
     FOLD,
@@ -51,7 +53,7 @@ from foldcorr.tensor.accumulator import BatchCheck, StreamTally
 from foldcorr.tensor.coding import arrow_kind, label_key
 
 __all__ = ["StreamResult", "SkippedFiles", "FilePlan", "plan_files", "tally_files",
-           "finish_tally", "raise_checks", "stream_tensor"]
+           "finish_tally", "raise_checks", "stream_tensor", "counted_plan"]
 
 
 @dataclass(frozen=True)
@@ -116,7 +118,7 @@ class SkippedFiles:
 def stream_tensor(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
                   weight: str | None = None, classes=None, where=None,
                   skip_bad_files: bool = False, progress: bool | None = None,
-                  batch_rows: int = BATCH_ROWS) -> StreamResult:
+                  batch_rows: int = BATCH_ROWS, count: str | None = None) -> StreamResult:
     """Tally a dataset of prediction tables into a tensor, batch by batch.
 
     Parameters
@@ -132,7 +134,8 @@ def stream_tensor(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
     classes : sequence, optional
         Fixed class order; labels outside it are an error.
     where : str or Where, optional
-        Row filter (see :func:`parse_where`), pushed down to Parquet.
+        Row filter: text (see :func:`~foldcorr.sources.where.parse_where`) or a
+        ``pyarrow.compute.Expression``; pushed down to Parquet.
     skip_bad_files : bool, default False
         Skip files that cannot be read or lack a needed column, and report
         them in :attr:`StreamResult.skipped`, instead of stopping.
@@ -140,6 +143,9 @@ def stream_tensor(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
         Show a progress bar on stderr; default: only when stderr is a terminal.
     batch_rows : int
         Rows per record batch.
+    count : str, optional
+        Column of whole counts: each row stands for that many samples (see
+        :mod:`foldcorr.sources.counts`); the tensor stays int64.
 
     Returns
     -------
@@ -171,13 +177,12 @@ def stream_tensor(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
     if truth == pred:
         raise file_error(files[0] if len(files) == 1 else Path(str(path)),
                          f"truth and pred name the same column {truth!r}")
-    if isinstance(where, str):
-        where = parse_where(where)
+    where = as_where(where)
     show = sys.stderr.isatty() if progress is None else progress
     bar = Progress(len(files)) if show else None
     try:
         return _stream(path, files, truth, pred, fold, weight, classes, where,
-                       skip_bad_files, batch_rows, bar)
+                       skip_bad_files, batch_rows, bar, count)
     finally:
         if bar is not None:
             bar.close()
@@ -203,6 +208,11 @@ class FilePlan:
         Name of the source in the tensor's provenance.
     single : bool
         The dataset is one file.
+    partitions : dict
+        File -> {partition column: ``pyarrow.Scalar``} read from its
+        ``key=value`` folders (hive layout).
+    count : str or None
+        Column of whole counts (rows already aggregated), read as ``weight``.
     """
 
     files: tuple
@@ -215,6 +225,8 @@ class FilePlan:
     where: object
     source: str
     single: bool
+    partitions: dict = field(default_factory=dict)
+    count: str | None = None
 
     def columns(self) -> list[str]:
         """Columns to read: labels, fold, weight and the filter's columns."""
@@ -228,10 +240,12 @@ class FilePlan:
 
         Their types are then settled over all their values (labels) or
         compared as :meth:`Where.expression` says (filter columns), never
-        guessed from the first block.
+        guessed from the first block. The columns of an Arrow expression
+        keep the types the reader gives them.
         """
         cols = [self.truth, self.pred] + ([self.fold] if self.fold else [])
-        if self.where is not None:
+        cols += [self.count] if self.count else []
+        if self.where is not None and not isinstance(self.where, ExpressionWhere):
             cols += [c for c in self.where.columns if c not in cols and c != self.weight]
         return cols
 
@@ -271,13 +285,17 @@ def plan_files(path, files, truth, pred, fold, weight, where, skip_bad_files) ->
     ('fold', True, ['actual', 'predicted', 'fold'])
     """
     first: dict = {}
-    chosen, skipped = [], []
+    chosen, skipped, pruned = [], [], 0
     fold_col, text = None, False
+    partitions = typed_partitions(path, files, _text_guess(files))
     for f in files:
         try:
             fmt = format_for(f, among=TABLE_FORMATS)
-            schema = checked_schema(f, fmt, truth, pred, fold, weight, first, where)
+            schema = checked_schema(f, fmt, truth, pred, fold, weight, first, where,
+                                    partitions.get(f))
             if not first:
+                if isinstance(where, ExpressionWhere) and not where.columns:
+                    where = where.bind(schema)
                 fold_col = (FOLD if FOLD in schema.names else None) if fold == "auto" else fold
                 text = fmt.text
                 first.update({c: arrow_kind(schema.field(c).type) for c in
@@ -288,23 +306,56 @@ def plan_files(path, files, truth, pred, fold, weight, where, skip_bad_files) ->
                                                         "cannot be mixed in one dataset; the first "
                                                         f"file is {first['__file__']}"))
             require_columns(f, schema, [fold_col])
+            if excluded(where, partitions.get(f)):
+                pruned += 1
+                continue
             chosen.append((f, fmt))
         except UnreadableFile as exc:
             if not skip_bad_files:
                 raise exc.args[0] from None
             skipped.append(_skip_entry(exc))
+    if not chosen and pruned:
+        raise file_error(Path(str(path)), "no rows pass the filter")
     if not chosen:
         raise InvalidInputError(f"no readable file among {len(files)}; first problem: "
                                 f"{skipped[0][0]}: {skipped[0][1]}")
     single = len(files) == 1
     return FilePlan(files=tuple(chosen), skipped=tuple(skipped), truth=truth, pred=pred,
-                 fold=fold_col, weight=weight, text=text, where=where,
-                 source=files[0].name if single else Path(str(path)).name, single=single)
+                    fold=fold_col, weight=weight, text=text, where=where,
+                    source=files[0].name if single else Path(str(path)).name, single=single,
+                    partitions=partitions)
+
+
+def _text_guess(files) -> bool:
+    try:
+        return format_for(files[0], among=TABLE_FORMATS).text
+    except InvalidInputError:
+        return False
 
 
 def _skip_entry(exc: UnreadableFile) -> tuple[str, str]:
     name, _, why = str(exc.args[0]).partition(": ")
     return name, why
+
+
+def counted_plan(plan: FilePlan, weight, count) -> FilePlan:
+    """The plan reading ``count`` as whole counts (weights and counts are exclusive).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "p.csv"
+    >>> _ = p.write_text("actual,predicted,n\\na,b,2\\n")
+    >>> plan = plan_files(p, [p], "actual", "predicted", "auto", "n", None, False)
+    >>> counted_plan(plan, None, "n").count
+    'n'
+    """
+    if count is None:
+        return plan
+    if weight is not None:
+        raise OptionError(f"`weight` and `count` cannot both be given; got weight {weight!r} "
+                          f"and count {count!r}")
+    return replace(plan, count=count)
 
 
 def _tally_file(plan: FilePlan, f: Path, fmt, classes, batch_rows: int,
@@ -319,9 +370,13 @@ def _count_file_into(acc: StreamTally, plan: FilePlan, f: Path, fmt, classes,
     check = BatchCheck()
     # closing: on an error the read-ahead thread stops now, not when the traceback goes
     with contextlib.closing(read_batches(f, fmt, plan.columns(), plan.text_columns(), plan.where,
-                                  batch_rows)) as batches:
+                                         batch_rows, plan.partitions.get(f))) as batches:
+        offset = 0
         for batch in batches:
             try:
+                if plan.count:
+                    offset += batch.num_rows
+                    batch = whole_counts(batch, plan.count, offset - batch.num_rows)
                 acc.add(batch, check)
             except InvalidInputError as exc:
                 raise file_error(f, str(exc)) from None
@@ -371,8 +426,10 @@ def finish_tally(plan: FilePlan, acc: StreamTally, used, skipped, classes,
     attrs = {"truth_column": plan.truth, "pred_column": plan.pred}
     if plan.fold:
         attrs["by_columns"] = f"{FOLD}={plan.fold}"
-    if plan.weight:
+    if plan.weight and not plan.count:
         attrs["weight_column"] = plan.weight
+    if plan.count:
+        attrs["count_column"] = plan.count
     attrs.update({"n_rows": int(acc.rows), "foldcorr_version": __version__})
     attrs["source"] = plan.source
     if plan.fold:
@@ -385,7 +442,8 @@ def finish_tally(plan: FilePlan, acc: StreamTally, used, skipped, classes,
         attrs["skipped_files"] = ",".join(n for n, _ in skipped)
 
     def unknown(role, bad_codes, labels):
-        _locate_unknown(acc, used, role, bad_codes, labels, plan.where, batch_rows)
+        _locate_unknown(acc, used, role, bad_codes, labels, plan.where, batch_rows,
+                        plan.partitions)
 
     try:
         tensor = acc.tensor(classes=classes, attrs=attrs, unknown=unknown)
@@ -393,13 +451,16 @@ def finish_tally(plan: FilePlan, acc: StreamTally, used, skipped, classes,
         if str(exc).startswith(tuple(f"{f.name}:" for f, _ in plan.files)):
             raise
         raise file_error(name, str(exc)) from None
+    if plan.count:
+        tensor = as_counts(tensor, plan.count)
     return StreamResult(tensor=tensor, files=tuple(f.name for f in used),
                         skipped=tuple(skipped), rows=int(acc.rows))
 
 
 def _stream(path, files, truth, pred, fold, weight, classes, where, skip_bad_files,
-            batch_rows, bar) -> StreamResult:
-    plan = plan_files(path, files, truth, pred, fold, weight, where, skip_bad_files)
+            batch_rows, bar, count=None) -> StreamResult:
+    plan = counted_plan(plan_files(path, files, truth, pred, fold, weight or count, where,
+                                   skip_bad_files), weight, count)
     if bar is not None:
         bar.advance(len(plan.skipped))
     acc, used, skipped = tally_files(plan, plan.files, classes, skip_bad_files, batch_rows, bar)
@@ -463,7 +524,8 @@ def raise_checks(f, check: BatchCheck, acc: StreamTally, classes) -> None:
         raise file_error(f, bad_weight_message(row, value))
 
 
-def _locate_unknown(acc, files, role, bad_codes, labels, where, batch_rows) -> None:
+def _locate_unknown(acc, files, role, bad_codes, labels, where, batch_rows,
+                    partitions) -> None:
     """Find the first row holding a label outside ``classes`` (a second, error-only pass).
 
     As in the in-memory check, the truth column of a file is searched before
@@ -481,7 +543,8 @@ def _locate_unknown(acc, files, role, bad_codes, labels, where, batch_rows) -> N
             name = acc.truth if which == "truth" else acc.pred
             extra = [] if where is None else [c for c in where.columns if c != name]
             first, count, rows = None, 0, 0
-            for batch in read_batches(f, fmt, [name, *extra], [name, *extra], where, batch_rows):
+            for batch in read_batches(f, fmt, [name, *extra], [name, *extra], where, batch_rows,
+                                      partitions.get(f)):
                 c, nulls = acc.coders[which].encode(batch.column(name))
                 hit = np.isin(c, bad)
                 if nulls is not None:

@@ -14,7 +14,8 @@ from dataclasses import dataclass
 from foldcorr.errors import InvalidInputError
 from foldcorr.tensor.coding import BOOL_TEXT
 
-__all__ = ["Where", "parse_where"]
+__all__ = ["Where", "ExpressionWhere", "parse_where", "as_where", "MAX_DEPTH", "MAX_TERMS",
+           "MAX_TEXT"]
 
 #: A decimal number written as text (after trimming), as a filter reads one.
 _NUMBER_TEXT = r"^[+-]?([0-9]+\.?[0-9]*|\.[0-9]+)([eE][+-]?[0-9]+)?$"
@@ -28,6 +29,13 @@ _TOKEN = re.compile(r"""\s*(?:
 
 _COMPARE = ("==", "!=", "<", "<=", ">", ">=")
 
+#: Deepest nesting of parentheses and ``not`` a filter may have.
+MAX_DEPTH = 50
+#: Most comparisons a filter may hold.
+MAX_TERMS = 1000
+#: Longest filter text read, in characters.
+MAX_TEXT = 100_000
+
 
 @dataclass(frozen=True)
 class Where:
@@ -39,7 +47,8 @@ class Where:
         The filter as written.
     tree : tuple
         ``("cmp", column, op, value)``, ``("in", column, values)``,
-        ``("not", node)``, ``("and", a, b)`` or ``("or", a, b)``.
+        ``("not", node)``, ``("and", a, b, ...)`` or ``("or", a, b, ...)`` (a chain of
+        one operator is one node).
     """
 
     text: str
@@ -157,10 +166,97 @@ class Where:
                 return pc.field(col).isin([literal(col, v) for v in values])
             if kind == "not":
                 return ~build(node[1])
-            a, b = build(node[1]), build(node[2])
-            return (a & b) if kind == "and" else (a | b)
+            parts = [build(child) for child in node[1:]]
+            while len(parts) > 1:  # a balanced tree: shallow whatever the count
+                pairs = [(parts[i], parts[i + 1]) for i in range(0, len(parts) - 1, 2)]
+                joined = [(a & b) if kind == "and" else (a | b) for a, b in pairs]
+                parts = joined + parts[len(pairs) * 2:]
+            return parts[0]
 
         return build(self.tree)
+
+
+@dataclass(frozen=True)
+class ExpressionWhere:
+    """A row filter given as a ``pyarrow.compute.Expression`` (the Python API).
+
+    It stands where a :class:`Where` stands; the columns it reads are found
+    once a table's schema is known (:meth:`bind`).
+
+    Attributes
+    ----------
+    expr : pyarrow.compute.Expression
+        The filter.
+    columns : tuple of str
+        Columns it reads (empty until bound).
+    """
+
+    expr: object
+    columns: tuple = ()
+
+    @property
+    def text(self) -> str:
+        """The expression as pyarrow prints it."""
+        return str(self.expr)
+
+    def bind(self, schema) -> ExpressionWhere:
+        """The filter with the columns of ``schema`` it reads.
+
+        Examples
+        --------
+        >>> import pyarrow as pa, pyarrow.compute as pc
+        >>> w = ExpressionWhere(pc.field("split") == "test")
+        >>> w.bind(pa.schema([("actual", pa.string()), ("split", pa.string())])).columns
+        ('split',)
+        """
+        import pyarrow as pa
+
+        def binds(fields) -> bool:
+            try:
+                pa.schema(fields).empty_table().filter(self.expr)
+                return True
+            except (pa.ArrowInvalid, pa.ArrowNotImplementedError, pa.ArrowTypeError,
+                    TypeError, KeyError):
+                return False
+
+        fields = list(schema)
+        if not binds(fields):
+            raise InvalidInputError(f"`where` {self.text!r} does not apply to a table with "
+                                    f"columns {list(schema.names)!r}")
+        used = tuple(f.name for f in fields if not binds([g for g in fields if g is not f]))
+        return ExpressionWhere(self.expr, used)
+
+    def check_columns(self, names) -> None:
+        """Raise when the filter reads a column not among ``names``."""
+        for column in self.columns:
+            if column not in names:
+                raise InvalidInputError(
+                    f"`where` names column {column!r}, which the table does not have; "
+                    f"it has {list(names)!r}")
+
+    def expression(self, schema):
+        """The expression itself."""
+        return self.expr
+
+
+def as_where(where):
+    """A row filter from what a caller gives: None, filter text, a Where or an Arrow expression.
+
+    Examples
+    --------
+    >>> as_where('split == "test"').columns
+    ['split']
+    >>> as_where(None) is None
+    True
+    """
+    if where is None or isinstance(where, (Where, ExpressionWhere)):
+        return where
+    if isinstance(where, str):
+        return parse_where(where)
+    if type(where).__module__.startswith("pyarrow") and type(where).__name__ == "Expression":
+        return ExpressionWhere(where)
+    raise InvalidInputError(f"`where` must be filter text or a pyarrow.compute.Expression; "
+                            f"got {type(where).__name__!r}")
 
 
 def parse_where(text: str) -> Where:
@@ -188,7 +284,9 @@ def parse_where(text: str) -> Where:
     Raises
     ------
     InvalidInputError
-        On a syntax error, naming the position.
+        On a syntax error, naming the position; when the filter nests deeper
+        than :data:`MAX_DEPTH`, holds more than :data:`MAX_TERMS` comparisons
+        or is longer than :data:`MAX_TEXT` characters.
 
     Examples
     --------
@@ -199,90 +297,122 @@ def parse_where(text: str) -> Where:
     ...
     foldcorr.errors.InvalidInputError: `where`: cannot read 'split = "test"' at position 6 ('= "test"'); ...
     """
+    if len(text) > MAX_TEXT:
+        raise InvalidInputError(f"`where` is {len(text):,} characters long; at most "
+                                f"{MAX_TEXT:,} are read")
     tokens = _tokenize(text)
-    pos = 0
+    if not tokens:
+        raise InvalidInputError("`where` is empty; expected e.g. split == \"test\"")
+    return Where(text=text, tree=_Parser(text, tokens).parse())
 
-    def error(at: int, what: str):
-        where = tokens[at][1] if at < len(tokens) else len(text)
-        rest = text[where:].strip()
+
+class _Parser:
+    """An operator-precedence parser with explicit stacks: no recursion, bounded nesting."""
+
+    PRECEDENCE = {"or": 1, "and": 2, "not": 3}
+
+    def __init__(self, text: str, tokens: list):
+        self.text, self.tokens, self.pos = text, tokens, 0
+
+    def error(self, at: int, what: str) -> InvalidInputError:
+        where = self.tokens[at][1] if at < len(self.tokens) else len(self.text)
+        rest = self.text[where:].strip()
         return InvalidInputError(
-            f"`where`: cannot read {text!r} at position {where} ({rest!r}); {what}. "
+            f"`where`: cannot read {self.text!r} at position {where} ({rest!r}); {what}. "
             f"Expected comparisons like column == \"value\" or column in (1, 2), "
             f"joined by and / or / not")
 
-    def peek(k=0):
-        return tokens[pos + k][0] if pos + k < len(tokens) else None
+    def peek(self):
+        return self.tokens[self.pos][0] if self.pos < len(self.tokens) else None
 
-    def take():
-        nonlocal pos
-        tok = tokens[pos]
-        pos += 1
-        return tok
+    def take(self):
+        self.pos += 1
+        return self.tokens[self.pos - 1][0]
 
-    def value():
-        if pos >= len(tokens):
-            raise error(pos, "a value is missing")
-        kind, val = take()[0]
+    def value(self):
+        if self.pos >= len(self.tokens):
+            raise self.error(self.pos, "a value is missing")
+        kind, val = self.take()
         if kind in ("str", "num"):
             return val
         if kind == "name" and val in ("true", "false"):
             return val == "true"
-        raise error(pos - 1, "expected a value (text in quotes, a number, true or false)")
+        raise self.error(self.pos - 1,
+                         "expected a value (text in quotes, a number, true or false)")
 
-    def single():
-        tok = peek()
-        if tok == ("name", "not"):
-            take()
-            return ("not", single())
-        if tok == ("op", "("):
-            take()
-            node = disjunction()
-            if peek() != ("op", ")"):
-                raise error(pos, "a closing parenthesis is missing")
-            take()
-            return node
-        if tok is None or tok[0] != "name":
-            raise error(pos, "expected a column name")
-        column = take()[0][1]
-        if peek() == ("name", "in"):
-            take()
-            if peek() != ("op", "("):
-                raise error(pos, "expected ( after in")
-            take()
-            values = [value()]
-            while peek() == ("op", ","):
-                take()
-                values.append(value())
-            if peek() != ("op", ")"):
-                raise error(pos, "a closing parenthesis is missing")
-            take()
+    def comparison(self):
+        column = self.take()[1]
+        if self.peek() == ("name", "in"):
+            self.take()
+            if self.peek() != ("op", "("):
+                raise self.error(self.pos, "expected ( after in")
+            self.take()
+            values = [self.value()]
+            while self.peek() == ("op", ","):
+                self.take()
+                values.append(self.value())
+            if self.peek() != ("op", ")"):
+                raise self.error(self.pos, "a closing parenthesis is missing")
+            self.take()
             return ("in", column, tuple(values))
-        op = peek()
+        op = self.peek()
         if op is None or op[0] != "op" or op[1] not in _COMPARE:
-            raise error(pos, "expected a comparison (==, !=, <, <=, >, >=) or in")
-        take()
-        return ("cmp", column, op[1], value())
+            raise self.error(self.pos, "expected a comparison (==, !=, <, <=, >, >=) or in")
+        self.take()
+        return ("cmp", column, op[1], self.value())
 
-    def conjunction():
-        node = single()
-        while peek() == ("name", "and"):
-            take()
-            node = ("and", node, single())
-        return node
+    def parse(self) -> tuple:
+        out: list = []
+        ops: list = []
+        operand, terms = True, 0
+        while self.pos < len(self.tokens):
+            tok = self.peek()
+            if operand:
+                if tok in (("name", "not"), ("op", "(")):
+                    ops.append(self.take()[1])
+                    if sum(o in ("(", "not") for o in ops) > MAX_DEPTH:
+                        raise InvalidInputError(
+                            f"`where` nests deeper than {MAX_DEPTH} levels of parentheses and "
+                            f"not; write the filter flatter")
+                    continue
+                if tok[0] != "name":
+                    raise self.error(self.pos, "expected a column name")
+                out.append(self.comparison())
+                terms += 1
+                if terms > MAX_TERMS:
+                    raise InvalidInputError(f"`where` has more than {MAX_TERMS} comparisons; "
+                                            f"use column in (...) for long lists of values")
+                operand = False
+            elif tok in (("name", "and"), ("name", "or")):
+                while ops and ops[-1] != "(" and \
+                        self.PRECEDENCE[ops[-1]] >= self.PRECEDENCE[tok[1]]:
+                    _reduce(ops, out)
+                ops.append(self.take()[1])
+                operand = True
+            elif tok == ("op", ")") and "(" in ops:
+                while ops[-1] != "(":
+                    _reduce(ops, out)
+                ops.pop()
+                self.take()
+            else:
+                raise self.error(self.pos, "unexpected text after the filter")
+        if operand:
+            raise self.error(self.pos, "expected a column name")
+        while ops:
+            if ops[-1] == "(":
+                raise self.error(self.pos, "a closing parenthesis is missing")
+            _reduce(ops, out)
+        return out[0]
 
-    def disjunction():
-        node = conjunction()
-        while peek() == ("name", "or"):
-            take()
-            node = ("or", node, conjunction())
-        return node
 
-    if not tokens:
-        raise InvalidInputError("`where` is empty; expected e.g. split == \"test\"")
-    tree = disjunction()
-    if pos != len(tokens):
-        raise error(pos, "unexpected text after the filter")
-    return Where(text=text, tree=tree)
+def _reduce(ops: list, out: list) -> None:
+    """Apply the operator on top of ``ops`` to the operands on top of ``out``."""
+    op = ops.pop()
+    if op == "not":
+        out.append(("not", out.pop()))
+        return
+    b, a = out.pop(), out.pop()
+    out.append(a + (b,) if a[0] == op else (op, a, b))
 
 
 def _tokenize(text: str) -> list:
