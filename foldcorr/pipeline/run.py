@@ -28,7 +28,9 @@ _SPEC_KEYS = ("truth", "pred", "fold", "weight", "classes")
 
 
 # ----------------------------------------------------------------------------
-# analyses: each is (evaluation, options) -> evaluation, unchanged when not asked for
+# analyses: each is (evaluation, options) -> evaluation, unchanged when not asked for;
+# the analyses still need every cell, so a sparse tensor is made dense for them here
+# (refused with a TensorTooLargeError when it would not fit in memory)
 
 
 def _skipped_files(ev, options):
@@ -43,16 +45,18 @@ def _shift(ev, options):
     if options.prevalence is None:
         return ev
     from foldcorr.analysis.shift import shifted_figures
+    from foldcorr.tensor import as_dense
 
-    return ev.with_extra("shifted", shifted_figures(ev.tensor, options.prevalence,
+    return ev.with_extra("shifted", shifted_figures(as_dense(ev.tensor), options.prevalence,
                                                     undefined=ev.undefined))
 
 
 def _repair(ev, options):
     from foldcorr.analysis.repair import repair_analysis
+    from foldcorr.tensor import as_dense
 
     # complete: every confusion is ranked and kept (JSON carries them all); reports cut to --top
-    return ev.with_extra("repair", repair_analysis(ev.tensor, top=None,
+    return ev.with_extra("repair", repair_analysis(as_dense(ev.tensor), top=None,
                                                    undefined=options.undefined))
 
 
@@ -61,8 +65,9 @@ def _intervals(ev, options):
     if settings is None:
         return ev
     from foldcorr.analysis.uncertainty import summarise_uncertainty
+    from foldcorr.tensor import as_dense
 
-    return ev.with_extra("uncertainty", summarise_uncertainty(ev.tensor, **settings,
+    return ev.with_extra("uncertainty", summarise_uncertainty(as_dense(ev.tensor), **settings,
                                                               undefined=ev.undefined))
 
 
