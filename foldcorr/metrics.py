@@ -33,6 +33,7 @@ from foldcorr.tensor import (ACTUAL, CLASS, PREDICTED, as_dense, cell_sums, py_v
 
 __all__ = [
     "UNDEFINED_CHOICES",
+    "MAX_PLACES",
     "SUMMARY_FIGURES",
     "Sums",
     "rk_parts",
@@ -56,6 +57,9 @@ __all__ = [
 ]
 
 UNDEFINED_CHOICES = ("zero", "nan")
+
+#: Places an undefined-value warning names before it says how many more there are.
+MAX_PLACES = 50
 
 
 @dataclass(frozen=True)
@@ -188,11 +192,14 @@ def _warn_undefined(sums: Sums, bad: np.ndarray, what: str, undefined: str, *, p
     ]
     if per_class:
         labels.append(sums.tensor.coords[ACTUAL].values)
+    spots = np.argwhere(bad)
     places = [
         " ".join(f"{n}={py_value(lab[i])!r}" for n, lab, i in zip(names, labels, index))
-        for index in np.argwhere(bad)
+        for index in spots[:MAX_PLACES]
     ]
     where = "; ".join(places) if places and places[0] else "the whole tensor"
+    if len(spots) > MAX_PLACES:
+        where += f"; and {len(spots) - MAX_PLACES} more"
     value = "0.0" if undefined == "zero" else "NaN"
     warnings.warn(
         f"{what} is undefined (0/0) at {where}; reported as {value} (undefined={undefined!r})",

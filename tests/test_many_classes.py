@@ -1,5 +1,6 @@
 """Sparse cells: every figure equals the dense path and outside references; refusals."""
 
+import re
 import warnings
 
 import numpy as np
@@ -176,3 +177,17 @@ def test_a_dense_tensor_too_large_for_memory_is_refused_before_allocating():
         count_codes([np.array([0]), np.array([1])], [10**6, 10**6])
     with pytest.raises(FoldcorrError, match="keep the counts sparse"):
         check_dense_size((5, 10**6, 10**6), np.int64)
+
+
+def test_score_analyses_refuse_a_tensor_too_large_to_densify():
+    from foldcorr.pipeline import evaluate_with
+
+    cells = sparse.COO(np.array([[0, 1, 2, 4], [0, 1, 3, 4]]), np.array([5, 3, 2, 4]),
+                       shape=(10**5, 10**5))
+    t = validate_tensor(xr.DataArray(cells, dims=("actual", "predicted"), name="count"))
+    ev = fc.evaluate(t)  # the figures need only the nonzero cells
+    assert ev.per_class.sizes["class"] == 10**5
+    # the first MAX_PLACES places are named, the rest counted
+    assert any(re.search(r"class=52; and 999\d\d more", w) for w in ev.warnings)
+    with pytest.raises(TensorTooLargeError, match=r"the analyses of score .* needs"):
+        evaluate_with(t)

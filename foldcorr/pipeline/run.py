@@ -32,6 +32,17 @@ _SPEC_KEYS = ("truth", "pred", "fold", "weight", "classes")
 # the analyses still need every cell, so a sparse tensor is made dense for them here
 # (refused with a TensorTooLargeError when it would not fit in memory)
 
+#: Arrays of the tensor's size an analysis holds at once (cells in float64, moved cells,
+#: gains, counterfactual margins): an estimate from the repair analysis, the largest.
+ANALYSIS_COPIES = 6
+
+
+def _dense(ev):
+    from foldcorr.tensor import as_dense
+
+    return as_dense(ev.tensor, copies=ANALYSIS_COPIES,
+                    what="the analyses of score (repair, shift, intervals) on a tensor")
+
 
 def _skipped_files(ev, options):
     if not ev.tensor.attrs.get("skipped_files"):
@@ -45,18 +56,16 @@ def _shift(ev, options):
     if options.prevalence is None:
         return ev
     from foldcorr.analysis.shift import shifted_figures
-    from foldcorr.tensor import as_dense
 
-    return ev.with_extra("shifted", shifted_figures(as_dense(ev.tensor), options.prevalence,
+    return ev.with_extra("shifted", shifted_figures(_dense(ev), options.prevalence,
                                                     undefined=ev.undefined))
 
 
 def _repair(ev, options):
     from foldcorr.analysis.repair import repair_analysis
-    from foldcorr.tensor import as_dense
 
     # complete: every confusion is ranked and kept (JSON carries them all); reports cut to --top
-    return ev.with_extra("repair", repair_analysis(as_dense(ev.tensor), top=None,
+    return ev.with_extra("repair", repair_analysis(_dense(ev), top=None,
                                                    undefined=options.undefined))
 
 
@@ -65,9 +74,8 @@ def _intervals(ev, options):
     if settings is None:
         return ev
     from foldcorr.analysis.uncertainty import summarise_uncertainty
-    from foldcorr.tensor import as_dense
 
-    return ev.with_extra("uncertainty", summarise_uncertainty(as_dense(ev.tensor), **settings,
+    return ev.with_extra("uncertainty", summarise_uncertainty(_dense(ev), **settings,
                                                               undefined=ev.undefined))
 
 

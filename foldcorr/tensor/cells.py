@@ -85,7 +85,8 @@ def _size(nbytes: float) -> str:
     return ""  # unreachable
 
 
-def check_dense_size(shape, dtype, what: str = "a dense confusion tensor") -> None:
+def check_dense_size(shape, dtype, what: str = "a dense confusion tensor", *,
+                     copies: float = 1) -> None:
     """Refuse, before allocating, a dense array larger than the memory free.
 
     Parameters
@@ -96,6 +97,8 @@ def check_dense_size(shape, dtype, what: str = "a dense confusion tensor") -> No
         Its element type.
     what : str
         What the array is, for the message.
+    copies : float, default 1
+        How many arrays of that size the caller will hold at once.
 
     Raises
     ------
@@ -110,7 +113,7 @@ def check_dense_size(shape, dtype, what: str = "a dense confusion tensor") -> No
     ...
     foldcorr.errors.TensorTooLargeError: a dense confusion tensor of shape (1000000, 1000000) needs 7.3 TiB...
     """
-    nbytes = float(np.prod([float(n) for n in shape])) * np.dtype(dtype).itemsize
+    nbytes = float(np.prod([float(n) for n in shape])) * np.dtype(dtype).itemsize * copies
     free = memory_available()
     if free is not None and nbytes > free:
         raise TensorTooLargeError(
@@ -120,11 +123,26 @@ def check_dense_size(shape, dtype, what: str = "a dense confusion tensor") -> No
         )
 
 
-def as_dense(t: xr.DataArray) -> xr.DataArray:
+def as_dense(t: xr.DataArray, *, copies: float = 1, what: str = "a dense confusion tensor"):
     """The tensor with dense numpy cells (itself when already dense).
 
     The one place where a sparse tensor is made dense, for analyses that
-    still need every cell; refused when the dense array would not fit.
+    still need every cell; refused when ``copies`` dense arrays of its size
+    would not fit in the memory free.
+
+    Parameters
+    ----------
+    t : xarray.DataArray
+        A tensor, dense or sparse.
+    copies : float, default 1
+        Arrays of the tensor's size the caller will hold at once.
+    what : str
+        What needs the dense cells, for the message.
+
+    Returns
+    -------
+    xarray.DataArray
+        ``t`` itself when dense, else a dense copy.
 
     Raises
     ------
@@ -140,7 +158,7 @@ def as_dense(t: xr.DataArray) -> xr.DataArray:
     """
     if not is_sparse(t):
         return t
-    check_dense_size(t.shape, t.dtype)
+    check_dense_size(t.shape, t.dtype, what, copies=copies)
     return t.copy(data=t.data.todense())
 
 
