@@ -9,7 +9,9 @@ import sparse
 import xarray as xr
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from sklearn.metrics import confusion_matrix, matthews_corrcoef
+from sklearn.metrics import (accuracy_score, balanced_accuracy_score, cohen_kappa_score,
+                             confusion_matrix, matthews_corrcoef,
+                             precision_recall_fscore_support)
 
 import foldcorr as fc
 from foldcorr.errors import FoldcorrError, TensorTooLargeError, UndefinedMetricWarning
@@ -100,6 +102,22 @@ def test_sparse_figures_match_scikit_learn(data):
         want = matthews_corrcoef(truth, pred)
         got = float(fc.rk(t))
     assert got == pytest.approx(want, abs=1e-12)
+    # scikit-learn's accuracy, balanced accuracy, kappa and per-class precision,
+    # recall and F1 (zero_division=0 is undefined="zero").
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        assert float(fc.metrics.accuracy(t)) == pytest.approx(accuracy_score(truth, pred))
+        assert float(fc.metrics.balanced_accuracy(t)) == pytest.approx(
+            balanced_accuracy_score(truth, pred))
+        if len(classes) > 1:
+            assert float(fc.metrics.cohen_kappa(t)) == pytest.approx(
+                cohen_kappa_score(truth, pred, labels=classes), abs=1e-12)
+        p, r, f, support = precision_recall_fscore_support(truth, pred, labels=classes,
+                                                           zero_division=0)
+        np.testing.assert_allclose(fc.metrics.precision(t).values, p, atol=1e-12)
+        np.testing.assert_allclose(fc.metrics.recall(t).values, r, atol=1e-12)
+        np.testing.assert_allclose(fc.metrics.f1(t).values, f, atol=1e-12)
+        np.testing.assert_array_equal(fc.metrics.support(t).values, support)
 
 
 def test_two_classes_sparse_mcc_equals_scikit_learn():

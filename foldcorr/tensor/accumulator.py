@@ -209,7 +209,8 @@ class StreamTally:
         old = self._counts.shape
         if (f, kt, kp) != old:
             shape = (max(f, old[0]), max(kt, old[1]), max(kp, old[2]))
-            check_dense_size(shape, self._counts.dtype, "the streamed counts")
+            # the counts, the batch counts pending and the tensor made at the end
+            check_dense_size(shape, self._counts.dtype, "the streamed counts", copies=2)
             new = np.zeros(shape, self._counts.dtype)
             new[: old[0], : old[1], : old[2]] = self.counts
             self.counts = new
