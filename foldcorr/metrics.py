@@ -10,7 +10,7 @@ the total, :math:`c` the trace, :math:`t_k` the row sums and :math:`p_k` the
 column sums. All sums and products are taken in float64, so counts of 10^10 and
 more do not overflow. Every figure is made of those margins and the trace (and
 the largest off-diagonal cells), computed from the tensor's backing in
-O(nonzero cells + folds x K), dense or sparse (:mod:`foldcorr.tensor.cells`);
+O(nonzero cells + folds x K), dense or sparse (:mod:`foldcorr.tensor.backing`);
 no dense K x K copy is made.
 
 Undefined values (0/0) follow the ``undefined`` convention: ``"zero"`` (the

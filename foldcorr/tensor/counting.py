@@ -17,7 +17,7 @@ import xarray as xr
 
 from foldcorr._version import __version__
 from foldcorr.errors import InvalidInputError
-from foldcorr.tensor.cells import DENSE_CELL_LIMIT, check_dense_size, count_sparse
+from foldcorr.tensor.backing import DENSE_CELL_LIMIT, check_dense_size, count_sparse
 from foldcorr.tensor.dims import ACTUAL, COUNT, FOLD, PREDICTED, py_value, validate_tensor
 
 __all__ = [
@@ -192,7 +192,7 @@ def tally_columns(columns, *, leading=None, weights=None, classes=None, attrs=No
     -------
     xarray.DataArray
         Named ``count``, dims ``(*leading, *columns)``, the class coordinate on
-        every column dim; dense or sparse cells (see :mod:`foldcorr.tensor.cells`).
+        every column dim; dense or sparse cells (see :mod:`foldcorr.tensor.backing`).
 
     Raises
     ------

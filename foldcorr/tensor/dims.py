@@ -16,7 +16,7 @@ import numpy as np
 import xarray as xr
 
 from foldcorr.errors import InvalidTensorError
-from foldcorr.tensor.cells import is_sparse, sum_cells
+from foldcorr.tensor.backing import is_sparse, sum_cells
 
 __all__ = [
     "ACTUAL",
@@ -59,7 +59,7 @@ def confusion_tensor(
     ----------
     counts : array_like or sparse.COO, shape (..., K, K)
         Counts with rows actual and columns predicted; a ``sparse.COO``
-        array stays sparse (see :mod:`foldcorr.tensor.cells`).
+        array stays sparse (see :mod:`foldcorr.tensor.backing`).
     classes : sequence
         The K class labels, in order.
     leading : mapping of str to sequence, optional
