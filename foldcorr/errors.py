@@ -18,6 +18,7 @@ __all__ = [
     "OptionError",
     "MissingDependencyError",
     "EngineError",
+    "TensorTooLargeError",
     "UndefinedMetricWarning",
     "require",
     "collect_undefined",
@@ -46,6 +47,10 @@ class MissingDependencyError(FoldcorrError, ImportError):
 
 class EngineError(FoldcorrError, RuntimeError):
     """A distributed run failed (a worker lost, a scheduler unreachable); nothing was produced."""
+
+
+class TensorTooLargeError(FoldcorrError, MemoryError):
+    """A dense array would need more memory than the machine has free; refused before allocating."""
 
 
 class UndefinedMetricWarning(RuntimeWarning):

@@ -8,7 +8,10 @@ random numbers.
 Notation for one K x K matrix C (rows actual, columns predicted): :math:`s` is
 the total, :math:`c` the trace, :math:`t_k` the row sums and :math:`p_k` the
 column sums. All sums and products are taken in float64, so counts of 10^10 and
-more do not overflow.
+more do not overflow. Every figure is made of those margins and the trace (and
+the largest off-diagonal cells), computed from the tensor's backing in
+O(nonzero cells + folds x K), dense or sparse (:mod:`foldcorr.tensor.backing`);
+no dense K x K copy is made.
 
 Undefined values (0/0) follow the ``undefined`` convention: ``"zero"`` (the
 default, the limit commonly used and what scikit-learn returns) or ``"nan"``.
@@ -19,15 +22,18 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 import xarray as xr
 
 from foldcorr.errors import UndefinedMetricWarning, check_choice
-from foldcorr.tensor import ACTUAL, CLASS, PREDICTED, validate_tensor
+from foldcorr.tensor import (ACTUAL, CLASS, PREDICTED, as_dense, cell_sums, py_value, sum_cells,
+                             top_off_diagonal, validate_tensor)
 
 __all__ = [
     "UNDEFINED_CHOICES",
+    "MAX_PLACES",
     "SUMMARY_FIGURES",
     "Sums",
     "rk_parts",
@@ -52,6 +58,9 @@ __all__ = [
 
 UNDEFINED_CHOICES = ("zero", "nan")
 
+#: Places an undefined-value warning names before it says how many more there are.
+MAX_PLACES = 50
+
 
 @dataclass(frozen=True)
 class Sums:
@@ -69,7 +78,6 @@ class Sums:
     """
 
     tensor: xr.DataArray
-    cells: np.ndarray  # (..., K, K)
     total: np.ndarray  # (...)
     trace: np.ndarray  # (...)
     diag: np.ndarray  # (..., K)
@@ -79,17 +87,14 @@ class Sums:
     @classmethod
     def of(cls, t) -> Sums:
         t = validate_tensor(t)
-        cells = t.values.astype(np.float64)
-        diag = np.diagonal(cells, axis1=-2, axis2=-1)
-        return cls(
-            tensor=t,
-            cells=cells,
-            total=cells.sum(axis=(-2, -1)),
-            trace=diag.sum(axis=-1),
-            diag=diag,
-            actual=cells.sum(axis=-1),
-            predicted=cells.sum(axis=-2),
-        )
+        diag, actual, predicted = cell_sums(t)
+        return cls(tensor=t, total=actual.sum(axis=-1), trace=diag.sum(axis=-1), diag=diag,
+                   actual=actual, predicted=predicted)
+
+    @cached_property
+    def cells(self) -> np.ndarray:
+        """Every cell in float64, (..., K, K): dense, through :func:`foldcorr.tensor.as_dense`."""
+        return as_dense(self.tensor).values.astype(np.float64)
 
     def rk_parts(self):
         """Numerator and denominator sums of R_K over the leading dims (see :func:`rk_parts`)."""
@@ -187,21 +192,20 @@ def _warn_undefined(sums: Sums, bad: np.ndarray, what: str, undefined: str, *, p
     ]
     if per_class:
         labels.append(sums.tensor.coords[ACTUAL].values)
+    spots = np.argwhere(bad)
     places = [
-        " ".join(f"{n}={_item(lab[i])!r}" for n, lab, i in zip(names, labels, index))
-        for index in np.argwhere(bad)
+        " ".join(f"{n}={py_value(lab[i])!r}" for n, lab, i in zip(names, labels, index))
+        for index in spots[:MAX_PLACES]
     ]
     where = "; ".join(places) if places and places[0] else "the whole tensor"
+    if len(spots) > MAX_PLACES:
+        where += f"; and {len(spots) - MAX_PLACES} more"
     value = "0.0" if undefined == "zero" else "NaN"
     warnings.warn(
         f"{what} is undefined (0/0) at {where}; reported as {value} (undefined={undefined!r})",
         UndefinedMetricWarning,
         stacklevel=stacklevel,
     )
-
-
-def _item(value):
-    return value.item() if isinstance(value, np.generic) else value
 
 
 def rk(t, *, undefined: str = "zero") -> xr.DataArray:
@@ -500,12 +504,15 @@ def _count_sum(t: xr.DataArray, dims) -> xr.DataArray:
     is larger); past that the float64 sum is returned, never a wrapped
     negative value. Float counts are summed in float64.
     """
+    def total(dtype=None):
+        return sum_cells(t, dims, dtype=dtype, dense=True, keep_attrs=False)
+
     if t.dtype.kind not in "iu":
-        return t.sum(dims)
-    approx = t.astype(np.float64).sum(dims)
+        return total()
+    approx = total(np.float64)
     if approx.size and float(approx.max()) >= 2.0**62:
         return approx
-    return t.sum(dims)
+    return total()
 
 
 def count_total(t) -> xr.DataArray:
@@ -568,13 +575,9 @@ def top_confusion(t) -> xr.Dataset:
     (['b', 'c'], [1, 1, 0])
     """
     s = Sums.of(t)
-    k = s.cells.shape[-1]
-    off = np.where(np.eye(k, dtype=bool), -1, s.tensor.values)
-    index = off.argmax(axis=-1)
-    count = np.take_along_axis(off, index[..., None], axis=-1)[..., 0]
+    index, count = top_off_diagonal(s.tensor)
     labels = np.asarray(s.tensor.coords[PREDICTED].values, dtype=object)
-    label = np.where(count > 0, labels[index], None) if k > 1 else np.full(index.shape, None)
-    count = np.maximum(count, 0)
+    label = np.where(count > 0, labels[index], None)
     return xr.Dataset(
         {
             "top_confusion": _wrap(s, label, "top_confusion", per_class=True),

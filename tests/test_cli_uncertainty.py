@@ -45,7 +45,8 @@ def test_score_json_has_every_interval_key_and_is_reproducible(tables, capsys):
     assert all(len(c["mcc_ci"]) == 2 and len(c["drag_ci"]) == 2 for c in doc["per_class"])
     lo, hi = doc["fold_summary"]["corrected_ci"]
     assert lo < doc["fold_summary"]["mean_rk"] < hi
-    assert doc["ci"] == {"level": 0.9, "method": "percentile", "resamples": 200, "seed": 3}
+    assert doc["ci"] == {"level": 0.9, "method": "percentile", "resamples": 200, "seed": 3,
+                         "clusters": None, "design_effect": None}
     assert doc["pooled"]["rk"] == pytest.approx(matthews_corrcoef(tables["truth"], tables["pa"]))
     assert _json(capsys, argv) == doc
 

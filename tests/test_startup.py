@@ -39,22 +39,26 @@ from foldcorr.cli import main
 with contextlib.redirect_stdout(io.StringIO()):
     code = main({argv!r})
 loaded = sorted({{m.split('.')[0] for m in sys.modules}} & set({unused!r}))
-import dask.array as da, xarray as xr
+import dask.array as da, numpy as np, sparse, xarray as xr
 wrapped = xr.DataArray(da.zeros(4, chunks=2))
+held = xr.DataArray(sparse.COO.from_numpy(np.eye(3, dtype=int)))
 print(json.dumps({{"code": code, "loaded": loaded, "dask_kept": type(wrapped.data).__name__,
-                   "total": float(wrapped.sum().compute())}}))
+                   "total": float(wrapped.sum().compute()), "sparse_kept": type(held.data).__name__,
+                   "sparse_total": int(held.sum().data.todense())}}))
 """
 UNUSED = ("dask", "distributed", "matplotlib", "h5py", "h5netcdf", "sklearn", "scipy", "sparse")
 
 
 @pytest.mark.parametrize("fmt", ["text", "json", "markdown"])
 def test_scoring_a_small_file_imports_only_what_it_uses(fmt):
-    # A run that uses no Dask, plots, NetCDF or scikit-learn must not import them; xarray
-    # still recognises a Dask array made afterwards (the deferred check is exact).
+    # A run that uses no Dask, sparse arrays, plots, NetCDF or scikit-learn must not import
+    # them; xarray still recognises Dask and sparse arrays made afterwards (the deferred
+    # checks are exact).
     fixture = str(__import__("pathlib").Path(__file__).parent.parent / "fixtures"
                   / "plankton_small.csv")
     probe = SCORE_PROBE.format(argv=["score", fixture, "--format", fmt], unused=UNUSED)
     run = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True,
                          check=True)
     doc = json.loads(run.stdout.splitlines()[-1])
-    assert doc == {"code": 0, "loaded": [], "dask_kept": "Array", "total": 0.0}
+    assert doc == {"code": 0, "loaded": [], "dask_kept": "Array", "total": 0.0,
+                   "sparse_kept": "COO", "sparse_total": 3}

@@ -170,10 +170,10 @@ def test_integer_folds_with_gaps_keep_only_folds_that_occur():
 
 def test_the_tensor_package_offers_every_public_name_of_its_modules():
     import foldcorr.tensor as tensor
-    from foldcorr.tensor import cells, counting, dims, joint, multilabel, samples
+    from foldcorr.tensor import backing, cells, counting, dims, joint, multilabel, samples
 
-    for module in (dims, counting, joint, multilabel, cells, samples):
+    for module in (dims, backing, cells, counting, joint, multilabel, samples):
         for name in module.__all__:
             assert getattr(tensor, name) is getattr(module, name), (module.__name__, name)
     assert sorted(tensor.__all__) == sorted(
-        n for m in (dims, counting, joint, multilabel, cells, samples) for n in m.__all__)
+        n for m in (dims, backing, cells, counting, joint, multilabel, samples) for n in m.__all__)

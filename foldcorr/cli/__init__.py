@@ -31,10 +31,9 @@ def main(argv=None) -> int:
     from foldcorr.cli.verbs import EXIT_OK, EXIT_USAGE, VERBS, check_targets
     from foldcorr.errors import FoldcorrError
 
-    if getattr(args, "engine", None) != "dask":
-        from foldcorr.cli.startup import defer_dask_lookup
+    from foldcorr.cli.startup import defer_array_lookups
 
-        defer_dask_lookup()  # a run that uses no Dask does not import it
+    defer_array_lookups()  # a run imports Dask or sparse only when it makes such arrays
 
     try:
         check_targets(args)

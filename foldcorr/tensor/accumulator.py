@@ -18,6 +18,7 @@ from foldcorr.tensor import (
     ACTUAL,
     FOLD,
     PREDICTED,
+    check_dense_size,
     confusion_tensor,
     count_codes,
     fixed_classes,
@@ -207,7 +208,10 @@ class StreamTally:
         kt, kp = len(self.coders["truth"]), len(self.coders["pred"])
         old = self._counts.shape
         if (f, kt, kp) != old:
-            new = np.zeros((max(f, old[0]), max(kt, old[1]), max(kp, old[2])), self._counts.dtype)
+            shape = (max(f, old[0]), max(kt, old[1]), max(kp, old[2]))
+            # the counts, the batch counts pending and the tensor made at the end
+            check_dense_size(shape, self._counts.dtype, "the streamed counts", copies=2)
+            new = np.zeros(shape, self._counts.dtype)
             new[: old[0], : old[1], : old[2]] = self.counts
             self.counts = new
         if self.seen is not None:

@@ -17,6 +17,7 @@ import xarray as xr
 
 from foldcorr._version import __version__
 from foldcorr.errors import InvalidInputError
+from foldcorr.tensor.backing import DENSE_CELL_LIMIT, check_dense_size, count_sparse
 from foldcorr.tensor.dims import ACTUAL, COUNT, FOLD, PREDICTED, py_value, validate_tensor
 
 __all__ = [
@@ -156,11 +157,13 @@ def tally_frame(
 def _tally_columns(columns, leading, weights, classes, *, attrs) -> xr.DataArray:
     (t_name, truth), (p_name, pred) = columns.items()
     counted = tally_columns({ACTUAL: (t_name, truth), PREDICTED: (p_name, pred)},
-                            leading=leading, weights=weights, classes=classes, attrs=attrs)
+                            leading=leading, weights=weights, classes=classes, attrs=attrs,
+                            sparse_above=DENSE_CELL_LIMIT)
     return validate_tensor(counted)
 
 
-def tally_columns(columns, *, leading=None, weights=None, classes=None, attrs=None) -> xr.DataArray:
+def tally_columns(columns, *, leading=None, weights=None, classes=None, attrs=None,
+                  sparse_above: int | None = None) -> xr.DataArray:
     """Count samples by several label columns that share one class coordinate.
 
     The general form of :func:`tally`: a confusion tensor is the case of two
@@ -181,12 +184,15 @@ def tally_columns(columns, *, leading=None, weights=None, classes=None, attrs=No
         classes are every label seen in any column, sorted.
     attrs : dict, optional
         Provenance kept on the result (``n_rows`` and the version are added).
+    sparse_above : int, optional
+        Count into a ``sparse.COO`` array (only the cells seen) when the dense
+        array would have more cells than this; None keeps it dense.
 
     Returns
     -------
     xarray.DataArray
         Named ``count``, dims ``(*leading, *columns)``, the class coordinate on
-        every column dim.
+        every column dim; dense or sparse cells (see :mod:`foldcorr.tensor.backing`).
 
     Raises
     ------
@@ -210,11 +216,17 @@ def tally_columns(columns, *, leading=None, weights=None, classes=None, attrs=No
     codes, labels, fixed = _encode_labels(arrays, names, classes)
     groups = [(dim, *_encode_one(_as_1d(values, dim), dim)) for dim, values in leading.items()]
     w = None if weights is None else _check_weights(weights)
-    counts = _bincount(codes, len(labels), [(c, len(u)) for _, c, u, _ in groups], w)
-    counts, group_coords = _drop_unseen_groups(counts, groups, w)
+    group_coords = {}
+    for i, (dim, group, group_labels, direct) in enumerate(groups):
+        if direct:  # integer labels used as codes: keep only those some row has
+            (group,), group_labels = _seen([group], group_labels)
+        groups[i] = (dim, group, group_labels, direct)
+        group_coords[dim] = group_labels
     if not fixed:
-        seen = None if w is None else _occurring(codes, len(labels))
-        counts, labels = _drop_unseen(counts, labels, len(dims), seen)
+        codes, labels = _seen(codes, labels)
+    counts = _count([c for _, c, _, _ in groups] + list(codes),
+                    [len(u) for _, _, u, _ in groups] + [len(labels)] * len(codes),
+                    w, sparse_above)
     coords = {**group_coords, **{d: [py_value(x) for x in labels] for d in dims}}
     out = xr.DataArray(counts, dims=(*group_coords, *dims), coords=coords, name=COUNT)
     out.attrs.update({**(attrs or {}), "n_rows": n, "foldcorr_version": __version__})
@@ -468,28 +480,21 @@ def _encode_one(values, name: str):
     return codes, [py_value(u) for u in uniques], False
 
 
-def _drop_unseen_groups(counts, groups: list, weights):
-    """Leading coordinates, without entries no sample had (only the direct path makes them)."""
-    coords = {}
-    for axis, (dim, codes, labels, direct) in enumerate(groups):
-        coords[dim] = labels
-        if not direct:
-            continue
-        if weights is None:
-            seen = counts.sum(axis=tuple(i for i in range(counts.ndim) if i != axis)) > 0
-        else:
-            seen = np.bincount(codes, minlength=len(labels)) > 0
-        if not seen.all():
-            keep = np.flatnonzero(seen)
-            counts = np.take(counts, keep, axis=axis)
-            coords[dim] = [labels[i] for i in keep]
-    return counts, coords
+def _seen(codes: list, labels: list):
+    """Codes and labels of only the labels some row has (codes renumbered in order)."""
+    seen = _occurring(codes, len(labels))
+    if seen.all():
+        return codes, list(labels)
+    keep = np.flatnonzero(seen)
+    renumber = np.cumsum(seen) - 1
+    return [renumber[c] for c in codes], [labels[i] for i in keep]
 
 
-def _bincount(class_codes: list, k: int, groups: list, weights) -> np.ndarray:
-    """Count the group codes, then the class codes, into one dense array."""
-    codes = [c for c, _ in groups] + list(class_codes)
-    shape = [size for _, size in groups] + [k] * len(class_codes)
+def _count(codes: list, shape: list, weights, sparse_above):
+    """Count into a dense array, or a sparse one when it would exceed ``sparse_above`` cells."""
+    cells = int(np.prod(shape, dtype=np.float64))
+    if sparse_above is not None and cells > sparse_above:
+        return count_sparse(codes, shape, weights=weights)
     return count_codes(codes, shape, weights=weights)
 
 
@@ -524,6 +529,11 @@ def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=No
         int64 counts, or float64 sums of weights, of shape ``shape``
         (``out`` itself when given).
 
+    Raises
+    ------
+    TensorTooLargeError
+        When the array would need more memory than is free (checked first).
+
     Notes
     -----
     The cell is found by the mixed-radix index
@@ -544,6 +554,8 @@ def count_codes(codes: Sequence[np.ndarray], shape: Sequence[int], *, weights=No
     """
     if not codes:
         raise ValueError("count_codes needs at least one array of codes")
+    if out is None:
+        check_dense_size(shape, np.int64)
     total = int(np.prod(shape, dtype=np.int64))
     itype = np.int32 if total <= np.iinfo(np.int32).max else np.int64
     index = None
@@ -571,16 +583,3 @@ def _occurring(class_codes: list, k: int) -> np.ndarray:
     return sum(np.bincount(c, minlength=k) for c in class_codes) > 0
 
 
-def _drop_unseen(counts: np.ndarray, labels: list, n_axes: int, seen=None):
-    """Drop classes that occur in none of the last ``n_axes`` (class) axes."""
-    class_axes = range(counts.ndim - n_axes, counts.ndim)
-    if seen is None:
-        seen = np.zeros(len(labels), dtype=bool)
-        for axis in class_axes:
-            seen |= counts.sum(axis=tuple(i for i in range(counts.ndim) if i != axis)) > 0
-    if seen.all():
-        return counts, list(labels)
-    keep = np.flatnonzero(seen)
-    for axis in class_axes:
-        counts = np.take(counts, keep, axis=axis)
-    return counts, [labels[i] for i in keep]

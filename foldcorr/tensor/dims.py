@@ -16,6 +16,7 @@ import numpy as np
 import xarray as xr
 
 from foldcorr.errors import InvalidTensorError
+from foldcorr.tensor.backing import is_sparse, sum_cells
 
 __all__ = [
     "ACTUAL",
@@ -56,8 +57,9 @@ def confusion_tensor(
 
     Parameters
     ----------
-    counts : array_like, shape (..., K, K)
-        Counts with rows actual and columns predicted.
+    counts : array_like or sparse.COO, shape (..., K, K)
+        Counts with rows actual and columns predicted; a ``sparse.COO``
+        array stays sparse (see :mod:`foldcorr.tensor.backing`).
     classes : sequence
         The K class labels, in order.
     leading : mapping of str to sequence, optional
@@ -80,7 +82,8 @@ def confusion_tensor(
     classes = list(classes)
     dims = (*leading, ACTUAL, PREDICTED)
     coords = {**leading, ACTUAL: classes, PREDICTED: classes}
-    t = xr.DataArray(np.asarray(counts), dims=dims, coords=coords, name=COUNT)
+    counts = counts if is_sparse(counts) else np.asarray(counts)
+    t = xr.DataArray(counts, dims=dims, coords=coords, name=COUNT)
     t.attrs.update(attrs or {})
     return validate_tensor(t)
 
@@ -90,7 +93,8 @@ def validate_tensor(t) -> xr.DataArray:
 
     Normal form: dims ``(..., "actual", "predicted")`` in that order, the same
     class coordinate on both class dims, finite non-negative counts of dtype
-    int64 or float64, and the name ``count``.
+    int64 or float64, and the name ``count``. The cells may be a dense numpy
+    array or a ``sparse.COO`` array (fill value 0); the backing is kept.
 
     Parameters
     ----------
@@ -132,7 +136,8 @@ def validate_tensor(t) -> xr.DataArray:
             f"missing {missing!r} in dims {t.dims!r}"
         )
     lead = [d for d in t.dims if d not in (ACTUAL, PREDICTED)]
-    t = t.transpose(*lead, ACTUAL, PREDICTED)
+    if t.dims != (*lead, ACTUAL, PREDICTED):
+        t = t.transpose(*lead, ACTUAL, PREDICTED)
     k = t.sizes[ACTUAL]
     if t.sizes[PREDICTED] != k:
         raise InvalidTensorError(
@@ -145,25 +150,42 @@ def validate_tensor(t) -> xr.DataArray:
             "(no labels were counted)"
         )
     t = _with_class_coords(t)
-    values = np.asarray(t.values)
-    if not (np.issubdtype(values.dtype, np.number) or values.dtype == bool):
-        raise InvalidTensorError(f"counts must be numeric; got dtype {values.dtype!r}")
-    if np.issubdtype(values.dtype, np.floating):
-        values = values.astype(np.float64, copy=False)
-        bad = ~np.isfinite(values)
-        if bad.any():
-            raise InvalidTensorError(
-                f"counts must be finite; found {py_value(values[bad][0])!r} at {_where(t, bad)}"
-            )
-    else:
-        values = values.astype(np.int64, copy=False)
-    neg = values < 0
-    if neg.any():
-        raise InvalidTensorError(
-            f"counts must be non-negative; found {py_value(values[neg][0])!r} at {_where(t, neg)}"
-        )
+    values = _normal_counts(t)
     # A new object sharing the counts (no copy of a possibly large array).
     return xr.DataArray(values, coords=t.coords, dims=t.dims, name=COUNT, attrs=dict(t.attrs))
+
+
+def _normal_counts(t: xr.DataArray):
+    """The cells as int64 or float64 (dense, or sparse COO), checked finite and non-negative."""
+    values = t.data
+    stored = values
+    if is_sparse(values):
+        values = values if type(values).__name__ == "COO" else values.asformat("coo")
+        if values.fill_value != 0:
+            raise InvalidTensorError(
+                f"sparse counts must have fill value 0; got {py_value(values.fill_value)!r}")
+        stored = values.data
+    else:
+        values = stored = np.asarray(values)
+    dtype = stored.dtype
+    if not (np.issubdtype(dtype, np.number) or dtype == bool):
+        raise InvalidTensorError(f"counts must be numeric; got dtype {dtype!r}")
+    kind = np.float64 if np.issubdtype(dtype, np.floating) else np.int64
+    if dtype != kind:
+        values = values.astype(kind)
+        stored = values.data if is_sparse(values) else values
+    if kind is np.float64:
+        bad = ~np.isfinite(stored)
+        if bad.any():
+            raise InvalidTensorError(
+                f"counts must be finite; found {py_value(stored[bad][0])!r} at "
+                f"{_where(t, values, bad)}")
+    neg = stored < 0
+    if neg.any():
+        raise InvalidTensorError(
+            f"counts must be non-negative; found {py_value(stored[neg][0])!r} at "
+            f"{_where(t, values, neg)}")
+    return values
 
 
 def _with_class_coords(t: xr.DataArray) -> xr.DataArray:
@@ -184,8 +206,10 @@ def _with_class_coords(t: xr.DataArray) -> xr.DataArray:
     return t
 
 
-def _where(t: xr.DataArray, mask: np.ndarray) -> str:
-    index = np.argwhere(mask)[0]
+def _where(t: xr.DataArray, values, mask: np.ndarray) -> str:
+    first = np.flatnonzero(mask)[0]
+    index = (values.coords[:, first] if is_sparse(values)
+             else np.unravel_index(first, mask.shape))
     return ", ".join(
         f"{dim}={py_value(t.coords[dim].values[i])!r}" if dim in t.coords else f"{dim}={i}"
         for dim, i in zip(t.dims, index)
@@ -205,7 +229,7 @@ def pool(t: xr.DataArray, dim: str | Sequence[str] = FOLD) -> xr.DataArray:
     Returns
     -------
     xarray.DataArray
-        The pooled tensor, attrs kept.
+        The pooled tensor, attrs kept, with the backing of ``t`` (dense or sparse).
 
     Examples
     --------
@@ -218,7 +242,7 @@ def pool(t: xr.DataArray, dim: str | Sequence[str] = FOLD) -> xr.DataArray:
     present = [d for d in dims if d in t.dims]
     if not present:
         return t
-    return t.sum(present, keep_attrs=True)
+    return sum_cells(t, present)
 
 
 def py_value(value):
