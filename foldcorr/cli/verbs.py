@@ -250,6 +250,10 @@ def check_targets(args) -> None:
                 raise OptionError(f"`--{name}` {path!r} is also given to `--{other}`; give "
                                   "each output its own path")
         seen[name] = path
+    plot = getattr(args, "plot", None)
+    if plot and Path(plot).exists() and not Path(plot).is_dir():
+        raise InvalidInputError(f"cannot draw plots into {plot!r}: it is a file; `--plot` takes a "
+                                "folder")
 
 
 def _flag(name: str) -> str:
