@@ -237,8 +237,9 @@ def check_targets(args) -> None:
             raise InvalidInputError(f"cannot write {path!r}: it is a folder")
         if not folder.is_dir():
             raise InvalidInputError(f"cannot write {path!r}: folder {str(folder)!r} does not exist")
-        if not os.access(folder, os.W_OK | os.X_OK) or (target.exists()
-                                                        and not os.access(target, os.W_OK)):
+        device = target.exists() and not target.is_file()  # written in place, folder unused
+        if (not device and not os.access(folder, os.W_OK | os.X_OK)) or (
+                target.exists() and not os.access(target, os.W_OK)):
             raise InvalidInputError(f"cannot write {path!r}: permission denied")
         for other, other_path in inputs:
             if same_path(target, Path(other_path)):
