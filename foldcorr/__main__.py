@@ -1,6 +1,4 @@
-import sys
-
-from foldcorr.cli import main
+from foldcorr.cli import run
 
 if __name__ == "__main__":
-    sys.exit(main())
+    run()

@@ -13,12 +13,80 @@ from foldcorr._version import __version__
 from foldcorr.pipeline import ScoreOptions
 from foldcorr.report.formats import FORMATS
 
-__all__ = ["get_parser", "OPTION_OF_DEST", "flag_names"]
+__all__ = ["get_parser", "OPTION_OF_DEST", "flag_names", "Parser", "MAX_RESAMPLES",
+           "MAX_DEMO_SAMPLES"]
 
 #: Not given: absent from the namespace (the pipeline holds the defaults).
 UNSET = argparse.SUPPRESS
 #: Destinations whose option of the pipeline has another name.
 OPTION_OF_DEST = {"ci": "level", "resamples": "n_resamples", "ci_method": "method"}
+
+
+#: Most bootstrap resamples or permutations accepted (``--resamples``, ``--permutations``).
+MAX_RESAMPLES = 10**6
+#: Most demo samples accepted (``demo --samples``).
+MAX_DEMO_SAMPLES = 10**9
+
+
+class Parser(argparse.ArgumentParser):
+    """An argument parser whose usage errors are one line with a hint to ``--help``.
+
+    Examples
+    --------
+    >>> import contextlib, io
+    >>> err = io.StringIO()
+    >>> with contextlib.redirect_stderr(err):
+    ...     try:
+    ...         Parser(prog="foldcorr demo").parse_args(["--nope"])
+    ...     except SystemExit as exc:
+    ...         print(exc.code)
+    2
+    >>> err.getvalue()
+    "foldcorr demo: error: unrecognized arguments: --nope (see 'foldcorr demo --help')\\n"
+    """
+
+    def error(self, message: str):
+        flat = " ".join(message.split())
+        self.exit(2, f"{self.prog}: error: {flat} (see '{self.prog} --help')\n")
+
+
+def _count(low: int, high: int):
+    """An argparse type: a whole number from ``low`` to ``high``."""
+
+    def parse(value: str) -> int:
+        try:
+            number = int(value)
+        except ValueError:
+            number = None
+        if number is None or not low <= number <= high:
+            raise argparse.ArgumentTypeError(
+                f"expected a whole number from {low} to {high:_}; got {value!r}".replace("_", ","))
+        return number
+
+    parse.__name__ = "whole number"
+    return parse
+
+
+def _limit(low: float, high: float, figure: str):
+    """An argparse type: a finite number from ``low`` to ``high`` (the range of ``figure``)."""
+
+    def parse(value: str) -> float:
+        number = _number(value)
+        if not low <= number <= high:
+            raise argparse.ArgumentTypeError(
+                f"{figure} lies in [{low:g}, {high:g}], so a limit of {value} is outside it")
+        return number
+
+    parse.__name__ = "limit"
+    return parse
+
+
+RK_LIMIT = _limit(-1.0, 1.0, "R_K")
+MCC_LIMIT = _limit(-1.0, 1.0, "MCC")
+DROP_LIMIT = _limit(-2.0, 2.0, "a difference of two R_K values")
+MISMATCH_LIMIT = _limit(0.0, 1.0, "the marginal mismatch term")
+RESAMPLES = _count(1, MAX_RESAMPLES)
+SEED = _count(0, 2**63 - 1)
 
 
 def flag_names() -> dict:
@@ -135,16 +203,16 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--plot", metavar="DIR",
                    help="also draw the loss budget, confusion heatmap and fold plot "
                         "into DIR as PNG and SVG (needs the 'plot' extra)")
-    p.add_argument("--ci", type=float, default=UNSET, metavar="LEVEL",
+    p.add_argument("--ci", type=_number, default=UNSET, metavar="LEVEL",
                    help="add bootstrap intervals at this level, e.g. 0.95")
-    p.add_argument("--resamples", type=int, default=UNSET, metavar="B",
+    p.add_argument("--resamples", type=RESAMPLES, default=UNSET, metavar="B",
                    help=f"bootstrap resamples for --ci (default: {ScoreOptions.DEFAULT_RESAMPLES}, "
-                        "at least 100)")
+                        f"at least 100, at most {MAX_RESAMPLES:,})")
     p.add_argument("--ci-method", choices=("percentile", "bca"), default=UNSET,
                    help=f"interval method for --ci: percentile or bca (default: "
                         f"{ScoreOptions.DEFAULT_METHOD})")
     if "--seed" not in p._option_string_actions:  # demo's --seed seeds its data and this too
-        p.add_argument("--seed", type=int, default=UNSET, metavar="S",
+        p.add_argument("--seed", type=SEED, default=UNSET, metavar="S",
                        help="seed of the resamples, for reproducible intervals")
     p.add_argument("--prevalence", default=UNSET, metavar="uniform|A=0.2,B=0.8|FILE.csv",
                    help="also show every pooled figure at this target class prevalence, "
@@ -183,7 +251,7 @@ def get_parser() -> argparse.ArgumentParser:
     >>> get_parser().parse_args(["score", "p.csv", "--top", "all"]).top is None
     True
     """
-    parser = argparse.ArgumentParser(
+    parser = Parser(
         prog="foldcorr",
         description="Matthews correlation and R_K for multiclass and multilabel "
                     "classifiers, fold by fold.",
@@ -226,24 +294,24 @@ def get_parser() -> argparse.ArgumentParser:
                       help="column of unique sample ids in prediction tables (for a paired "
                            "baseline comparison)")
     rules = gate.add_argument_group("rules")
-    rules.add_argument("--min-rk", type=_number, metavar="X",
-                       help="pooled R_K must be >= X (multiclass)")
-    rules.add_argument("--min-micro-mcc", type=_number, metavar="X",
-                       help="pooled micro MCC must be >= X (multilabel)")
-    rules.add_argument("--min-macro-mcc", type=_number, metavar="X",
+    rules.add_argument("--min-rk", type=RK_LIMIT, metavar="X",
+                       help="pooled R_K must be >= X (multiclass; X in [-1, 1])")
+    rules.add_argument("--min-micro-mcc", type=MCC_LIMIT, metavar="X",
+                       help="pooled micro MCC must be >= X (multilabel; X in [-1, 1])")
+    rules.add_argument("--min-macro-mcc", type=MCC_LIMIT, metavar="X",
                        help="pooled macro MCC must be >= X")
-    rules.add_argument("--min-fold-rk", type=_number, metavar="X",
+    rules.add_argument("--min-fold-rk", type=RK_LIMIT, metavar="X",
                        help="R_K of every fold must be >= X (multiclass)")
-    rules.add_argument("--min-class-mcc", type=_number, metavar="X",
+    rules.add_argument("--min-class-mcc", type=MCC_LIMIT, metavar="X",
                        help="MCC of every class (one-vs-rest) or label must be >= X")
     rules.add_argument("--class-floors", metavar="FILE",
                        help="CSV class,floor (or label,floor): each listed class's MCC must be "
                             ">= its floor")
-    rules.add_argument("--max-marginal-mismatch", type=_number, metavar="X",
-                       help="marginal mismatch term must be <= X")
+    rules.add_argument("--max-marginal-mismatch", type=MISMATCH_LIMIT, metavar="X",
+                       help="marginal mismatch term must be <= X (X in [0, 1])")
     rules.add_argument("--baseline", metavar="FILE",
                        help="baseline to compare with (a saved .nc, or a prediction table)")
-    rules.add_argument("--max-drop", type=_number, metavar="D",
+    rules.add_argument("--max-drop", type=DROP_LIMIT, metavar="D",
                        help="pooled R_K may fall below the baseline's by at most D "
                             "(default with --baseline: 0)")
     rules.add_argument("--allow-new-classes", action="store_true",
@@ -252,9 +320,10 @@ def get_parser() -> argparse.ArgumentParser:
                        help="with --baseline: a drop counts as a regression only when the whole "
                             "bootstrap interval of the drop at this level (e.g. 0.95) lies "
                             "above D; paired when both sides carry the same sample ids")
-    gate.add_argument("--resamples", type=int, default=UNSET, metavar="B",
-                      help="bootstrap resamples for --confidence (default: 2000)")
-    gate.add_argument("--seed", type=int, default=UNSET, metavar="S",
+    gate.add_argument("--resamples", type=RESAMPLES, default=UNSET, metavar="B",
+                      help=f"bootstrap resamples for --confidence (default: 2000, at most "
+                           f"{MAX_RESAMPLES:,})")
+    gate.add_argument("--seed", type=SEED, default=UNSET, metavar="S",
                       help="seed of the bootstrap for --confidence")
     gate.add_argument("--undefined", choices=("zero", "nan"), default=UNSET,
                       help="value of 0/0 metrics (default: as saved, else zero); "
@@ -281,7 +350,7 @@ def get_parser() -> argparse.ArgumentParser:
     sweep.add_argument("--positive", metavar="VALUE",
                        help="truth value meaning positive (needed unless truth is 0/1 or "
                             "true/false)")
-    sweep.add_argument("--at", type=float, metavar="THRESHOLD",
+    sweep.add_argument("--at", type=_number, metavar="THRESHOLD",
                        help="also report the MCC at this threshold")
     sweep.add_argument("--truth-cols", type=_column_list, metavar="A,B,...",
                        help="multilabel: 0/1 truth columns, one per label")
@@ -302,9 +371,10 @@ def get_parser() -> argparse.ArgumentParser:
                                         "5 folds) to a folder and score it.")
     demo.add_argument("--out", metavar="DIR",
                       help="folder for the demo files (default: a new temporary folder)")
-    demo.add_argument("--samples", type=int, default=UNSET, metavar="N",
-                      help="number of images (default: 24000)")
-    demo.add_argument("--seed", type=int, default=UNSET, metavar="S",
+    demo.add_argument("--samples", type=_count(100, MAX_DEMO_SAMPLES), default=UNSET,
+                      metavar="N",
+                      help=f"number of images (default: 24000, from 100 to {MAX_DEMO_SAMPLES:,})")
+    demo.add_argument("--seed", type=SEED, default=UNSET, metavar="S",
                       help="seed of the generator (default gives the bundled demo)")
     _add_report_options(demo)
     _add_save_options(demo)
@@ -334,13 +404,15 @@ def get_parser() -> argparse.ArgumentParser:
                          help="column of fold labels (default: 'fold' when present)")
     compare.add_argument("--classes", type=_class_list, metavar="A,B,...",
                          help="fixed class order; labels outside it are an error")
-    compare.add_argument("--ci", type=float, default=UNSET, metavar="LEVEL",
+    compare.add_argument("--ci", type=_number, default=UNSET, metavar="LEVEL",
                          help="level of the intervals (default: 0.95)")
-    compare.add_argument("--resamples", type=int, default=UNSET, metavar="B",
-                         help="paired bootstrap resamples (default: 2000, at least 100)")
-    compare.add_argument("--permutations", type=int, metavar="P",
-                         help="sign-flip permutations (default: as many as --resamples)")
-    compare.add_argument("--seed", type=int, metavar="S",
+    compare.add_argument("--resamples", type=RESAMPLES, default=UNSET, metavar="B",
+                         help=f"paired bootstrap resamples (default: 2000, at least 100, at "
+                              f"most {MAX_RESAMPLES:,})")
+    compare.add_argument("--permutations", type=RESAMPLES, metavar="P",
+                         help="sign-flip permutations (default: as many as --resamples, at most "
+                              f"{MAX_RESAMPLES:,})")
+    compare.add_argument("--seed", type=SEED, metavar="S",
                          help="seed of resamples and permutations")
     _add_report_options(compare)
     return parser

@@ -16,7 +16,8 @@ from foldcorr._files import same_path
 from foldcorr.cli.args import OPTION_OF_DEST, flag_names
 
 __all__ = ["VERBS", "EXIT_OK", "EXIT_FAILED", "EXIT_USAGE", "check_targets", "given_options",
-           "present", "emit", "emit_evaluation", "write_out"]
+           "present", "emit", "emit_evaluation", "write_out", "available_memory",
+           "DEMO_BYTES_PER_SAMPLE"]
 
 EXIT_OK, EXIT_FAILED, EXIT_USAGE = 0, 1, 2
 
@@ -54,7 +55,7 @@ def _split(given: dict) -> tuple:
     return options, {k: v for k, v in given.items() if k not in keys}
 
 
-def run_score(args) -> int:
+def run_score(args, staging) -> int:
     from foldcorr.pipeline import score
     from foldcorr.sources.locations import read_stdin
 
@@ -72,39 +73,69 @@ def run_score(args) -> int:
     request = _prepare_save(args, ev, options)
     for line in getattr(ev.extras.get("skipped_files"), "warnings", ()):
         print(f"foldcorr: {line}", file=sys.stderr)
-    emit_evaluation(args, ev, options.top)
-    _write_save(request)
+    emit_evaluation(args, staging, ev, options.top)
+    _write_save(staging, request)
     return EXIT_OK
 
 
-def run_demo(args) -> int:
+def run_demo(args, staging) -> int:
     import tempfile
 
-    from foldcorr.errors import OptionError
     from foldcorr.pipeline import score
     from foldcorr.sources.demo import DEMO_SAMPLES, DEMO_SEED, write_demo
 
     data = {"n": getattr(args, "samples", DEMO_SAMPLES), "seed": getattr(args, "seed", DEMO_SEED)}
-    if data["n"] < 100:
-        raise OptionError(f"`--samples` must be at least 100; got {data['n']!r}")
+    _check_memory(data["n"] * DEMO_BYTES_PER_SAMPLE, f"`--samples` {data['n']:,}")
     # the demo's seed also seeds the resamples
     options, _ = _split({**given_options(args), "seed": data["seed"]})
     _check_save(args, None)
     folder = args.out or tempfile.mkdtemp(prefix="foldcorr-demo-")
     path = write_demo(folder, **data)
-    print(f"demo data written to {path}", file=sys.stderr)
+    staging.note(f"demo data written to {path}")
     ev = score(path, **options.to_dict())
     request = _prepare_save(args, ev, options, source=path)
-    emit_evaluation(args, ev, options.top)
-    _write_save(request)
+    emit_evaluation(args, staging, ev, options.top)
+    _write_save(staging, request)
     return EXIT_OK
 
 
-def run_show(args) -> int:
+#: Peak memory of ``demo`` per sample, measured (about 370 bytes at 10^6 samples), rounded up.
+DEMO_BYTES_PER_SAMPLE = 400
+
+
+def available_memory() -> int | None:
+    """Bytes of memory available to a new allocation (Linux ``MemAvailable``); None if unknown.
+
+    Examples
+    --------
+    >>> available_memory() is None or available_memory() > 0
+    True
+    """
+    try:
+        with open("/proc/meminfo", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    return None
+
+
+def _check_memory(needed: int, what: str) -> None:
+    """Refuse, before allocating, a run that needs more memory than is available."""
+    from foldcorr.errors import OptionError
+
+    free = available_memory()
+    if free is not None and needed > free:
+        raise OptionError(f"{what} needs about {needed / 2**30:,.1f} GiB of memory, but only "
+                          f"{free / 2**30:,.1f} GiB is available; ask for less")
+
+
+def run_show(args, staging) -> int:
     from foldcorr.pipeline import replay
 
     ev, options = replay(args.path, names=flag_names(), **given_options(args, ["top"]))
-    emit_evaluation(args, ev, options.top)
+    emit_evaluation(args, staging, ev, options.top)
     return EXIT_OK
 
 
@@ -128,13 +159,17 @@ def _prepare_save(args, ev, options, source=None):
                         weight=getattr(args, "weight", None))
 
 
-def _write_save(request) -> None:
-    """Write a prepared ``--save`` once everything else succeeded."""
+def _write_save(staging, request) -> None:
+    """Stage a prepared ``--save``, committed with the run's other outputs."""
     if request is not None:
-        print(f"evaluation saved to {request.write()}", file=sys.stderr)
+        from dataclasses import replace
+
+        with staging.writing(request.target) as tmp:
+            replace(request, target=tmp).write()
+        staging.note(f"evaluation saved to {request.target}")
 
 
-def run_gate(args) -> int:
+def run_gate(args, staging) -> int:
     from foldcorr.errors import OptionError
     from foldcorr.gate import GateRules, check_gate
     from foldcorr.pipeline import load_gate_inputs
@@ -173,10 +208,10 @@ def run_gate(args) -> int:
     result = check_gate(ev, rules, baseline=baseline, samples=samples,
                         baseline_samples=base_samples)
     if args.junit:
-        write_out(args.junit, junit_xml(result))
+        staging.write_text(args.junit, junit_xml(result))
     if args.markdown:
-        write_out(args.markdown, render(result, "markdown"))
-    emit(args, result)
+        staging.write_text(args.markdown, render(result, "markdown"))
+    emit(args, staging, result)
     return EXIT_OK if result.passed else EXIT_FAILED
 
 
@@ -210,8 +245,9 @@ def check_targets(args) -> None:
             raise InvalidInputError(f"cannot write {path!r}: it is a folder")
         if not folder.is_dir():
             raise InvalidInputError(f"cannot write {path!r}: folder {str(folder)!r} does not exist")
-        if not os.access(folder, os.W_OK | os.X_OK) or (target.exists()
-                                                        and not os.access(target, os.W_OK)):
+        device = target.exists() and not target.is_file()  # written in place, folder unused
+        if (not device and not os.access(folder, os.W_OK | os.X_OK)) or (
+                target.exists() and not os.access(target, os.W_OK)):
             raise InvalidInputError(f"cannot write {path!r}: permission denied")
         for other, other_path in inputs:
             if same_path(target, Path(other_path)):
@@ -223,13 +259,17 @@ def check_targets(args) -> None:
                 raise OptionError(f"`--{name}` {path!r} is also given to `--{other}`; give "
                                   "each output its own path")
         seen[name] = path
+    plot = getattr(args, "plot", None)
+    if plot and Path(plot).exists() and not Path(plot).is_dir():
+        raise InvalidInputError(f"cannot draw plots into {plot!r}: it is a file; `--plot` takes a "
+                                "folder")
 
 
 def _flag(name: str) -> str:
     return {"path": "PATH", "path_b": "PATH_B"}.get(name, "--" + name.replace("_", "-"))
 
 
-def run_sweep(args) -> int:
+def run_sweep(args, staging) -> int:
     from foldcorr.analysis.thresholds import sweep
     from foldcorr.sources.multilabel import ScoreSpec, load_scores
 
@@ -241,13 +281,15 @@ def run_sweep(args) -> int:
     if args.curve:
         from foldcorr.report.sweep import write_curve
 
-        write_curve(result, args.curve)
+        with staging.writing(args.curve) as tmp:
+            write_curve(result, tmp)
     if args.plot:
         from foldcorr.report.sweep_plots import plot_sweep
 
-        paths = plot_sweep(result, args.plot)
-        print(f"{len(paths)} figure(s) written to {args.plot}", file=sys.stderr)
-    emit(args, result, **present(args, ("top",)), source=table.source)
+        with staging.folder(args.plot) as tmp:
+            paths = plot_sweep(result, tmp)
+        staging.note(f"{len(paths)} figure(s) written to {args.plot}")
+    emit(args, staging, result, **present(args, ("top",)), source=table.source)
     return EXIT_OK
 
 
@@ -256,7 +298,7 @@ COMPARE_SETTINGS = {"ci": "level", "resamples": "n_resamples", "permutations": "
                     "seed": "seed", "undefined": "undefined"}
 
 
-def run_compare(args) -> int:
+def run_compare(args, staging) -> int:
     from foldcorr.analysis.compare import compare_models
     from foldcorr.analysis.resampling import check_level, check_resamples
     from foldcorr.sources.paired import PairSpec, load_joint
@@ -273,7 +315,7 @@ def run_compare(args) -> int:
     if args.models is not None and len(args.models) == 2 and len(paths) == 1:
         spec = replace(spec, pred_a=args.models[0], pred_b=args.models[1])
     elif args.models is not None or len(paths) > 2:
-        return _compare_many(args, paths, spec, settings)
+        return _compare_many(args, staging, paths, spec, settings)
     joint = load_joint(args.path, spec, path_b=args.path_b)
     result = compare_models(joint, **settings)
     if args.path_b is None:
@@ -284,7 +326,7 @@ def run_compare(args) -> int:
         names = (f"{Path(args.path).name}, column {spec.pred_a or spec.pred!r}",
                  f"{Path(args.path_b).name}, column {spec.pred_b or spec.pred!r}")
     source = joint.attrs.get("source")
-    emit(args, result, **present(args, ("top",)), names=names, source=source)
+    emit(args, staging, result, **present(args, ("top",)), names=names, source=source)
     return EXIT_OK
 
 
@@ -292,7 +334,7 @@ def run_compare(args) -> int:
 MAX_MODELS = 50
 
 
-def _compare_many(args, paths, spec, settings) -> int:
+def _compare_many(args, staging, paths, spec, settings) -> int:
     """``compare`` with three or more models: rank them and compare each with the best."""
     from foldcorr.analysis.many import compare_many
     from foldcorr.errors import OptionError
@@ -311,7 +353,7 @@ def _compare_many(args, paths, spec, settings) -> int:
                                                    table.predictions.items()},
                           folds=None if table.folds is None else table.folds.to_numpy(),
                           **settings)
-    emit(args, result, **present(args, ("top",)), source=table.source)
+    emit(args, staging, result, **present(args, ("top",)), source=table.source)
     return EXIT_OK
 
 
@@ -339,42 +381,43 @@ def _console():
 
 
 
-def emit_evaluation(args, ev, top) -> None:
+def emit_evaluation(args, staging, ev, top) -> None:
     """:func:`emit` of what :func:`foldcorr.pipeline.score` returned (and its ``--plot`` files)."""
     if getattr(args, "plot", None):
         from foldcorr.report.plots import save_plots
 
-        written = save_plots(ev, args.plot)
-        print(f"{len(written)} plot files written to {args.plot}", file=sys.stderr)
-    emit(args, ev, top=top)
+        with staging.folder(args.plot) as tmp:
+            written = save_plots(ev, tmp)
+        staging.note(f"{len(written)} plot files written to {args.plot}")
+    emit(args, staging, ev, top=top)
 
 
-def emit(args, result, **context) -> None:
+def emit(args, staging, result, **context) -> None:
     """The one way out: any result, in ``--format``, to ``--output`` or stdout.
 
     Plain text without ``--output`` goes through a rich console (colour only on
     a terminal, never with ``NO_COLOR``); everything else is the text of
-    :func:`foldcorr.report.render`, written by :func:`write_out`. ``context``
-    is what the result's document takes (``top``, ``names``, ``source``).
+    :func:`foldcorr.report.render`, written by :func:`write_out`. A file is
+    staged in ``staging`` (a :class:`foldcorr._files.Staging`) and appears
+    only when the whole run succeeded. ``context`` is what the result's
+    document takes (``top``, ``names``, ``source``).
     """
     from foldcorr.report import document
     from foldcorr.report.documents import write
 
     doc = document(result, **context)
     if args.output or args.format != "text":
-        write_out(args.output, write(doc, args.format))
+        write_out(staging, args.output, write(doc, args.format))
     else:
         from foldcorr.report.text import render_rich
 
         _console().print(render_rich(doc.report))
 
 
-def write_out(target, text: str) -> None:
-    """Write ``text`` to the file ``target`` (replaced whole), or to stdout when it is None or -."""
+def write_out(staging, target, text: str) -> None:
+    """Stage ``text`` for the file ``target`` (replaced whole), or write it to stdout (None or -)."""
     if target and target != "-":
-        from foldcorr._files import write_text
-
-        write_text(target, text)
+        staging.write_text(target, text)
     else:
         sys.stdout.write(text)
 

@@ -13,6 +13,7 @@ so they show the same rows. JSON schema ``foldcorr.gate/1``: ``schema``,
 from __future__ import annotations
 
 import math
+import re
 import xml.etree.ElementTree as ET
 
 from foldcorr.gate import GateResult
@@ -20,6 +21,9 @@ from foldcorr.report.json import dumps, plain
 from foldcorr.report.tables import Column, Report, Table, format_value
 
 __all__ = ["GATE_SCHEMA", "gate_report", "gate_dict", "junit_xml", "gate_document"]
+
+#: Characters XML 1.0 cannot hold even escaped (labels may carry them): shown as U+FFFD.
+_NOT_XML = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ud800-\udfff\ufffe\uffff]")
 
 GATE_SCHEMA = "foldcorr.gate/1"
 
@@ -143,7 +147,8 @@ def junit_xml(result: GateResult) -> str:
                 f"{c.label!s}: MCC {format_value(c.mcc, 'metric')} below floor {c.floor:.3f}"
                 for c in result.failing_classes if c.rule == r.rule]])
     ET.indent(root)
-    return '<?xml version="1.0" encoding="UTF-8"?>\n' + ET.tostring(root, encoding="unicode") + "\n"
+    text = ET.tostring(root, encoding="unicode")
+    return '<?xml version="1.0" encoding="UTF-8"?>\n' + _NOT_XML.sub("\ufffd", text) + "\n"
 
 
 def gate_document(result: GateResult, *, top: int | None = None):

@@ -1,14 +1,54 @@
-"""GitHub-flavoured Markdown rendering of a report."""
+"""GitHub-flavoured Markdown rendering of a report.
+
+Markdown output is shown on CI summary pages and pull requests, which render
+HTML: every piece of text (labels, cells, facts, notes, warnings) is data, so
+:func:`escape_markdown` makes it inert before it is placed in the page.
+"""
 
 from __future__ import annotations
 
 from foldcorr.report.tables import Report, Table
 
-__all__ = ["render_markdown", "markdown_table"]
+__all__ = ["render_markdown", "markdown_table", "escape_markdown"]
+
+#: HTML's special characters, as entities (``&`` first).
+_HTML = (("&", "&amp;"), ("<", "&lt;"), (">", "&gt;"))
+#: Characters with a meaning in (GitHub-flavoured) Markdown, escaped with a backslash.
+_MARKDOWN = "\\|*_`[]~$#!"
 
 
-def _escape(cell: str) -> str:
-    return cell.replace("|", "\\|").replace("\n", " ")
+def escape_markdown(text) -> str:
+    """``text`` as inert Markdown: shown as written, never as markup or HTML.
+
+    HTML's ``<``, ``>`` and ``&`` become entities; Markdown's table, emphasis,
+    code, link, strike-through, math and heading characters get a backslash
+    (except an underscore inside a word, which GitHub-flavoured Markdown never
+    reads as emphasis); line breaks and other control characters become spaces.
+
+    Examples
+    --------
+    >>> print(escape_markdown("<img src=x onerror=alert(1)>"))
+    &lt;img src=x onerror=alert(1)&gt;
+    >>> print(escape_markdown("a|b *c* _d_ `e` [f](g) R_K"))
+    a\\|b \\*c\\* \\_d\\_ \\`e\\` \\[f\\](g) R_K
+    """
+    text, out = str(text), []
+    for i, ch in enumerate(text):
+        if ch == "_" and 0 < i < len(text) - 1 and text[i - 1].isalnum() and text[i + 1].isalnum():
+            out.append(ch)  # inside a word (R_K, class_a) an underscore is never emphasis
+        elif ch in _MARKDOWN:
+            out.append("\\" + ch)
+        elif ch < " " or ch == "\x7f":
+            out.append(" ")
+        else:
+            out.append(ch)
+    text = "".join(out)
+    for ch, entity in _HTML:
+        text = text.replace(ch, entity)
+    return text
+
+
+_escape = escape_markdown
 
 
 def markdown_table(table: Table) -> str:
@@ -27,7 +67,7 @@ def markdown_table(table: Table) -> str:
     head = "| " + " | ".join(_escape(c.title) for c in table.columns) + " |"
     rule = "|" + "|".join("--:" if c.numeric else ":--" for c in table.columns) + "|"
     body = ["| " + " | ".join(_escape(c) for c in row) + " |" for row in table.cells()]
-    lines = [f"### {table.title}", "", head, rule, *body]
+    lines = [f"### {_escape(table.title)}", "", head, rule, *body]
     if table.note:
         lines += ["", f"_{_escape(table.note)}_"]
     return "\n".join(lines)
@@ -45,8 +85,8 @@ def render_markdown(report: Report) -> str:
     >>> md.splitlines()[0]
     '## foldcorr score'
     """
-    lines = [f"## {report.title}", ""]
-    lines += [f"- **{key}**: {_escape(value)}" for key, value in report.facts]
+    lines = [f"## {_escape(report.title)}", ""]
+    lines += [f"- **{_escape(key)}**: {_escape(value)}" for key, value in report.facts]
     for table in report.tables:
         lines += ["", markdown_table(table)]
     if report.warnings:

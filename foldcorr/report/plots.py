@@ -25,6 +25,7 @@ import numpy as np
 
 from foldcorr.errors import InvalidTensorError, require
 from foldcorr.figures import BUDGETED, MULTICLASS, POOLED
+from foldcorr.report.tables import plot_text
 
 __all__ = [
     "COLOURS",
@@ -64,7 +65,8 @@ _HEAT = ("#FFFFFF", "#C6DBEF", "#6BAED6", "#2171B5", "#08306B")
 
 def _short(label) -> str:
     text = str(label)
-    return text if len(text) <= MAX_LABEL else text[: MAX_LABEL - 1] + "\u2026"
+    text = text if len(text) <= MAX_LABEL else text[: MAX_LABEL - 1] + "\u2026"
+    return plot_text(text)
 
 
 def _mpl():

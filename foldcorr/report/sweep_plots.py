@@ -53,6 +53,7 @@ def plot_sweep(result: SweepResult, folder) -> list[Path]:
     """
     from foldcorr._files import atomic_target
     from foldcorr.errors import InvalidInputError, require
+    from foldcorr.report.tables import plot_text
 
     why = "--plot (sweep figures)"
     require("matplotlib", extra="plot", purpose=why)
@@ -87,7 +88,7 @@ def plot_sweep(result: SweepResult, folder) -> list[Path]:
         ax.set_xlabel("threshold (predict positive when score >= threshold)")
         ax.set_ylabel("value")
         ax.set_ylim(min(-0.05, float(curve["mcc"].min()) - 0.05), 1.05)
-        title = "binary sweep" if s.label is None else f"label {s.label}"
+        title = "binary sweep" if s.label is None else f"label {plot_text(s.label)}"
         ax.set_title(f"{title}: {s.n_thresholds} distinct thresholds")
         ax.grid(alpha=0.3)
         ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8, frameon=False)

@@ -14,7 +14,7 @@ from foldcorr.figures import MULTICLASS, MULTILABEL, PER_FOLD, POOLED, Figure
 from foldcorr.report.sections import hooks
 
 __all__ = ["Column", "Table", "Report", "score_report", "format_value", "figure_column",
-           "figure_cell", "COLUMN_KIND", "WORDING"]
+           "figure_cell", "COLUMN_KIND", "WORDING", "plot_text"]
 
 
 @dataclass(frozen=True)
@@ -242,3 +242,15 @@ def score_report(ev: Evaluation, *, top: int | None = 20, source: str | None = N
     for make in hooks(ev, "tables"):
         tables.extend(make(ev, top))
     return Report(words["title"], facts, tuple(t for t in tables if t is not None), ev.warnings)
+
+
+def plot_text(label) -> str:
+    """A label as literal plot text: ``$`` never starts math, control characters are spaces.
+
+    Examples
+    --------
+    >>> print(plot_text("$x$ costs 5 $"))
+    \\$x\\$ costs 5 \\$
+    """
+    text = "".join(" " if ch < " " or ch == "\x7f" else ch for ch in str(label))
+    return text.replace("$", "\\$")

@@ -20,7 +20,9 @@ A saved evaluation is a NetCDF-4 (HDF5-based) file written through xarray's
 
 Files are written to a temporary file beside the target and renamed onto it,
 so a reader never sees half a file. A file that is truncated, foreign, or of
-another schema version is refused with one clear message.
+another schema version is refused with one clear message, and so is one whose
+attributes or variables are not as described above (``options`` not a JSON
+object, dims or dtypes other than written, sample indices out of range).
 """
 
 from __future__ import annotations
@@ -432,10 +434,8 @@ def load_saved(path) -> SavedEvaluation:
             f"{name}: saved with schema {schema!r}, which this version ({__version__}) cannot "
             f"read; expected {SAVED_SCHEMA!r}"
         )
-    try:
-        options = json.loads(ds.attrs.get("options", "{}"))
-    except json.JSONDecodeError:
-        raise InvalidInputError(f"{name}: attribute 'options' is not valid JSON") from None
+    options = _read_options(ds, name)
+    _check_layout(ds, name)
     count = ds[COUNT]
     attrs = {k: _attr_value(v) for k, v in count.attrs.items()}
     try:
@@ -450,20 +450,80 @@ def load_saved(path) -> SavedEvaluation:
                            options=options, provenance=provenance)
 
 
+def _read_options(ds: xr.Dataset, name: str) -> dict:
+    text = ds.attrs.get("options", "{}")
+    if not isinstance(text, str):
+        raise InvalidInputError(f"{name}: attribute 'options' must be JSON text; got "
+                                f"{type(text).__name__} {_attr_value(text)!r}")
+    try:
+        options = json.loads(text)
+    except (json.JSONDecodeError, RecursionError):
+        raise InvalidInputError(f"{name}: attribute 'options' is not valid JSON") from None
+    if not isinstance(options, dict):
+        kind = {list: "an array", str: "a string", bool: "true or false", type(None): "null"}
+        raise InvalidInputError(f"{name}: attribute 'options' must be a JSON object; got "
+                                f"{kind.get(type(options), 'a number')}")
+    return options
+
+
+#: Dims the stored counts may have (leading dims first, then the two class dims).
+COUNT_DIMS = (FOLD, "label", ACTUAL, PREDICTED)
+
+
+def _check_layout(ds: xr.Dataset, name: str) -> None:
+    """Refuse dims, dtypes and coordinates that :func:`save_evaluation` never writes."""
+    count = ds[COUNT]
+    dims = tuple(count.dims)
+    if not set(dims) <= set(COUNT_DIMS) or dims[-2:] != (ACTUAL, PREDICTED):
+        raise InvalidInputError(f"{name}: variable 'count' has dims {dims!r}; expected "
+                                f"([fold,] [label,] actual, predicted)")
+    if count.dtype.kind not in "iuf":
+        raise InvalidInputError(f"{name}: variable 'count' has dtype {str(count.dtype)!r}; "
+                                "expected int64 counts (float64 when weighted)")
+    for dim in (d for d in dims if d in ds.coords and d != PREDICTED):
+        labels = pd.Index(np.asarray(ds.coords[dim].values).tolist())
+        if labels.has_duplicates:
+            raise InvalidInputError(f"{name}: coordinate {dim!r} repeats "
+                                    f"{labels[labels.duplicated()][0]!r}; labels must be unique")
+    present = [v for v in _SAMPLE_VARS if v in ds.variables]
+    if present and not {"sample_id", "sample_actual", "sample_predicted"} <= set(present):
+        missing = sorted({"sample_id", "sample_actual", "sample_predicted"} - set(present))
+        raise InvalidInputError(f"{name}: per-sample variables are incomplete: missing "
+                                f"{missing!r}")
+    for var in present:
+        if tuple(ds[var].dims) != (SAMPLE,):
+            raise InvalidInputError(f"{name}: variable {var!r} has dims {tuple(ds[var].dims)!r}; "
+                                    f"expected ({SAMPLE!r},)")
+        if var != "sample_id" and ds[var].dtype.kind not in "iu":
+            raise InvalidInputError(f"{name}: variable {var!r} has dtype "
+                                    f"{str(ds[var].dtype)!r}; expected whole-number indices")
+    if "sample_fold" in present and FOLD not in dims:
+        raise InvalidInputError(f"{name}: variable 'sample_fold' is stored but the counts have "
+                                "no fold dim")
+
+
+def _codes(ds: xr.Dataset, var: str, size: int, into: str, name: str) -> np.ndarray:
+    """The indices of ``var``, each checked to lie in ``range(size)``."""
+    values = np.asarray(ds[var].values, dtype=np.int64)
+    bad = (values < 0) | (values >= size)
+    if bad.any():
+        row = int(np.flatnonzero(bad)[0])
+        raise InvalidInputError(f"{name}: variable {var!r} row {row + 1}: index "
+                                f"{int(values[row])} is out of range; {into} has {size} "
+                                f"entries (0 to {size - 1})")
+    return values
+
+
 def _read_sample_vars(ds: xr.Dataset, tensor: xr.DataArray, name: str) -> Samples | None:
     if "sample_id" not in ds.variables:
         return None
     classes = tensor.coords[ACTUAL].values
-    k = len(classes)
-    codes = {}
-    for var in ("sample_actual", "sample_predicted"):
-        values = np.asarray(ds[var].values, dtype=np.int64) if var in ds else None
-        if values is None or values.size and (values.min() < 0 or values.max() >= k):
-            raise InvalidInputError(f"{name}: variable {var!r} is missing or out of range")
-        codes[var] = values
+    codes = {var: _codes(ds, var, len(classes), "the class coordinate", name)
+             for var in ("sample_actual", "sample_predicted")}
     fold = None
     if "sample_fold" in ds.variables and FOLD in tensor.dims:
-        fold = tensor.coords[FOLD].values[np.asarray(ds["sample_fold"].values, dtype=np.int64)]
+        folds = tensor.coords[FOLD].values
+        fold = folds[_codes(ds, "sample_fold", len(folds), "the fold coordinate", name)]
     return Samples.of(ds["sample_id"].values, classes[codes["sample_actual"]],
                       classes[codes["sample_predicted"]], fold,
                       id_column=str(ds.attrs.get("id_column", "id")))
