@@ -18,10 +18,11 @@ _EXPORTS = {
         "joint_tally", "model_tensors", "multilabel_tally", "indicators_from_sets",
     ],
     "foldcorr.metrics": [
-        "rk", "mcc", "ovr_mcc", "decompose", "accuracy", "balanced_accuracy",
+        "rk", "mcc", "ovr_mcc", "accuracy", "balanced_accuracy",
         "cohen_kappa", "recall", "precision", "f1", "macro_f1", "macro_mcc",
         "support", "predicted_count", "top_confusion",
     ],
+    "foldcorr.decomposition": ["decompose", "mismatch_shares"],
     "foldcorr.analysis.gains": [
         "pair_gains", "class_gains", "leave_class_out", "costliest_confusions",
     ],

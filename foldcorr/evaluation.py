@@ -17,8 +17,9 @@ import xarray as xr
 
 from foldcorr import figures as fg
 from foldcorr import metrics as m
+from foldcorr.decomposition import FLAGS
 from foldcorr.errors import InvalidTensorError, check_choice, collect_undefined
-from foldcorr.tensor import ACTUAL, FOLD, LABEL, PREDICTED, pool, validate_tensor
+from foldcorr.tensor import ACTUAL, CLASS, FOLD, LABEL, PREDICTED, pool, py_value, validate_tensor
 
 __all__ = ["Evaluation", "FoldSummary", "evaluate", "tensor_kind", "compute_figures"]
 
@@ -196,7 +197,7 @@ class Evaluation:
         return _number(self.pooled[name])
 
     def ranked(self) -> xr.Dataset:
-        """The row table in report order: classes by drag, labels by cost, largest first.
+        """The row table in report order: classes by shortfall share, labels by cost, largest first.
 
         Ties keep tensor order.
 
@@ -213,7 +214,7 @@ class Evaluation:
         return rows.isel({self.row_scope: order})
 
     def by_drag(self) -> xr.Dataset:
-        """The per-class table sorted by drag, largest first (ties by class order)."""
+        """The per-class table in report order (:meth:`ranked`): by shortfall share, largest first."""
         return self.ranked()
 
     def with_extra(self, name: str, value) -> Evaluation:
@@ -367,6 +368,7 @@ def evaluate(t, *, undefined: str = "zero") -> Evaluation:
         rows = rows.isel({LABEL: order})
     else:
         notes.extend(_accuracy_hides(pooled, rows))
+        notes.extend(_flag_notes(rows))
     return Evaluation(
         tensor=t,
         pooled=pooled,
@@ -378,6 +380,20 @@ def evaluate(t, *, undefined: str = "zero") -> Evaluation:
         kind=kind,
         per_label=rows if kind == fg.MULTILABEL else None,
     )
+
+
+def _flag_notes(per_class: xr.Dataset) -> list[str]:
+    """One warning per flag (:data:`foldcorr.decomposition.FLAGS`) naming the classes raising it."""
+    bits = per_class["flags"].values
+    labels = per_class.coords[CLASS].values
+    notes = []
+    for i, word in enumerate(FLAGS):
+        named = [repr(py_value(label)) for label in labels[(bits >> i & 1) > 0]]
+        if named:
+            shown = ", ".join(named[:m.MAX_PLACES])
+            more = f" and {len(named) - m.MAX_PLACES} more" if len(named) > m.MAX_PLACES else ""
+            notes.append(f"{word}: class {shown}{more}")
+    return notes
 
 
 def _accuracy_hides(pooled: xr.Dataset, per_class: xr.Dataset) -> list[str]:

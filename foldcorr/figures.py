@@ -23,6 +23,7 @@ import numpy as np
 import xarray as xr
 
 from foldcorr import metrics as m
+from foldcorr.decomposition import class_flags, decompose
 from foldcorr.errors import UndefinedMetricWarning
 from foldcorr.tensor import ACTUAL, CLASS, LABEL, PREDICTED
 
@@ -41,8 +42,9 @@ POOLED, PER_FOLD, PER_CLASS, PER_LABEL = "pooled", "fold", "class", "label"
 SCOPES = (POOLED, PER_FOLD, PER_CLASS, PER_LABEL)
 
 #: How a figure is formatted: a correlation (colour bands on a terminal), another
-#: metric (three decimals), a count, or a class confusion (a label and a count).
-STYLES = ("correlation", "metric", "count", "confusion")
+#: metric (three decimals), a count, a class confusion (a label and a count), or
+#: the bits of :func:`foldcorr.decomposition.class_flags` (words in reports, a list in JSON).
+STYLES = ("correlation", "metric", "count", "confusion", "flags")
 
 
 @dataclass(frozen=True)
@@ -265,7 +267,7 @@ FIGURES: tuple[Figure, ...] = (
     Figure("kappa", "Cohen's kappa", m.cohen_kappa, POOLED, _C),
     Figure("macro_f1", "macro F1", m.macro_f1, POOLED, _C),
     Figure("macro_mcc", "macro one-vs-rest MCC", m.macro_mcc, POOLED, _C, "correlation"),
-    Figure("marginal_mismatch", "marginal mismatch", m.decompose, POOLED, _C,
+    Figure("marginal_mismatch", "marginal mismatch", decompose, POOLED, _C,
            part="marginal_mismatch"),
     Figure("micro_mcc", "micro MCC (tensor summed over labels)", micro_mcc, POOLED, _L,
            "correlation", headline="micro MCC"),
@@ -283,13 +285,17 @@ FIGURES: tuple[Figure, ...] = (
     # one per class (multiclass), pooled over folds
     Figure("support", "support", _support, PER_CLASS, _C, "count"),
     Figure("predicted", "predicted", _predicted, PER_CLASS, _C, "count"),
-    Figure("mcc", "MCC", m.decompose, PER_CLASS, _C, "correlation", part="mcc"),
-    Figure("weight", "weight", m.decompose, PER_CLASS, _C, part="weight"),
-    Figure("contribution", "contrib.", m.decompose, PER_CLASS, _C, part="contribution"),
-    Figure("drag", "drag", m.decompose, PER_CLASS, _C, part="drag"),
+    Figure("mcc", "MCC", decompose, PER_CLASS, _C, "correlation", part="mcc"),
+    Figure("weight", "weight", decompose, PER_CLASS, _C, part="weight"),
+    Figure("contribution", "contrib.", decompose, PER_CLASS, _C, part="contribution"),
+    Figure("drag", "drag", decompose, PER_CLASS, _C, part="drag"),
+    Figure("mismatch_share", "mismatch share", decompose, PER_CLASS, _C, part="mismatch_share"),
+    Figure("shortfall_share", "shortfall share", decompose, PER_CLASS, _C,
+           part="shortfall_share"),
     Figure("recall", "recall", m.recall, PER_CLASS, _C),
     Figure("precision", "precision", m.precision, PER_CLASS, _C),
     Figure("f1", "F1", m.f1, PER_CLASS, _C),
+    Figure("flags", "flags", class_flags, PER_CLASS, _C, "flags"),
     Figure("top_confusion", "most often taken for", _top_confusion, PER_CLASS, _C, "confusion"),
     # one per label (multilabel), pooled over folds
     Figure("support", "support", _label_support, PER_LABEL, _L, "count"),
@@ -304,7 +310,7 @@ FIGURES: tuple[Figure, ...] = (
 )
 
 #: The figure a row table is sorted by (largest first), per row scope.
-RANKED_BY = {PER_CLASS: "drag", PER_LABEL: "cost"}
+RANKED_BY = {PER_CLASS: "shortfall_share", PER_LABEL: "cost"}
 
 #: The pooled figure whose shortfall from 1 the row drags add up to (with the
 #: marginal mismatch for multiclass), per kind: the figure of the loss budget.

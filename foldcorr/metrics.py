@@ -41,7 +41,6 @@ __all__ = [
     "rk",
     "mcc",
     "ovr_mcc",
-    "decompose",
     "accuracy",
     "balanced_accuracy",
     "cohen_kappa",
@@ -307,70 +306,6 @@ def ovr_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
     if bad.any():
         _warn_undefined(s, bad, "one-vs-rest MCC", undefined, per_class=True, stacklevel=3)
     return _wrap(s, out, "mcc", per_class=True)
-
-
-def decompose(t, *, undefined: str = "zero") -> xr.Dataset:
-    r"""Exact additive decomposition of R_K into per-class terms.
-
-    Parameters
-    ----------
-    t : xarray.DataArray
-        Confusion tensor.
-    undefined : {"zero", "nan"}, default "zero"
-        Convention for R_K and one-vs-rest MCC where they are 0/0.
-
-    Returns
-    -------
-    xarray.Dataset
-        ``weight``, ``mcc``, ``contribution`` and ``drag`` with dims
-        ``(..., "class")``; ``rk`` and ``marginal_mismatch`` over the leading
-        dims. ``contribution.sum("class") == rk`` and
-        ``drag.sum("class") + marginal_mismatch == 1 - rk``.
-
-    Notes
-    -----
-    With :math:`a_k = p_k(s-p_k)`, :math:`b_k = t_k(s-t_k)` and
-    :math:`w_k = \sqrt{a_k b_k} / \sqrt{\sum a \sum b}`,
-
-    .. math:: R_K = \sum_k w_k \mathrm{MCC}_k, \qquad
-              1 - R_K = \sum_k w_k (1 - \mathrm{MCC}_k) + \Big(1 - \sum_k w_k\Big)
-
-    and the last term is non-negative by Cauchy-Schwarz. See
-    ``docs/decomposition.md`` for the proof. Where R_K itself is undefined all
-    weights are 0 and the mismatch term carries ``1 - rk``.
-
-    Examples
-    --------
-    >>> from foldcorr.tensor import confusion_tensor
-    >>> t = confusion_tensor([[4, 1, 0], [0, 3, 1], [1, 0, 5]], ["a", "b", "c"])
-    >>> d = decompose(t)
-    >>> round(float(d.contribution.sum("class")), 12) == round(float(d.rk), 12)
-    True
-    >>> round(float(d.drag.sum("class") + d.marginal_mismatch + d.rk), 12)
-    1.0
-    """
-    s = Sums.of(t)
-    a, b = s.spread_predicted(), s.spread_actual()
-    scale = np.sqrt(a.sum(axis=-1)) * np.sqrt(b.sum(axis=-1))
-    defined = (scale > 0)[..., None]
-    safe = np.where(scale > 0, scale, 1.0)[..., None]
-    weight = np.where(defined, np.sqrt(a) * np.sqrt(b) / safe, 0.0)
-    num = s.total[..., None] * s.diag - s.actual * s.predicted
-    contribution = np.where(defined, num / safe, 0.0)
-    drag = np.maximum(weight - contribution, 0.0)  # w (1 - MCC) >= 0; clip rounding
-    total_rk = rk(s.tensor, undefined=undefined).values
-    mismatch = np.where(scale > 0, 1.0 - weight.sum(axis=-1), 1.0 - total_rk)
-    per_class = ovr_mcc(s.tensor, undefined=undefined)
-    return xr.Dataset(
-        {
-            "weight": _wrap(s, weight, "weight", per_class=True),
-            "mcc": per_class,
-            "contribution": _wrap(s, contribution, "contribution", per_class=True),
-            "drag": _wrap(s, drag, "drag", per_class=True),
-            "rk": _wrap(s, total_rk, "rk"),
-            "marginal_mismatch": _wrap(s, np.maximum(mismatch, 0.0), "marginal_mismatch"),
-        }
-    )
 
 
 def accuracy(t, *, undefined: str = "zero") -> xr.DataArray:

@@ -82,7 +82,7 @@ def test_text_report_sections(capsys, table):
     path, _ = table
     code, out, _ = run(capsys, "score", path, "--top", "2")
     assert code == 0
-    for heading in ("foldcorr score", "Pooled over all samples", "Folds", "Classes by drag (top 2 of 4)",
+    for heading in ("foldcorr score", "Pooled over all samples", "Folds", "Classes by shortfall share (top 2 of 4)",
                     "2 more classes not shown"):
         assert heading in out
     assert "\x1b[" not in out  # not a terminal: no colour codes

@@ -112,7 +112,7 @@ def test_chromium_renders_and_screenshots(report, tmp_path):
     assert shot.stat().st_size > 20_000  # a blank page compresses to a few hundred bytes
     dom = subprocess.run([*run, "--dump-dom", path.as_uri()], capture_output=True, text=True,
                          timeout=120, check=True).stdout
-    assert "Classes by drag" in dom
+    assert "Classes by shortfall share" in dom
     for figure in figures(doc):
         assert figure in dom
 
@@ -129,7 +129,7 @@ def test_sorting_a_column_reorders_rows(report, tmp_path):
         try:
             page = browser.new_page()
             page.goto(path.as_uri())
-            table = page.locator("#classes-by-drag-table")
+            table = page.locator("#classes-by-shortfall-share-table")
 
             def first_column():
                 return table.locator("tbody tr td:first-child").all_inner_texts()

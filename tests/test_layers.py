@@ -21,7 +21,8 @@ ORDER = ["errors", "tensor", "metrics", "analysis", "evaluation", "gate", "sourc
          "report", "cli"]
 #: Top-level modules that are not a layer of their own name.
 LAYER_OF_MODULE = {"_files": "errors", "_version": "errors", "_lazy": "errors", "testing": "tensor",
-                   "figures": "metrics", "__main__": "cli", "__init__": "cli"}
+                   "figures": "metrics", "decomposition": "metrics",
+                   "__main__": "cli", "__init__": "cli"}
 #: Methods of result objects that may import their renderer at call time.
 DISPLAY_HOOKS = {"__rich__", "_repr_html_"}
 MAX_LINES = 600

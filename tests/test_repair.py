@@ -24,7 +24,7 @@ from sklearn.metrics import matthews_corrcoef
 from foldcorr.analysis import gains as repair_gains
 from foldcorr.analysis import repair
 from foldcorr.errors import InvalidTensorError, OptionError, UndefinedMetricWarning
-from foldcorr.metrics import decompose
+from foldcorr.decomposition import decompose
 from foldcorr.tensor import confusion_tensor, tally
 
 

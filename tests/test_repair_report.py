@@ -74,7 +74,7 @@ def test_text_and_markdown_show_the_section_and_the_gain_columns():
     report = score_report(ev, top=1)
     titles = [t.title for t in report.tables]
     assert "Costliest confusions (top 1 by repair gain)" in titles
-    classes = next(t for t in report.tables if t.title.startswith("Classes by drag"))
+    classes = next(t for t in report.tables if t.title.startswith("Classes by shortfall share"))
     assert [c.title for c in classes.columns][-6:] == [
         "fix FN", "fix FP", "fix both", "w/o class", "top-5 folds", "most often taken for"]
     md = render_score(ev, "markdown", top=3)

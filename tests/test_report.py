@@ -23,7 +23,7 @@ def test_rich_protocol_and_colour_bands():
     console = Console(file=io.StringIO(), width=120, color_system="truecolor", force_terminal=True)
     console.print(evaluation())
     text = console.file.getvalue()
-    assert "\x1b[" in text and "Classes by drag" in text
+    assert "\x1b[" in text and "Classes by shortfall share" in text
     plain = Console(file=io.StringIO(), width=120, color_system=None)
     plain.print(evaluation())
     assert "\x1b[" not in plain.file.getvalue()

@@ -23,7 +23,8 @@ from foldcorr.analysis.gains import (
     pair_gains,
 )
 from foldcorr.errors import InvalidTensorError, OptionError, UndefinedMetricWarning, check_choice
-from foldcorr.metrics import UNDEFINED_CHOICES, Sums, correlation, decompose
+from foldcorr.decomposition import decompose
+from foldcorr.metrics import UNDEFINED_CHOICES, Sums, correlation
 from foldcorr.tensor import ACTUAL, CLASS, FOLD, PREDICTED, pool, py_value, validate_tensor
 
 __all__ = ["fold_stability", "repair_analysis", "RepairAnalysis"]
@@ -49,7 +50,7 @@ def fold_stability(t, *, top: int = 5, dim: str = FOLD) -> xr.Dataset:
     -------
     xarray.Dataset
         ``drag`` and ``rank`` with dims ``(..., fold, class)``: each class's
-        drag per fold (see :func:`foldcorr.metrics.decompose`) and its rank,
+        drag per fold (see :func:`foldcorr.decomposition.decompose`) and its rank,
         1 for the largest (ties share the best rank: 1 plus the number of
         classes with a strictly larger drag); ``in_top`` (rank <= top and
         drag > 0); and over the folds, dims ``(..., class)``: ``top_folds``

@@ -29,7 +29,8 @@ from foldcorr.analysis.resampling import (
     interval, jackknife_moments, pool_folds, statistic_draws, statistic_label, whole_counts,
 )
 from foldcorr.errors import InvalidTensorError, UndefinedMetricWarning, check_choice
-from foldcorr.metrics import decompose, ovr_mcc, rk
+from foldcorr.decomposition import decompose
+from foldcorr.metrics import ovr_mcc, rk
 from foldcorr.tensor import ACTUAL, CLASS, FOLD, PREDICTED, validate_tensor
 
 __all__ = [
@@ -363,7 +364,7 @@ def drag(t, *, undefined: str = "zero") -> xr.DataArray:
     t : xarray.DataArray
         Confusion tensor.
     undefined : {"zero", "nan"}, default "zero"
-        Convention of :func:`foldcorr.metrics.decompose`.
+        Convention of :func:`foldcorr.decomposition.decompose`.
 
     Returns
     -------

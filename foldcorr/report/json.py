@@ -20,6 +20,7 @@ import math
 
 import numpy as np
 
+from foldcorr.decomposition import flag_words
 from foldcorr.evaluation import Evaluation
 from foldcorr.figures import MULTILABEL, PER_FOLD, POOLED
 from foldcorr.report.sections import hooks
@@ -66,6 +67,8 @@ def pooled_figures(ev: Evaluation) -> dict:
 
 
 def _entry(table, i: int, figure) -> object:
+    if figure.style == "flags":
+        return flag_words(table[figure.key].values[i])
     if figure.style != "confusion":
         return table[figure.key].values[i]
     count = table[f"{figure.key}_count"].values[i]

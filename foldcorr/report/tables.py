@@ -9,6 +9,9 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
+import numpy as np
+
+from foldcorr.decomposition import flag_words
 from foldcorr.evaluation import Evaluation
 from foldcorr.figures import MULTICLASS, MULTILABEL, PER_FOLD, POOLED, Figure
 from foldcorr.report.sections import hooks
@@ -96,12 +99,12 @@ def _py(value):
 
 #: Column kind of each figure style (:data:`foldcorr.figures.STYLES`).
 COLUMN_KIND = {"correlation": "correlation", "metric": "metric", "count": "count",
-               "confusion": "text"}
+               "confusion": "text", "flags": "text"}
 
 #: The words of a report that depend on the tensor kind (the figures come from the registry).
 WORDING = {
     MULTICLASS: {"title": "foldcorr score", "summary": "Pooled over all samples",
-                 "rows": "Classes by drag", "unit": "classes", "note": ""},
+                 "rows": "Classes by shortfall share", "unit": "classes", "note": ""},
     MULTILABEL: {"title": "foldcorr score (multilabel)", "summary": "Averages over labels",
                  "rows": "Labels by cost", "unit": "labels",
                  "note": "cost = (1 - MCC) x support: the labels that cost the most come first"},
@@ -137,6 +140,8 @@ def figure_cell(table, i: int, figure: Figure):
             return ""
         return f"{_py(table[figure.key].values[i])} ({format_value(count, 'count')})"
     value = _py(table[figure.key].values[i])
+    if figure.style == "flags":
+        return ", ".join(flag_words(value))
     if figure.style != "count":
         return float(value)
     return round(value, 1) if isinstance(value, float) else value
@@ -205,10 +210,12 @@ def class_table(ev: Evaluation, top: int | None = 20) -> Table:
     d = ev.ranked()
     dim = ev.row_scope
     k = d.sizes[dim]
-    shown = k if top is None else min(top, k)
+    flagged = d["flags"].values > 0 if "flags" in d else np.zeros(k, bool)
+    listed = [i for i in range(k) if top is None or i < top or flagged[i]]
+    shown = len(listed)
     figures = ev.figures(dim)
-    keys = [_py(v) for v in d.coords[dim].values[:shown]]
-    rows = [(key, *(figure_cell(d, i, fig) for fig in figures)) for i, key in enumerate(keys)]
+    keys = [_py(d.coords[dim].values[i]) for i in listed]
+    rows = [(key, *(figure_cell(d, i, fig) for fig in figures)) for i, key in zip(listed, keys)]
     columns = (Column(dim, "label"), *(figure_column(fig) for fig in figures))
     columns, rows = _extra_columns(ev, "class_columns", columns, rows, keys, figures=figures,
                                    before_last=True)
@@ -216,6 +223,8 @@ def class_table(ev: Evaluation, top: int | None = 20) -> Table:
     notes = [words["note"]] + [note(ev) for note in hooks(ev, "class_note")]
     if shown < k:
         notes.append(f"{k - shown} more {words['unit']} not shown (use --top all)")
+    if top is not None and shown > min(top, k):
+        notes.append(f"{shown - min(top, k)} flagged {words['unit']} listed beyond the top {top}")
     return Table(f"{words['rows']} (top {shown} of {k})", columns, tuple(rows),
                  "; ".join(n for n in notes if n))
 
@@ -229,7 +238,7 @@ def score_report(ev: Evaluation, *, top: int | None = 20, source: str | None = N
     >>> from foldcorr.evaluation import evaluate
     >>> r = score_report(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
     >>> [t.title for t in r.tables]
-    ['Pooled over all samples', 'Classes by drag (top 2 of 2)']
+    ['Pooled over all samples', 'Classes by shortfall share (top 2 of 2)']
     """
     src = source or ev.tensor.attrs.get("source", "(in memory)")
     folds = ev.folds.sizes["fold"] if ev.folds is not None else "none"

@@ -130,7 +130,7 @@ def render_text(report: Report, *, width: int = PLAIN_WIDTH) -> str:
     >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> text = render_text(score_report(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))))
-    >>> "\\x1b[" in text, "Classes by drag" in text
+    >>> "\\x1b[" in text, "Classes by shortfall share" in text
     (False, True)
     """
     console = Console(file=io.StringIO(), width=width, color_system=None,

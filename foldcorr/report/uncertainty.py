@@ -63,7 +63,7 @@ def _by_class(res) -> dict:
 
 
 def tables(ev, top) -> list:
-    """Per-class intervals (classes in drag order, as the class table) and fold statistics."""
+    """Per-class intervals (classes in the class table's order) and fold statistics."""
     u = ev.extras[KEY]
     order = [_py(c) for c in ev.by_drag().coords["class"].values]
     shown = order if top is None else order[:top]
@@ -71,7 +71,7 @@ def tables(ev, top) -> list:
     rows = tuple((c, float(u.mcc.estimate.sel({"class": c})), mcc[c],
                   float(u.drag.estimate.sel({"class": c})), drag[c]) for c in shown)
     lvl = percent(u.level)
-    out = [Table(f"Class intervals (top {len(shown)} of {len(order)} by drag)",
+    out = [Table(f"Class intervals (top {len(shown)} of {len(order)} by shortfall share)",
                  (Column("class", "label"), Column("MCC", "correlation"),
                   Column(f"MCC {lvl} CI", "label"), Column("drag"),
                   Column(f"drag {lvl} CI", "label")), rows,
