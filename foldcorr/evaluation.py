@@ -13,6 +13,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 
 import numpy as np
+import pandas as pd
 import xarray as xr
 
 from foldcorr import figures as fg
@@ -21,7 +22,7 @@ from foldcorr.decomposition import FLAGS
 from foldcorr.errors import InvalidTensorError, check_choice, collect_undefined
 from foldcorr.tensor import ACTUAL, CLASS, FOLD, LABEL, PREDICTED, pool, py_value, validate_tensor
 
-__all__ = ["Evaluation", "FoldSummary", "evaluate", "tensor_kind", "compute_figures"]
+__all__ = ["Evaluation", "FoldSummary", "FRAME_KINDS", "evaluate", "tensor_kind", "compute_figures"]
 
 #: Accuracy at or above this while R_K is below ACCURACY_HIDES_RK gets a warning.
 ACCURACY_LOOKS_GOOD = 0.9
@@ -68,6 +69,10 @@ class FoldSummary:
             min_rk=float(np.min(values)),
             max_rk=float(np.max(values)),
         )
+
+
+#: The tables :meth:`Evaluation.to_frame` gives.
+FRAME_KINDS = ("class", "fold", "label", "confusions")
 
 
 @dataclass(frozen=True)
@@ -235,6 +240,116 @@ class Evaluation:
         from foldcorr.report.text import render_rich  # rendering lives in the report layer
 
         return render_rich(self)
+
+    def to_frame(self, kind: str = "class") -> pd.DataFrame:
+        """One table of this evaluation as a tidy pandas DataFrame, one row per entry.
+
+        Parameters
+        ----------
+        kind : {"class", "fold", "label", "confusions"}
+            ``"class"``: the per-class figures (multiclass); ``"label"``: the
+            per-label figures (multilabel); ``"fold"``: the per-fold figures;
+            ``"confusions"``: every cell of the tensor, a ``count`` column
+            beside its coordinates.
+
+        Raises
+        ------
+        OptionError
+            An unknown ``kind``, or one this evaluation does not have (no folds,
+            a multilabel evaluation asked for classes, ...).
+
+        Examples
+        --------
+        >>> from foldcorr.tensor import confusion_tensor
+        >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
+        >>> ev.to_frame("confusions")["count"].tolist()
+        [6, 2, 1, 3]
+        """
+        from foldcorr.errors import OptionError
+        from foldcorr.tensor.backing import as_dense
+
+        check_choice("kind", kind, FRAME_KINDS)
+        if kind == "confusions":
+            return as_dense(self.tensor).to_dataframe(name="count").reset_index()
+        data = {"class": self.per_class, "label": self.per_label, "fold": self.folds}[kind]
+        if data is None:
+            raise OptionError(f"`kind` {kind!r} has no table in this {self.kind} evaluation"
+                              f"{'' if kind != 'fold' else ' without folds'}")
+        return data.to_dataframe().reset_index()
+
+    def to_dict(self) -> dict[str, float]:
+        """The headline figures, flat: every pooled figure, and each per-fold figure's mean and sd.
+
+        Keys are figure keys of :data:`foldcorr.figures.FIGURES` (pooled) and
+        ``fold_mean_<key>`` / ``fold_sd_<key>`` (sample sd, ddof = 1) with folds;
+        values are Python floats, ready for an experiment tracker.
+
+        Examples
+        --------
+        >>> from foldcorr.tensor import confusion_tensor
+        >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
+        >>> ev.to_dict()["accuracy"]
+        0.75
+        """
+        out = {k: float(v) for k, v in self.pooled.data_vars.items()
+               if v.ndim == 0 and v.dtype.kind in "iufb"}
+        for key, values in (self.folds.data_vars.items() if self.folds is not None else ()):
+            if key != "n" and values.dims == (FOLD,) and values.dtype.kind in "iuf":
+                v = values.values.astype(float)
+                out[f"fold_mean_{key}"] = float(np.mean(v))
+                out[f"fold_sd_{key}"] = float(np.std(v, ddof=1)) if v.size > 1 else float("nan")
+        return out
+
+    def to_json(self) -> str:
+        """The JSON document ``foldcorr score --format json`` writes.
+
+        Examples
+        --------
+        >>> from foldcorr.tensor import confusion_tensor
+        >>> evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).to_json()[:32]
+        '{\\n  "schema": "foldcorr.score/1"'
+        """
+        from foldcorr.report import render  # rendering lives in the report layer
+
+        return render(self, "json")
+
+    def to_html(self) -> str:
+        """The HTML page ``foldcorr score --format html`` writes.
+
+        Examples
+        --------
+        >>> from foldcorr.tensor import confusion_tensor
+        >>> evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).to_html()[:15]
+        '<!DOCTYPE html>'
+        """
+        from foldcorr.report import render  # rendering lives in the report layer
+
+        return render(self, "html")
+
+    def to_markdown(self) -> str:
+        """The Markdown ``foldcorr score --format markdown`` writes.
+
+        Examples
+        --------
+        >>> from foldcorr.tensor import confusion_tensor
+        >>> evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).to_markdown()[:17]
+        '## foldcorr score'
+        """
+        from foldcorr.report import render  # rendering lives in the report layer
+
+        return render(self, "markdown")
+
+    def _repr_html_(self) -> str:
+        from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
+
+        return html_fragment(self)
+
+    def __repr__(self) -> str:
+        folds = f", {self.tensor.sizes[FOLD]} folds" if FOLD in self.tensor.dims else ""
+        head = ", ".join(f"{f.key}={self.figure(f.key):.4f}" for f in self.figures(fg.POOLED)
+                         if f.key != "n" and self.pooled[f.key].ndim == 0)
+        return (f"Evaluation({self.kind}, {len(self.row_names)} {self.row_scope} rows, "
+                f"n={self.n}{folds}, {len(self.warnings)} warnings)\n  {head}")
 
 
 def _number(value) -> float:

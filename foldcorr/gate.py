@@ -233,6 +233,16 @@ class GateResult:
         """The rules that failed."""
         return tuple(r for r in self.rules if not r.passed)
 
+    def _repr_html_(self) -> str:
+        from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
+
+        return html_fragment(self)
+
+    def __repr__(self) -> str:
+        failed = ", ".join(r.rule for r in self.failed) or "none"
+        return (f"GateResult({'PASS' if self.passed else 'FAIL'}, {len(self.rules)} rules, "
+                f"failed: {failed}, {len(self.failing_classes)} classes below floors)")
+
 
 def _holds(value: float, threshold: float, op: str) -> bool:
     if value is None or not math.isfinite(value):

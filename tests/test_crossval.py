@@ -70,3 +70,33 @@ def test_cross_tally_feeds_fold_statistics_and_bootstrap():
     assert fs.count == 5 and fs.test_train_ratio == pytest.approx(0.25)
     res = fc.bootstrap(t, n_resamples=200, seed=0)
     assert float(res.low) <= float(res.estimate) <= float(res.high)
+
+
+def test_rk_score_with_sample_weight_equals_matthews_corrcoef():
+    # reference: sklearn.metrics.matthews_corrcoef with sample_weight
+    rng = np.random.default_rng(0)
+    y, p = rng.integers(0, 3, 200), rng.integers(0, 3, 200)
+    w = rng.uniform(0, 2, 200)
+    assert fc.rk_score(y, p, sample_weight=w) == pytest.approx(
+        matthews_corrcoef(y, p, sample_weight=w), abs=1e-12)
+
+
+def test_cross_tally_passes_n_jobs_and_fit_params_and_returns_predictions():
+    # reference: sklearn.model_selection.cross_val_predict with the same params
+    X, y = load_wine(return_X_y=True)
+    cv = KFold(3, shuffle=True, random_state=0)
+    w = np.where(y == 0, 3.0, 1.0)
+    est = DecisionTreeClassifier(random_state=0)
+    t, pred = fc.cross_tally(est, X, y, cv=cv, n_jobs=2, params={"sample_weight": w},
+                             return_predictions=True)
+    ref = cross_val_predict(est, X, y, cv=cv, params={"sample_weight": w})
+    np.testing.assert_array_equal(pred, ref)
+    np.testing.assert_array_equal(t.sum("fold").values, confusion_matrix(y, ref))
+
+
+def test_cross_tally_refuses_splits_that_do_not_test_every_sample_once():
+    from sklearn.model_selection import TimeSeriesSplit
+
+    X, y = load_iris(return_X_y=True)
+    with pytest.raises(ValueError, match="`cv` must split"):
+        fc.cross_tally(KNeighborsClassifier(), X, y, cv=TimeSeriesSplit(3))

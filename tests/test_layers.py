@@ -24,7 +24,7 @@ LAYER_OF_MODULE = {"_files": "errors", "_version": "errors", "_lazy": "errors", 
                    "figures": "metrics", "decomposition": "metrics",
                    "__main__": "cli", "__init__": "cli"}
 #: Methods of result objects that may import their renderer at call time.
-DISPLAY_HOOKS = {"__rich__", "_repr_html_"}
+DISPLAY_HOOKS = {"__rich__", "_repr_html_", "to_json", "to_html", "to_markdown"}
 MAX_LINES = 600
 
 

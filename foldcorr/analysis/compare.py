@@ -118,6 +118,17 @@ class Comparison:
 
         return render_rich(compare_report(self))
 
+    def _repr_html_(self) -> str:
+        from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
+
+        return html_fragment(self)
+
+    def __repr__(self) -> str:
+        low, high = self.ci
+        return (f"Comparison(n={self.n}, {len(self.classes)} classes, R_K a={self.rk_a:.4f}, "
+                f"b={self.rk_b:.4f})\n  b - a = {self.difference:.4f} "
+                f"[{low:.4f}, {high:.4f}], p={self.p_value:.4g}, better: {self.better}")
+
 
 class PairStrata:
     """Resamples of a joint tensor's sparse cells, read as the two models' tensors.

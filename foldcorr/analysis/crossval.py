@@ -22,9 +22,9 @@ from __future__ import annotations
 
 import numpy as np
 import xarray as xr
-from sklearn.base import clone, is_classifier
+from sklearn.base import is_classifier
 from sklearn.metrics import make_scorer
-from sklearn.model_selection import check_cv
+from sklearn.model_selection import check_cv, cross_val_predict
 from sklearn.utils import indexable
 
 from foldcorr.metrics import rk
@@ -33,7 +33,8 @@ from foldcorr.tensor import tally
 __all__ = ["cross_tally", "rk_score", "rk_scorer"]
 
 
-def cross_tally(estimator, X, y, *, cv=5, groups=None, classes=None) -> xr.DataArray:
+def cross_tally(estimator, X, y, *, cv=5, groups=None, classes=None, n_jobs=None,
+                params=None, return_predictions: bool = False):
     """Run cross-validation and tally every held-out prediction into a fold tensor.
 
     Parameters
@@ -46,24 +47,39 @@ def cross_tally(estimator, X, y, *, cv=5, groups=None, classes=None) -> xr.DataA
         Class labels.
     cv : int, cross-validation generator or iterable, default 5
         As in scikit-learn: an int gives (stratified, for classifiers) k-fold.
+        The test splits must hold every sample exactly once.
     groups : array_like, optional
         Group labels for group-aware splitters such as ``GroupKFold``.
     classes : sequence, optional
         Fixed class order; default every label seen in ``y`` and the
         predictions, sorted.
+    n_jobs : int, optional
+        Folds fitted in parallel, as ``n_jobs`` of
+        :func:`sklearn.model_selection.cross_val_predict`.
+    params : dict, optional
+        Passed to the estimator's ``fit`` (per-sample values are split with
+        the training rows), as ``params`` of ``cross_val_predict``.
+    return_predictions : bool, default False
+        Also return the held-out prediction of every sample, in input order.
 
     Returns
     -------
-    xarray.DataArray
+    xarray.DataArray or (xarray.DataArray, numpy.ndarray)
         Dims ``(fold, actual, predicted)``, folds numbered from 0 in split
-        order; ``attrs`` name the estimator and the splitter.
+        order; ``attrs`` name the estimator and the splitter. With
+        ``return_predictions``, the tensor and the predictions.
+
+    Raises
+    ------
+    OptionError
+        When the test splits of ``cv`` do not hold every sample exactly once.
 
     Notes
     -----
-    Splits come from :func:`sklearn.model_selection.check_cv`, so ``cv`` means
-    exactly what it means to ``cross_validate``. Each sample appears in the
-    test split of at most one fold for k-fold splitters; the tensor counts what
-    the splits hold.
+    The splits come from :func:`sklearn.model_selection.check_cv`, so ``cv``
+    means exactly what it means to ``cross_validate``, and the predictions from
+    :func:`sklearn.model_selection.cross_val_predict` on those splits, so a
+    sample's prediction is the one ``cross_val_predict`` gives.
 
     Examples
     --------
@@ -76,40 +92,44 @@ def cross_tally(estimator, X, y, *, cv=5, groups=None, classes=None) -> xr.DataA
     """
     X, y, groups = indexable(X, y, groups)
     splitter = check_cv(cv, y, classifier=is_classifier(estimator))
-    truths, preds, folds = [], [], []
-    for fold, (train, test) in enumerate(splitter.split(X, y, groups)):
-        model = clone(estimator).fit(_take(X, train), _take(y, train))
-        preds.append(np.asarray(model.predict(_take(X, test))))
-        truths.append(np.asarray(_take(y, test)))
-        folds.append(np.full(len(test), fold))
-    t = tally(np.concatenate(truths), np.concatenate(preds), folds=np.concatenate(folds),
-              classes=classes)
+    splits = list(splitter.split(X, y, groups))
+    fold = np.full(len(y), -1)
+    for i, (_, test) in enumerate(splits):
+        fold[test] = np.where(fold[test] == -1, i, -2)
+    if (fold < 0).any():
+        from foldcorr.errors import OptionError
+
+        raise OptionError(f"`cv` must split so that every sample is tested exactly once; "
+                          f"{type(splitter).__name__} leaves {int((fold == -1).sum())} untested "
+                          f"and tests {int((fold == -2).sum())} more than once")
+    pred = cross_val_predict(estimator, X, y, cv=splits, n_jobs=n_jobs, params=params)
+    t = tally(np.asarray(y), np.asarray(pred), folds=fold, classes=classes)
     t.attrs["estimator"] = type(estimator).__name__
     t.attrs["cv"] = type(splitter).__name__
-    return t
+    return (t, np.asarray(pred)) if return_predictions else t
 
 
-def rk_score(y_true, y_pred) -> float:
+def rk_score(y_true, y_pred, *, sample_weight=None) -> float:
     """R_K of one pair of label arrays, as a plain float (the score behind :data:`rk_scorer`).
+
+    ``sample_weight`` weights each sample's count, as in scikit-learn's metrics.
 
     Examples
     --------
     >>> rk_score([0, 1, 1, 0], [0, 1, 0, 0])
     0.5773502691896258
+    >>> rk_score([0, 1, 1, 0], [0, 1, 0, 0], sample_weight=[1, 1, 0, 1])
+    1.0
     """
-    return float(rk(tally(np.asarray(y_true), np.asarray(y_pred))))
-
-
-def _take(values, index):
-    """Rows ``index`` of an array, a DataFrame/Series (by position) or a list."""
-    if hasattr(values, "iloc"):
-        return values.iloc[index]
-    if isinstance(values, np.ndarray) or hasattr(values, "__array__"):
-        return values[index]
-    return [values[i] for i in index]
+    weights = None if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    return float(rk(tally(np.asarray(y_true), np.asarray(y_pred), weights=weights)))
 
 
 #: A scikit-learn scorer of R_K (greater is better), for ``scoring=`` in
 #: ``cross_validate``, ``cross_val_score`` or ``GridSearchCV`` (see the module
-#: example).
+#: example). Its value equals scikit-learn's ``"matthews_corrcoef"`` scorer (R_K
+#: is Gorodkin's multiclass MCC, the same formula); it exists so that model
+#: selection and ``foldcorr`` reports compute the figure with one definition,
+#: one undefined-value rule (0/0 counts as 0, as in :func:`foldcorr.metrics.rk`)
+#: and from the same confusion tensor.
 rk_scorer = make_scorer(rk_score)

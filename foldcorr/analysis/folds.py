@@ -92,6 +92,17 @@ class FoldStatistics:
         """The mean of the per-fold values (alias of ``mean``)."""
         return self.mean
 
+    def _repr_html_(self) -> str:
+        from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
+
+        return html_fragment(self)
+
+    def __repr__(self) -> str:
+        low, high = self.corrected_ci
+        return (f"FoldStatistics({self.count} folds, mean={self.mean:.4f}, sd={self.sd:.4f}, "
+                f"pooled={self.pooled:.4f})\n  corrected {self.level:.0%} interval "
+                f"[{low:.4f}, {high:.4f}]")
+
 
 def fold_statistics(t, statistic=rk, *, level: float = 0.95,
                     test_train_ratio: float | None = None) -> FoldStatistics:

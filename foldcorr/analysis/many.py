@@ -143,6 +143,11 @@ class ManyComparison:
                 f"not separated from it: {list(self.tied[1:])!r}, p adjusted: "
                 f"{self.adjustment})")
 
+    def _repr_html_(self) -> str:
+        from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
+
+        return html_fragment(self)
+
 
 def compare_many(truth, predictions: Mapping, *, folds=None, cluster=None,
                  level: float = 0.95, n_resamples: int = 2000,

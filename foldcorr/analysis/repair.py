@@ -181,6 +181,17 @@ class RepairAnalysis:
 
         return render_rich(self)
 
+    def _repr_html_(self) -> str:
+        from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
+
+        return html_fragment(self)
+
+    def __repr__(self) -> str:
+        best = self.per_class["gain_fix_both"]
+        return (f"RepairAnalysis(R_K={self.rk:.4f}, {best.sizes['class']} classes, "
+                f"{self.confusions.sizes['rank']} confusions ranked, "
+                f"largest repair gain {float(best.max()):.4f})")
+
 
 def repair_analysis(t, *, top: int | None = 20, stability_top: int = 5,
                     undefined: str = "zero") -> RepairAnalysis:

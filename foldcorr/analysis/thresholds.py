@@ -252,6 +252,16 @@ class SweepResult:
 
         return render_rich(sweep_report(self))
 
+    def _repr_html_(self) -> str:
+        from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
+
+        return html_fragment(self)
+
+    def __repr__(self) -> str:
+        folds = f", {len(self.folds)} folds" if self.folds else ""
+        return (f"SweepResult({len(self.labels)} labels, n={self.n}{folds}, "
+                f"{len(self.warnings)} warnings)")
+
 
 def sweep(truth, scores, *, labels: Sequence | None = None, folds=None,
           at: float | None = None, undefined: str = "zero") -> SweepResult:

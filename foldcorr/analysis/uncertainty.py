@@ -104,6 +104,18 @@ class BootstrapResult:
         """
         return xr.Dataset({"estimate": self.estimate, "low": self.low, "high": self.high})
 
+    def _repr_html_(self) -> str:
+        from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
+
+        return html_fragment(self)
+
+    def __repr__(self) -> str:
+        shape = ", ".join(f"{d}: {n}" for d, n in self.estimate.sizes.items()) or "scalar"
+        head = (f"\n  {float(self.estimate):.4f} [{float(self.low):.4f}, {float(self.high):.4f}]"
+                if self.estimate.ndim == 0 else "")
+        return (f"BootstrapResult({shape}, {self.level:.0%} {self.method}, "
+                f"{self.n_resamples} resamples){head}")
+
 
 def _like(estimate: xr.DataArray, values: np.ndarray, suffix: str) -> xr.DataArray:
     name = f"{estimate.name}_{suffix}" if estimate.name else suffix
@@ -419,6 +431,17 @@ class Uncertainty:
     warnings: tuple[str, ...] = field(default_factory=tuple)
     n_clusters: int | None = None
     design_effect: float | None = None
+
+    def _repr_html_(self) -> str:
+        from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
+
+        return html_fragment(self)
+
+    def __repr__(self) -> str:
+        rk = self.rk
+        return (f"Uncertainty({self.level:.0%} {self.method}, {self.n_resamples} resamples, "
+                f"{self.mcc.estimate.sizes.get('class', 0)} classes)\n  R_K "
+                f"{float(rk.estimate):.4f} [{float(rk.low):.4f}, {float(rk.high):.4f}]")
 
 
 def summarise_uncertainty(t, *, level: float = 0.95, n_resamples: int = 2000,
