@@ -113,7 +113,7 @@ def as_counts(tensor, column: str):
     >>> str(c.dtype), c.attrs["count_column"], "weight_column" in c.attrs
     ('int64', 'n', False)
     """
-    total = float(tensor.sum())
+    total = float(tensor.data.sum())   # a scalar from either backing
     if total >= MAX_EXACT:
         raise InvalidInputError(f"column {column!r}: the counts add up to {total:.0f}, more "
                                 f"than float64 sums exactly ({MAX_EXACT})")

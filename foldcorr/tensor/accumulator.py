@@ -2,7 +2,10 @@
 
 A :class:`StreamTally` codes each batch's truth, predictions and folds (see
 :mod:`foldcorr.tensor.coding`) and counts them into a dense array that grows as
-new labels appear; partial tallies over other codes merge; the labels are
+new labels appear, or, once folds x K^2 passes
+:data:`foldcorr.tensor.DENSE_CELL_LIMIT`, into distinct cell codes
+(:mod:`foldcorr.tensor.cellcodes`) that end as a ``sparse.COO`` tensor;
+partial tallies over other codes merge; the labels are
 settled, sorted and put on the tensor once at the end. Batches arrive as Arrow
 record batches; nothing here reads a file.
 """
@@ -14,6 +17,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from foldcorr.errors import InvalidInputError
+from foldcorr.tensor import backing
+from foldcorr.tensor.cellcodes import CellCodes
 from foldcorr.tensor import (
     ACTUAL,
     FOLD,
@@ -74,6 +79,8 @@ class StreamTally:
 
     Counts live in a dense array indexed by the codes of truth, predictions
     and folds (each column coded on its own); it grows as new labels appear.
+    Above ``DENSE_CELL_LIMIT`` cells, the distinct cells are counted instead
+    and the tensor is sparse.
     :meth:`add` codes a batch and counts it; :meth:`merge` adds another
     accumulator (possibly with other codes); :meth:`tensor` settles the types
     of the labels, sorts them and returns the labelled tensor.
@@ -116,6 +123,8 @@ class StreamTally:
         self.seen = {role: np.zeros(0, dtype=bool) for role in self.coders} if weight else None
         self.rows = 0
         self.nulls = {"truth": 0, "pred": 0}
+        # Above DENSE_CELL_LIMIT cells the counts are distinct cell codes instead.
+        self.cells: CellCodes | None = None
 
     @property
     def counts(self) -> np.ndarray:
@@ -198,6 +207,10 @@ class StreamTally:
         self.rows += len(codes["truth"])
         order = [codes["fold"]] if "fold" in codes else []
         order += [codes["truth"], codes["pred"]]
+        if self.cells is not None:
+            order = order if "fold" in codes else [np.zeros_like(order[0]), *order]
+            self.cells.add(order, w)
+            return
         target = self._target(len(codes["truth"]), w is not None)
         if "fold" not in codes:
             target = target[0]
@@ -207,7 +220,9 @@ class StreamTally:
         f = len(self.coders["fold"]) if "fold" in self.coders else 1
         kt, kp = len(self.coders["truth"]), len(self.coders["pred"])
         old = self._counts.shape
-        if (f, kt, kp) != old:
+        if self.cells is None and f * kt * kp > backing.DENSE_CELL_LIMIT:
+            self._to_cells()
+        if self.cells is None and (f, kt, kp) != old:
             shape = (max(f, old[0]), max(kt, old[1]), max(kp, old[2]))
             # the counts, the batch counts pending and the tensor made at the end
             check_dense_size(shape, self._counts.dtype, "the streamed counts", copies=2)
@@ -219,6 +234,23 @@ class StreamTally:
                 if len(self.seen[role]) < len(coder):
                     self.seen[role] = np.concatenate(
                         [self.seen[role], np.zeros(len(coder) - len(self.seen[role]), bool)])
+
+    def _to_cells(self) -> None:
+        """Move the dense counts into distinct cell codes (the sparse way of counting)."""
+        cells = CellCodes(weighted=self.weight is not None)
+        f, t, p, counts = self.cell_triples()
+        cells.add([f, t, p], counts)
+        self.cells = cells
+        self._counts = np.zeros((1, 0, 0), self._counts.dtype)
+        self._pending, self._pending_rows, self._counted = None, 0, False
+
+    def cell_triples(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Fold, truth and prediction codes of every nonzero cell, and its count."""
+        if self.cells is not None:
+            return self.cells.triples()
+        c = self._source()
+        f, t, p = np.nonzero(c)
+        return f, t, p, c[f, t, p].astype(self._counts.dtype)
 
     def __getstate__(self) -> dict:
         # Partial tallies travel between processes: counts go in the narrowest
@@ -250,14 +282,10 @@ class StreamTally:
         """
         maps = {role: self.coders[role].merge(other.coders[role]) for role in self.coders}
         self._grow()
-        c = other.counts
-        f_map = maps.get("fold", np.zeros(1, np.int64))
-        parts = [m[:n] for m, n in zip((f_map, maps["truth"], maps["pred"]), c.shape)]
-        if all(np.array_equal(m, np.arange(len(m))) for m in parts):
-            self.counts[: c.shape[0], : c.shape[1], : c.shape[2]] += c   # same codes
+        if self.cells is not None or other.cells is not None:
+            self._merge_cells(other, maps)
         else:
-            self.counts[np.ix_(*parts)] += c
-        self._counted = True
+            self._merge_dense(other, maps)
         if self.seen is not None:
             for role, m in maps.items():
                 self.seen[role][m[: len(other.seen[role])][other.seen[role]]] = True
@@ -266,10 +294,30 @@ class StreamTally:
             self.nulls[role] += other.nulls[role]
         return self
 
+    def _merge_cells(self, other: StreamTally, maps: dict) -> None:
+        if self.cells is None:
+            self._to_cells()
+        f, t, p, counts = other.cell_triples()
+        f = maps["fold"][f] if "fold" in maps else f
+        self.cells.add([f, maps["truth"][t], maps["pred"][p]], counts)
+
+    def _merge_dense(self, other: StreamTally, maps: dict) -> None:
+        c = other.counts
+        f_map = maps.get("fold", np.zeros(1, np.int64))
+        parts = [m[:n] for m, n in zip((f_map, maps["truth"], maps["pred"]), c.shape)]
+        if all(np.array_equal(m, np.arange(len(m))) for m in parts):
+            self.counts[: c.shape[0], : c.shape[1], : c.shape[2]] += c   # same codes
+        else:
+            self.counts[np.ix_(*parts)] += c
+        self._counted = True
+
     # -- result
     def _seen_codes(self, role: str) -> np.ndarray:
         if self.seen is not None:
             return np.flatnonzero(self.seen[role])
+        if self.cells is not None:
+            triple = self.cells.triples()[{"fold": 0, "truth": 1, "pred": 2}[role]]
+            return np.unique(triple)
         c = self._source()
         axis = {"fold": (1, 2), "truth": (0, 2), "pred": (0, 1)}[role]
         return np.flatnonzero(c.sum(axis=axis) > 0) if c.size else np.zeros(0, np.int64)
@@ -333,6 +381,8 @@ class StreamTally:
             map_t = np.array([rank[where[label_key(v)]] for v in vt], dtype=np.int64)
             map_p = np.array([rank[where[label_key(v)]] for v in vp], dtype=np.int64)
         k = len(labels)
+        if self.cells is not None:
+            return self._sparse_tensor(lab, (ct, map_t), (cp, map_p), labels, attrs)
         leading = {}
         if "fold" in lab:
             cf, _, vf = lab["fold"]
@@ -361,6 +411,31 @@ class StreamTally:
         if not leading:
             out = out[0]
         return confusion_tensor(out, labels, leading=leading, attrs=dict(attrs or {}))
+
+    def _sparse_tensor(self, lab, truth, pred, labels, attrs):
+        """The tensor backed by ``sparse.COO``: each cell's codes mapped to its place."""
+        import sparse
+
+        k, shape, leading = len(labels), [], {}
+        f, t, p, counts = self.cells.triples()
+        places = [_code_map(*truth, len(self.coders["truth"]))[t],
+                  _code_map(*pred, len(self.coders["pred"]))[p]]
+        if "fold" in lab:
+            cf, _, vf = lab["fold"]
+            rank_f, fold_values = sorted_codes(np.arange(len(vf)),
+                                                np.asarray(vf + [None], dtype=object)[:-1])
+            places.insert(0, _code_map(cf, rank_f, len(self.coders["fold"]))[f])
+            leading[FOLD] = [py_value(v) for v in fold_values]
+            shape.append(len(fold_values))
+        data = sparse.COO(np.stack(places), counts, shape=(*shape, k, k), has_duplicates=True)
+        return confusion_tensor(data, labels, leading=leading, attrs=dict(attrs or {}))
+
+
+def _code_map(codes, places, size: int) -> np.ndarray:
+    """An array taking each code of ``codes`` to its place in ``places`` (others to 0)."""
+    out = np.zeros(size, np.int64)
+    out[np.asarray(codes, np.int64)] = places
+    return out
 
 
 def take_run(a: np.ndarray, order, axis: int, codes=None) -> np.ndarray:
