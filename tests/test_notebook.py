@@ -85,7 +85,7 @@ def test_html_fragment_has_one_row_per_class(digits):
     *_, ev = digits
     parser = _Tables()
     parser.feed(ev._repr_html_())
-    (rows,) = [n for table, n in parser.rows.items() if table.startswith("classes-by-drag")]
+    (rows,) = [n for table, n in parser.rows.items() if table.startswith("classes-by-")]
     assert rows == 10
 
 
