@@ -7,8 +7,8 @@ random numbers.
 
 Notation for one K x K matrix C (rows actual, columns predicted): :math:`s` is
 the total, :math:`c` the trace, :math:`t_k` the row sums and :math:`p_k` the
-column sums. All sums and products are taken in float64, so counts of 10^10 and
-more do not overflow. Every figure is made of those margins and the trace (and
+column sums. Sums are float64 over a power-of-two scale (:class:`Sums`), so no
+product overflows; R_K's numerator is exact where float64 would cancel. Every figure is made of those margins and the trace (and
 the largest off-diagonal cells), computed from the tensor's backing in
 O(nonzero cells + folds x K), dense or sparse (:mod:`foldcorr.tensor.backing`);
 no dense K x K copy is made.
@@ -28,8 +28,8 @@ import numpy as np
 import xarray as xr
 
 from foldcorr.errors import UndefinedMetricWarning, check_choice
-from foldcorr.tensor import (ACTUAL, CLASS, PREDICTED, as_dense, cell_sums, py_value, sum_cells,
-                             top_off_diagonal, validate_tensor)
+from foldcorr.tensor import (ACTUAL, CLASS, PREDICTED, as_dense, cell_sums, integer_sums, py_value,
+                             sum_cells, top_off_diagonal, validate_tensor)
 
 __all__ = [
     "UNDEFINED_CHOICES",
@@ -63,17 +63,17 @@ MAX_PLACES = 50
 
 @dataclass(frozen=True)
 class Sums:
-    """Float64 margins of a tensor in normal form, plus its labels.
+    """Float64 s, c, diagonal, t_k (``actual``), p_k (``predicted``) over ``scale``; labels.
 
-    The sums every figure is made of: total s, trace c, diagonal, row sums t_k
-    (``actual``) and column sums p_k (``predicted``), over any leading dims.
+    ``scale`` is 1 unless the largest total is outside [2^-256, 2^256], else the power
+    of two taking it to [1, 2): products never overflow and figures are scale-free.
 
     Examples
     --------
     >>> from foldcorr.tensor import confusion_tensor
     >>> s = Sums.of(confusion_tensor([[3, 1], [0, 4]], ["a", "b"]))
-    >>> float(s.total), float(s.trace), s.actual.tolist(), s.predicted.tolist()
-    (8.0, 7.0, [4.0, 4.0], [3.0, 5.0])
+    >>> float(s.total), float(s.trace), s.actual.tolist(), s.predicted.tolist(), s.scale
+    (8.0, 7.0, [4.0, 4.0], [3.0, 5.0], 1.0)
     """
 
     tensor: xr.DataArray
@@ -82,22 +82,32 @@ class Sums:
     diag: np.ndarray  # (..., K)
     actual: np.ndarray  # (..., K) row sums t_k
     predicted: np.ndarray  # (..., K) column sums p_k
+    scale: float = 1.0
 
     @classmethod
     def of(cls, t) -> Sums:
         t = validate_tensor(t)
         diag, actual, predicted = cell_sums(t)
+        top = float(actual.sum(axis=-1).max(initial=0.0))
+        scale = 2.0 ** np.floor(np.log2(top)) if top and not 2**-256 <= top <= 2**256 else 1.0
+        diag, actual, predicted = diag / scale, actual / scale, predicted / scale
         return cls(tensor=t, total=actual.sum(axis=-1), trace=diag.sum(axis=-1), diag=diag,
-                   actual=actual, predicted=predicted)
+                   actual=actual, predicted=predicted, scale=scale)
 
     @cached_property
     def cells(self) -> np.ndarray:
-        """Every cell in float64, (..., K, K): dense, through :func:`foldcorr.tensor.as_dense`."""
-        return as_dense(self.tensor).values.astype(np.float64)
+        """Every cell in float64 over ``scale``, (..., K, K), dense (``as_dense``)."""
+        return as_dense(self.tensor).values.astype(np.float64) / self.scale
 
     def rk_parts(self):
-        """Numerator and denominator sums of R_K over the leading dims (see :func:`rk_parts`)."""
-        return rk_parts(self.trace, self.total, self.actual, self.predicted)
+        """:func:`rk_parts` of the tensor; N from exact integers where float64 would cancel
+        (integer counts, and N below 2^-40 c s or s above 2^26)."""
+        num, dp, dt = rk_parts(self.trace, self.total, self.actual, self.predicted)
+        exact = (np.abs(num) <= 2.0**-40 * self.trace * self.total) | (self.total > 2**26)
+        if np.any(exact) and (ints := integer_sums(self.tensor)) is not None:
+            whole = np.array(ints[0] * ints[1] - (ints[2] * ints[3]).sum(axis=-1), dtype=float)
+            num = np.where(exact, whole / self.scale**2, num)
+        return num, dp, dt
 
     def spread_actual(self) -> np.ndarray:
         """b_k = t_k (s - t_k), per class."""
@@ -109,14 +119,9 @@ class Sums:
 
 
 def rk_parts(trace, total, actual, predicted):
-    """R_K's numerator and denominator sums from margins (Gorodkin 2004).
+    """R_K's N = c s - sum t_k p_k, D_p = sum p_k (s - p_k), D_t = sum t_k (s - t_k).
 
-    ``N = c s - sum_k t_k p_k``, ``D_p = sum_k p_k (s - p_k)`` and
-    ``D_t = sum_k t_k (s - t_k)``, so R_K = N / sqrt(D_p D_t). Margins may be
-    any arrays that broadcast (``trace`` and ``total`` over the leading dims,
-    ``actual`` and ``predicted`` with the class axis last), so counterfactual
-    margins (a repaired or reduced matrix) go through the same formula. The
-    sums p_k (s - p_k) keep their digits where s^2 - sum p_k^2 would cancel.
+    R_K = N / sqrt(D_p D_t) (Gorodkin 2004), for any margins that broadcast (class axis last).
 
     Examples
     --------
@@ -134,10 +139,6 @@ def rk_parts(trace, total, actual, predicted):
 
 def correlation(num, dp, dt, undefined: str):
     """num / sqrt(dp dt) clipped to [-1, 1], the convention where 0/0; and the 0/0 mask.
-
-    The one correlation formula behind R_K, one-vs-rest MCC and every
-    counterfactual R_K of :mod:`foldcorr.analysis.repair`. It does not warn; callers
-    name where the value is undefined.
 
     Examples
     --------

@@ -197,14 +197,15 @@ def test_bad_input_is_one_line_and_exit_2(capsys, inputs, out, line, culprit):
     assert left_in(out) == []
 
 
-@pytest.mark.parametrize("line", ["score {dupcol_csv}", "score {nested_jsonl}"])
-@pytest.mark.xfail(strict=True, reason="the readers of foldcorr/sources raise an unexpected "
-                                       "error here; the command line reports it in one line as "
-                                       "a bug but cannot name the file")
-def test_source_errors_not_yet_named(capsys, inputs, out, line):
+@pytest.mark.parametrize("line, problem", [
+    ("score {dupcol_csv}", "column 'actual' appears 2 times; column names must be unique"),
+    ("score {nested_jsonl}", "column 'actual' holds struct<x: int64> values; labels must be "
+                             "text, numbers or booleans"),
+])
+def test_source_errors_name_file_and_column(capsys, inputs, out, line, problem):
     code, _, stderr = run(capsys, line, inputs, out)
     assert code == 2
-    assert_one_line(stderr, Path(line.split()[-1].format(**inputs)).name)
+    assert_one_line(stderr, f"{Path(line.split()[-1].format(**inputs)).name}: {problem}")
 
 
 #: Every output option of every verb, with the files the run must leave.

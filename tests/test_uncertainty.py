@@ -337,3 +337,14 @@ def test_fold_statistics_needs_two_folds():
     t = tally([0, 1, 1, 0], [0, 1, 0, 0], folds=[1, 1, 2, 2])
     with pytest.raises(OptionError, match=r"`test_train_ratio` must be a positive number"):
         fc.fold_statistics(t, test_train_ratio=0)
+
+
+def test_resamples_bounded_in_the_library():
+    # the library refuses what the command line refuses: more than 10^6 resamples
+    from foldcorr.analysis.resampling import MAX_RESAMPLES, check_resamples
+    assert check_resamples(MAX_RESAMPLES) == 10**6
+    with pytest.raises(OptionError, match=r"`n_resamples` must be a whole number of at most "
+                                          r"1,000,000; got 1000001"):
+        check_resamples(10**6 + 1)
+    with pytest.raises(OptionError, match=r"at least 100; got 99"):
+        check_resamples(99)

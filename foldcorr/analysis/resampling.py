@@ -30,8 +30,8 @@ from foldcorr.errors import InvalidTensorError, OptionError, UndefinedMetricWarn
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, py_value, validate_tensor
 
 __all__ = [
-    "RESAMPLE", "METHODS", "MIN_RESAMPLES", "check_level", "check_resamples", "whole_counts",
-    "Strata", "resample_cells", "resample_blocks", "statistic_label", "apply_statistic",
+    "RESAMPLE", "METHODS", "MIN_RESAMPLES", "MAX_RESAMPLES", "check_level", "check_resamples",
+    "whole_counts", "Strata", "resample_cells", "resample_blocks", "statistic_label", "apply_statistic",
     "pool_folds", "statistic_draws", "normal_cdf", "normal_ppf", "interval", "draw_notes",
     "jackknife_moments",
 ]
@@ -40,8 +40,8 @@ __all__ = [
 RESAMPLE = "resample"
 #: Interval methods accepted by :func:`bootstrap`.
 METHODS = ("percentile", "bca")
-#: Fewest resamples accepted for an interval.
-MIN_RESAMPLES = 100
+#: Fewest and most resamples accepted for an interval (the command line's limits too).
+MIN_RESAMPLES, MAX_RESAMPLES = 100, 10**6
 
 # Cells per block of resampled tensors handed to the statistic at once.
 _BLOCK_CELLS = 1 << 22
@@ -68,22 +68,22 @@ def check_level(level, *, name: str = "level") -> float:
 
 
 def check_resamples(n_resamples, *, name: str = "n_resamples", minimum: int = MIN_RESAMPLES) -> int:
-    """Return ``n_resamples`` as an int, or raise unless it is a whole number >= ``minimum``.
+    """Return ``n_resamples`` as an int, or raise unless a whole number in [minimum, 10^6].
 
     Examples
     --------
     >>> check_resamples(2000)
     2000
-    >>> check_resamples(10)
+    >>> check_resamples(10**7)
     Traceback (most recent call last):
     ...
-    foldcorr.errors.OptionError: `n_resamples` must be a whole number of at least 100; got 10
+    foldcorr.errors.OptionError: `n_resamples` must be a whole number of at most 1,000,000; got 10000000
     """
     ok = isinstance(n_resamples, numbers.Integral) and not isinstance(n_resamples, bool)
-    if not ok or int(n_resamples) < minimum:
-        raise OptionError(
-            f"`{name}` must be a whole number of at least {minimum}; got {n_resamples!r}"
-        )
+    if not ok or not minimum <= int(n_resamples) <= MAX_RESAMPLES:
+        bound = (f"at most {MAX_RESAMPLES:,}" if ok and n_resamples > MAX_RESAMPLES
+                 else f"at least {minimum}")
+        raise OptionError(f"`{name}` must be a whole number of {bound}; got {n_resamples!r}")
     return int(n_resamples)
 
 

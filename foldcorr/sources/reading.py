@@ -280,6 +280,10 @@ def checked_schema(f, fmt, truth, pred, fold, weight, first_types, where, partit
     if fold not in (None, "auto"):
         names.append(fold)
     require_columns(f, schema, names)
+    for col in (truth, pred, None if fold == "auto" else fold):
+        if col and pa.types.is_nested(schema.field(col).type):
+            raise file_error(f, f"column {col!r} holds {schema.field(col).type} values; labels "
+                                f"must be text, numbers or booleans")
     if where is not None:  # a filter naming a missing column is the caller's, never skipped
         try:
             where.check_columns(schema.names)
@@ -298,7 +302,7 @@ def checked_schema(f, fmt, truth, pred, fold, weight, first_types, where, partit
 
 
 def require_columns(f, schema, names) -> None:
-    """Raise :class:`UnreadableFile` naming the first of ``names`` the schema lacks.
+    """Raise :class:`UnreadableFile` naming the first of ``names`` the schema lacks or repeats.
 
     Examples
     --------
@@ -307,11 +311,19 @@ def require_columns(f, schema, names) -> None:
     Traceback (most recent call last):
     ...
     foldcorr.sources.problems.UnreadableFile: p.csv: column 'w' not found; the table has ['actual']
+    >>> require_columns("p.csv", pa.schema([("a", pa.string()), ("a", pa.string())]), ["a"])
+    Traceback (most recent call last):
+    ...
+    foldcorr.sources.problems.UnreadableFile: p.csv: column 'a' appears 2 times; column names must be unique
     """
     for name in names:
         if name is not None and name not in schema.names:
             raise UnreadableFile(file_error(f, f"column {name!r} not found; the table has "
                                                f"{list(schema.names)!r}"))
+        if name is not None and list(schema.names).count(name) > 1:
+            raise UnreadableFile(file_error(f, f"column {name!r} appears "
+                                               f"{list(schema.names).count(name)} times; "
+                                               f"column names must be unique"))
 
 
 class Progress:

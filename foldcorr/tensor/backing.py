@@ -34,6 +34,7 @@ __all__ = [
     "count_sparse",
     "sum_cells",
     "cell_sums",
+    "integer_sums",
     "top_off_diagonal",
 ]
 
@@ -315,6 +316,43 @@ def cell_sums(t: xr.DataArray):
     shape = data.shape[:-1]
     return tuple(np.bincount(keys, weights=v, minlength=n).reshape(shape)
                  for keys, v in ((rows[on], w[on]), (rows, w), (cols, w)))
+
+
+def integer_sums(t: xr.DataArray):
+    """Trace, total, row sums and column sums as exact Python integers, or None.
+
+    None unless the counts are integers. Each sum is an object array of
+    Python ints (trace and total over the leading dims, the margins with the
+    class axis last), so products of sums are exact at any size.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> [a.tolist() for a in integer_sums(confusion_tensor([[3, 1], [0, 4]], ["a", "b"]))]
+    [7, 8, [4, 4], [3, 5]]
+    >>> integer_sums(confusion_tensor([[0.5, 1.0], [0.0, 4.0]], ["a", "b"])) is None
+    True
+    """
+    data = t.data
+    values = data.data if is_sparse(data) else data
+    if values.dtype.kind not in "iu":
+        return None
+    if is_sparse(data):
+        rows, cols, n = _row_keys(data)
+        on = data.coords[-2] == data.coords[-1]
+        cells = values.astype(object)
+        sums = []
+        for keys, v in ((rows[on], cells[on]), (rows, cells), (cols, cells)):
+            out = np.zeros(n, dtype=object)
+            np.add.at(out, keys, v)
+            sums.append(out.reshape(data.shape[:-1]))
+        diag, actual, predicted = sums
+    else:  # int64 sums where no total can overflow them, Python ints beyond
+        cells = data if float(data.sum(dtype=np.float64)) < 2.0**62 else data.astype(object)
+        diag = np.diagonal(cells, axis1=-2, axis2=-1).astype(object)
+        actual, predicted = cells.sum(axis=-1).astype(object), cells.sum(axis=-2).astype(object)
+    whole = (np.asarray(diag.sum(axis=-1), dtype=object), np.asarray(actual.sum(axis=-1), dtype=object))
+    return (*whole, actual, predicted)
 
 
 def top_off_diagonal(t: xr.DataArray):
