@@ -13,7 +13,8 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
-from foldcorr.metrics import decompose, ovr_mcc, rk
+from foldcorr.decomposition import decompose
+from foldcorr.metrics import ovr_mcc, rk
 from foldcorr.tensor import confusion_tensor, tally
 
 
