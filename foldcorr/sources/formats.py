@@ -23,12 +23,14 @@ from foldcorr.tensor.coding import arrow_kind
 
 __all__ = ["FileFormat", "CsvFormat", "ParquetFormat", "JsonLinesFormat", "CountsMatrixFormat",
            "NetcdfFormat", "MemoryFormat", "FORMATS", "TABLE_FORMATS", "TABLE_SUFFIXES", "format_for",
-           "format_of", "BLOCK_BYTES", "BATCH_READAHEAD"]
+           "format_of", "BLOCK_BYTES", "BATCH_READAHEAD", "NA_VALUES"]
 
 #: Bytes per CSV / JSON Lines block.
 BLOCK_BYTES = 1 << 24
 #: Record batches the Parquet reader decodes ahead, in its own threads.
 BATCH_READAHEAD = 1
+#: Cell texts a CSV reader takes as missing: only the empty cell (``NA`` can be a class).
+NA_VALUES = ("",)
 
 
 class FileFormat:
@@ -133,7 +135,8 @@ class CsvFormat(FileFormat):
         reader = pcsv.open_csv(input_of(path), read_options=pcsv.ReadOptions(block_size=1 << 16),
                                parse_options=self._parse_options(path),
                                convert_options=pcsv.ConvertOptions(
-                                   column_types=_AllText(), strings_can_be_null=True))
+                                   column_types=_AllText(), strings_can_be_null=True,
+                                   null_values=list(NA_VALUES)))
         return reader.schema
 
     def batches(self, path, columns, text_columns, where, batch_rows: int):
@@ -144,7 +147,7 @@ class CsvFormat(FileFormat):
             input_of(path), read_options=pcsv.ReadOptions(block_size=BLOCK_BYTES),
             parse_options=self._parse_options(path),
             convert_options=pcsv.ConvertOptions(
-                include_columns=columns, strings_can_be_null=True,
+                include_columns=columns, strings_can_be_null=True, null_values=list(NA_VALUES),
                 column_types={**{c: pa.float64() for c in columns if c not in text_columns},
                               **{c: pa.string() for c in text_columns}}))
         yield from _filtered(reader, where)
@@ -155,7 +158,8 @@ class CsvFormat(FileFormat):
         if size_of(path) == 0:
             raise file_error(path, "the file is empty")
         usecols = None if columns is None else (lambda c: c in set(columns))
-        return pd.read_csv(input_of(path), sep=self._sep(path), usecols=usecols, encoding="utf-8-sig")
+        return pd.read_csv(input_of(path), sep=self._sep(path), usecols=usecols,
+                           encoding="utf-8-sig", keep_default_na=False, na_values=list(NA_VALUES))
 
     def column_names(self, path) -> list:
         import pandas as pd
@@ -232,7 +236,7 @@ class JsonLinesFormat(FileFormat):
     def frame(self, path, columns=None):
         import pandas as pd
 
-        df = pd.read_json(input_of(path), lines=True)
+        df = pd.read_json(input_of(path), lines=True, dtype=False)  # labels as stored
         return df if columns is None else df[[c for c in columns if c in df.columns]]
 
     def column_names(self, path) -> list:

@@ -29,7 +29,8 @@ def read_matrix(path) -> xr.DataArray:
     path : str or path-like
         CSV whose first column holds actual class labels, whose header row
         holds predicted class labels (after a first header cell that is
-        ignored), and whose cells are non-negative integers.
+        ignored), and whose cells are non-negative integers. Labels are
+        taken as typed (whitespace kept, ``NA`` a label like any other).
 
     Returns
     -------
@@ -63,8 +64,8 @@ def read_matrix(path) -> xr.DataArray:
         raise file_error(path, f"cannot read as a counts matrix: {first_line(exc)}") from None
     if raw.shape[0] < 2 or raw.shape[1] < 2:
         raise file_error(path, "a counts matrix needs a header row, a label column and at least one cell")
-    cols = [c.strip() for c in raw.iloc[0, 1:]]
-    rows = [r.strip() for r in raw.iloc[1:, 0]]
+    cols = list(raw.iloc[0, 1:])  # labels as typed, whitespace kept (as in tables)
+    rows = list(raw.iloc[1:, 0])
     _check_matrix_labels(path, rows, cols)
     cells = raw.iloc[1:, 1:].to_numpy()
     counts = _parse_counts(path, cells, rows, cols)
