@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from foldcorr.report.json import plain
-from foldcorr.report.tables import Column, Report, Table, format_value
+from foldcorr.report.tables import Column, Report, Table, format_p, format_value
 from foldcorr.report.uncertainty import percent
 
 __all__ = ["COMPARE_SCHEMA", "verdict", "compare_report", "compare_dict", "compare_document"]
@@ -19,10 +19,6 @@ COMPARE_SCHEMA = "foldcorr.compare/1"
 
 def _m(value) -> str:
     return format_value(float(value), "metric")
-
-
-def _p(p: float) -> str:
-    return f"{p:.3g}" if p >= 0.001 else f"{p:.1e}"
 
 
 def verdict(c, labels=("A", "B")) -> str:
@@ -43,7 +39,7 @@ def verdict(c, labels=("A", "B")) -> str:
     lvl = percent(c.level)
     detail = (f"R_K {_m(c.rk_b)} for {b} against {_m(c.rk_a)} for {a}, difference "
               f"{_m(c.difference)} ({lvl} CI {_m(low)} to {_m(high)}; permutation p = "
-              f"{_p(c.p_value)})")
+              f"{format_p(c.p_value)})")
     if c.decided:
         winner, loser = (b, a) if c.better == "b" else (a, b)
         return (f"model {winner} is better: its R_K is higher than {loser}'s and the data "
@@ -86,7 +82,7 @@ def compare_report(c, *, labels=("A", "B"), names=None, top: int | None = 20,
         ((f"R_K of {a}", _m(c.rk_a)), (f"R_K of {b}", _m(c.rk_b)),
          (f"difference ({b} - {a})", _m(c.difference)),
          (f"{lvl} paired bootstrap CI", f"{_m(low)} to {_m(high)}"),
-         ("permutation p-value (two-sided)", _p(c.p_value)),
+         ("permutation p-value (two-sided)", format_p(c.p_value)),
          ("resamples / permutations", f"{c.n_resamples} / {c.n_permutations}")),
         note=f"model {a} and model {b} are scored on the same samples; the interval resamples "
              "samples with both predictions kept together",

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 from foldcorr.report.tables import Report
 
-__all__ = ["Document", "write", "render_report", "write_text", "write_json", "write_markdown",
+__all__ = ["Document", "write", "write_text", "write_json", "write_markdown",
            "write_html"]
 
 
@@ -86,14 +86,3 @@ def write(doc: Document, fmt: str) -> str:
     check_choice("format", fmt, FORMATS)
     module, name = WRITERS[fmt].split(":")
     return getattr(importlib.import_module(module), name)(doc)
-
-
-def render_report(report: Report, make_json, fmt: str) -> str:
-    """Write a :class:`Report` and its JSON document (``make_json()``) in ``fmt``.
-
-    Examples
-    --------
-    >>> render_report(Report("t", (), ()), lambda: {"schema": "x"}, "json")
-    '{\\n  "schema": "x"\\n}\\n'
-    """
-    return write(Document(report, make_json), fmt)

@@ -7,7 +7,7 @@ The renderers take a :class:`foldcorr.analysis.many.ManyComparison` and never co
 from __future__ import annotations
 
 from foldcorr.report.json import plain
-from foldcorr.report.tables import Column, Report, Table, format_value
+from foldcorr.report.tables import Column, Report, Table, format_p, format_value
 from foldcorr.report.uncertainty import percent
 
 __all__ = ["MANY_SCHEMA", "many_report", "many_dict", "many_document"]
@@ -17,11 +17,6 @@ MANY_SCHEMA = "foldcorr.compare/2"
 
 def _interval(low, high) -> str:
     return f"[{format_value(float(low), 'metric')}, {format_value(float(high), 'metric')}]"
-
-
-def _p(p) -> str:
-    p = float(p)
-    return "n/a" if p != p else (f"{p:.3g}" if p >= 0.001 else f"{p:.1e}")
 
 
 def _py(value):
@@ -60,7 +55,7 @@ def many_report(mc, *, top: int | None = 20, source: str | None = None) -> Repor
         (name, float(r["rk"].values[i]), _interval(r["low"].values[i], r["high"].values[i]))
         + ((0.0, "", "", "(best)") if name == str(mc.best) else
            (float(r["gap"].values[i]), _interval(r["gap_low"].values[i], r["gap_high"].values[i]),
-            _p(r["p_adjusted"].values[i]), "yes" if bool(r["separated"].values[i]) else "no"))
+            format_p(r["p_adjusted"].values[i]), "yes" if bool(r["separated"].values[i]) else "no"))
         for i, name in enumerate(models))
     ranking = Table(
         "Models ranked by R_K",

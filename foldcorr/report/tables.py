@@ -16,7 +16,7 @@ from foldcorr.evaluation import Evaluation
 from foldcorr.figures import MULTICLASS, MULTILABEL, PER_FOLD, POOLED, Figure
 from foldcorr.report.sections import hooks
 
-__all__ = ["Column", "Table", "Report", "score_report", "format_value", "figure_column",
+__all__ = ["Column", "Table", "Report", "score_report", "format_value", "format_p", "figure_column",
            "figure_cell", "COLUMN_KIND", "WORDING", "plot_text"]
 
 
@@ -71,6 +71,18 @@ class Report:
     facts: tuple[tuple[str, str], ...]
     tables: tuple[Table, ...]
     warnings: tuple[str, ...] = field(default_factory=tuple)
+
+
+def format_p(p) -> str:
+    """Format a p-value: three significant digits, scientific below 0.001, ``n/a`` if undefined.
+
+    Examples
+    --------
+    >>> format_p(0.04321), format_p(0.00002), format_p(float("nan"))
+    ('0.0432', '2.0e-05', 'n/a')
+    """
+    p = float(p)
+    return "n/a" if p != p else (f"{p:.3g}" if p >= 0.001 else f"{p:.1e}")
 
 
 def format_value(value, kind: str) -> str:
