@@ -22,7 +22,13 @@ __all__ = [
     "UndefinedMetricWarning",
     "require",
     "collect_undefined",
+    "MIN_RESAMPLES",
+    "MAX_RESAMPLES",
 ]
+
+#: Fewest and most bootstrap resamples or permutations accepted, by the library
+#: (:func:`foldcorr.analysis.resampling.check_resamples`) and the command line alike.
+MIN_RESAMPLES, MAX_RESAMPLES = 100, 10**6
 
 
 class FoldcorrError(Exception):

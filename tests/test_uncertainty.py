@@ -341,10 +341,22 @@ def test_fold_statistics_needs_two_folds():
 
 def test_resamples_bounded_in_the_library():
     # the library refuses what the command line refuses: more than 10^6 resamples
-    from foldcorr.analysis.resampling import MAX_RESAMPLES, check_resamples
+    from foldcorr.analysis.resampling import check_resamples
+    from foldcorr.errors import MAX_RESAMPLES
     assert check_resamples(MAX_RESAMPLES) == 10**6
     with pytest.raises(OptionError, match=r"`n_resamples` must be a whole number of at most "
                                           r"1,000,000; got 1000001"):
         check_resamples(10**6 + 1)
     with pytest.raises(OptionError, match=r"at least 100; got 99"):
         check_resamples(99)
+
+
+def test_command_line_and_library_share_one_resample_limit():
+    # one limit: the command line's --resamples refuses exactly what check_resamples refuses above
+    import argparse
+
+    from foldcorr.cli.args import RESAMPLES
+    from foldcorr.errors import MAX_RESAMPLES
+    assert RESAMPLES(str(MAX_RESAMPLES)) == MAX_RESAMPLES
+    with pytest.raises(argparse.ArgumentTypeError, match="from 1 to 1,000,000"):
+        RESAMPLES(str(MAX_RESAMPLES + 1))

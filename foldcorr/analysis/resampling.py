@@ -26,11 +26,17 @@ from functools import partial
 import numpy as np
 import xarray as xr
 
-from foldcorr.errors import InvalidTensorError, OptionError, UndefinedMetricWarning
+from foldcorr.errors import (
+    MAX_RESAMPLES,
+    MIN_RESAMPLES,
+    InvalidTensorError,
+    OptionError,
+    UndefinedMetricWarning,
+)
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, py_value, validate_tensor
 
 __all__ = [
-    "RESAMPLE", "METHODS", "MIN_RESAMPLES", "MAX_RESAMPLES", "check_level", "check_resamples",
+    "RESAMPLE", "METHODS", "check_level", "check_resamples",
     "whole_counts", "Strata", "resample_cells", "resample_blocks", "statistic_label", "apply_statistic",
     "pool_folds", "statistic_draws", "normal_cdf", "normal_ppf", "interval", "draw_notes",
     "jackknife_moments",
@@ -40,8 +46,6 @@ __all__ = [
 RESAMPLE = "resample"
 #: Interval methods accepted by :func:`bootstrap`.
 METHODS = ("percentile", "bca")
-#: Fewest and most resamples accepted for an interval (the command line's limits too).
-MIN_RESAMPLES, MAX_RESAMPLES = 100, 10**6
 
 # Cells per block of resampled tensors handed to the statistic at once.
 _BLOCK_CELLS = 1 << 22

@@ -10,11 +10,11 @@ from __future__ import annotations
 import argparse
 
 from foldcorr._version import __version__
+from foldcorr.errors import MAX_RESAMPLES, MIN_RESAMPLES
 from foldcorr.pipeline import ScoreOptions
 from foldcorr.report.formats import FORMATS
 
-__all__ = ["get_parser", "OPTION_OF_DEST", "flag_names", "Parser", "MAX_RESAMPLES",
-           "MAX_DEMO_SAMPLES"]
+__all__ = ["get_parser", "OPTION_OF_DEST", "flag_names", "Parser", "MAX_DEMO_SAMPLES"]
 
 #: Not given: absent from the namespace (the pipeline holds the defaults).
 UNSET = argparse.SUPPRESS
@@ -22,8 +22,6 @@ UNSET = argparse.SUPPRESS
 OPTION_OF_DEST = {"ci": "level", "resamples": "n_resamples", "ci_method": "method"}
 
 
-#: Most bootstrap resamples or permutations accepted (``--resamples``, ``--permutations``).
-MAX_RESAMPLES = 10**6
 #: Most demo samples accepted (``demo --samples``).
 MAX_DEMO_SAMPLES = 10**9
 
@@ -207,7 +205,7 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
                    help="add bootstrap intervals at this level, e.g. 0.95")
     p.add_argument("--resamples", type=RESAMPLES, default=UNSET, metavar="B",
                    help=f"bootstrap resamples for --ci (default: {ScoreOptions.DEFAULT_RESAMPLES}, "
-                        f"at least 100, at most {MAX_RESAMPLES:,})")
+                        f"at least {MIN_RESAMPLES}, at most {MAX_RESAMPLES:,})")
     p.add_argument("--ci-method", choices=("percentile", "bca"), default=UNSET,
                    help=f"interval method for --ci: percentile or bca (default: "
                         f"{ScoreOptions.DEFAULT_METHOD})")
@@ -407,7 +405,7 @@ def get_parser() -> argparse.ArgumentParser:
     compare.add_argument("--ci", type=_number, default=UNSET, metavar="LEVEL",
                          help="level of the intervals (default: 0.95)")
     compare.add_argument("--resamples", type=RESAMPLES, default=UNSET, metavar="B",
-                         help=f"paired bootstrap resamples (default: 2000, at least 100, at "
+                         help=f"paired bootstrap resamples (default: 2000, at least {MIN_RESAMPLES}, at "
                               f"most {MAX_RESAMPLES:,})")
     compare.add_argument("--permutations", type=RESAMPLES, metavar="P",
                          help="sign-flip permutations (default: as many as --resamples, at most "
