@@ -20,6 +20,7 @@ __all__ = [
     "EngineError",
     "TensorTooLargeError",
     "UndefinedMetricWarning",
+    "LabelTypeWarning",
     "require",
     "collect_undefined",
     "MIN_RESAMPLES",
@@ -61,6 +62,10 @@ class TensorTooLargeError(FoldcorrError, MemoryError):
 
 class UndefinedMetricWarning(RuntimeWarning):
     """A metric is 0/0 somewhere; the message says where and what was returned."""
+
+
+class LabelTypeWarning(UserWarning):
+    """Labels of a numeric column are compared as text with a text column that reads as numbers."""
 
 
 def require(module: str, *, extra: str, purpose: str):

@@ -51,11 +51,12 @@ def test_weight_and_explicit_columns(tmp_path, table):
     assert t.attrs["fold_column"] == "cv"
 
 
-def test_numeric_classes_option_is_matched_to_integer_labels(tmp_path):
+def test_numeric_classes_option_is_matched_to_csv_label_text(tmp_path):
+    # issue 12: CSV labels stay text, so --classes 2,1,3 names the texts "2", "1", "3"
     path = tmp_path / "p.csv"
     path.write_text("actual,predicted\n1,2\n2,2\n")
     t = load_tensor(path, TableSpec(classes=("2", "1", "3")))
-    assert t.coords["actual"].values.tolist() == [2, 1, 3]
+    assert t.coords["actual"].values.tolist() == ["2", "1", "3"]
 
 
 def write(tmp_path, name, text):

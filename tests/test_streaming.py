@@ -159,10 +159,11 @@ def test_classes_fixed_order_and_integer_classes(tmp_path):
     p = tmp_path / "p.csv"
     p.write_text("actual,predicted\n1,1\n2,3\n3,3\n")
     t = load_tensor(p, TableSpec(classes=("3", "2", "1", "4")))
-    assert t.coords["actual"].values.tolist() == [3, 2, 1, 4]
+    # issue 12: CSV labels stay text (they were integers before)
+    assert t.coords["actual"].values.tolist() == ["3", "2", "1", "4"]
     # sklearn.metrics.confusion_matrix with the same label order
-    np.testing.assert_array_equal(t.values, confusion_matrix([1, 2, 3], [1, 3, 3],
-                                                             labels=[3, 2, 1, 4]))
+    np.testing.assert_array_equal(t.values, confusion_matrix(["1", "2", "3"], ["1", "3", "3"],
+                                                             labels=["3", "2", "1", "4"]))
 
 
 ERRORS = {
@@ -367,14 +368,15 @@ def test_progress_bar_gives_the_same_tensor(tmp_path, capsys):
     assert capsys.readouterr().out == ""          # the bar never goes to stdout
 
 
-def test_csv_text_that_reads_as_one_number_is_one_class(tmp_path):
-    # "1" and "1.0" in float columns are the same class, as pandas reads them.
+def test_csv_label_text_that_reads_as_one_number_stays_apart(tmp_path):
+    # issue 12 (changed behaviour): "1", "1.0" and "2.50" are three labels as typed; they
+    # were one float class each before
     p = tmp_path / "p.csv"
     p.write_text("actual,predicted\n1,1.0\n1.0,2\n2.50,1\n1,1\n")
     t = stream_tensor(p, batch_rows=1).tensor
-    assert t.coords["actual"].values.tolist() == [1.0, 2.0, 2.5]
-    # sklearn.metrics.confusion_matrix on the same classes written as text
-    np.testing.assert_array_equal(t.values, confusion_matrix(["1", "1", "2.5", "1"],
-                                                             ["1", "2", "1", "1"],
-                                                             labels=["1", "2", "2.5"]))
+    assert t.coords["actual"].values.tolist() == ["1", "1.0", "2", "2.50"]
+    # sklearn.metrics.confusion_matrix of the same rows as typed
+    np.testing.assert_array_equal(t.values, confusion_matrix(["1", "1.0", "2.50", "1"],
+                                                             ["1.0", "2", "1", "1"],
+                                                             labels=["1", "1.0", "2", "2.50"]))
     assert t.values.tolist() == _load_in_memory(p).values.tolist()

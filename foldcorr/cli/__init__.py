@@ -9,8 +9,10 @@ builds the parser, :mod:`foldcorr.cli.verbs` runs each verb.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import sys
+import warnings
 
 from foldcorr.cli.args import get_parser
 
@@ -26,6 +28,36 @@ OUT_OF_MEMORY = ("out of memory: the run needs more memory than is free; use few
 def _fail(message: str) -> int:
     print(f"foldcorr: error: {message}", file=sys.stderr)
     return 2
+
+
+@contextlib.contextmanager
+def label_warnings_as_lines():
+    """Within the block, each distinct :class:`~foldcorr.errors.LabelTypeWarning` is one
+    line on stderr, ``foldcorr: warning: ...`` (other warnings as Python shows them).
+
+    Examples
+    --------
+    >>> import warnings
+    >>> from foldcorr.errors import LabelTypeWarning
+    >>> with label_warnings_as_lines():
+    ...     warnings.warn("labels compared as text", LabelTypeWarning)
+    """
+    from foldcorr.errors import LabelTypeWarning
+
+    shown = set()
+    with warnings.catch_warnings():
+        before = warnings.showwarning
+
+        def show(message, category, filename, lineno, file=None, line=None):
+            if not issubclass(category, LabelTypeWarning):
+                return before(message, category, filename, lineno, file, line)
+            if str(message) not in shown:
+                shown.add(str(message))
+                print(f"foldcorr: warning: {message}", file=sys.stderr)
+
+        warnings.simplefilter("always", LabelTypeWarning)
+        warnings.showwarning = show
+        yield
 
 
 def main(argv=None) -> int:
@@ -58,7 +90,7 @@ def _main(argv) -> int:
     defer_array_lookups()  # a run imports Dask or sparse only when it makes such arrays
     staging = Staging()
     try:
-        with staging:
+        with staging, label_warnings_as_lines():
             check_targets(args)
             code = VERBS[args.verb](args, staging)
             sys.stdout.flush()

@@ -78,8 +78,11 @@ class FileFormat:
         """
         raise NotImplementedError
 
-    def frame(self, path, columns=None):
-        """The whole table (only ``columns`` where the format allows) as a pandas DataFrame."""
+    def frame(self, path, columns=None, labels=()):
+        """The whole table (only ``columns`` where the format allows) as a pandas DataFrame.
+
+        ``labels`` names label columns, which a text format keeps as text.
+        """
         raise NotImplementedError
 
     def column_names(self, path) -> list:
@@ -152,14 +155,15 @@ class CsvFormat(FileFormat):
                               **{c: pa.string() for c in text_columns}}))
         yield from _filtered(reader, where)
 
-    def frame(self, path, columns=None):
+    def frame(self, path, columns=None, labels=()):
         import pandas as pd
 
         if size_of(path) == 0:
             raise file_error(path, "the file is empty")
         usecols = None if columns is None else (lambda c: c in set(columns))
         return pd.read_csv(input_of(path), sep=self._sep(path), usecols=usecols,
-                           encoding="utf-8-sig", keep_default_na=False, na_values=list(NA_VALUES))
+                           dtype={c: object for c in labels}, encoding="utf-8-sig",
+                           keep_default_na=False, na_values=list(NA_VALUES))
 
     def column_names(self, path) -> list:
         import pandas as pd
@@ -197,7 +201,7 @@ class ParquetFormat(FileFormat):
         yield from dataset.to_batches(columns=columns, filter=expr, batch_size=batch_rows,
                                       batch_readahead=BATCH_READAHEAD, fragment_readahead=1)
 
-    def frame(self, path, columns=None):
+    def frame(self, path, columns=None, labels=()):
         import pyarrow.parquet as pq
 
         names = self.schema(path).names
@@ -233,7 +237,7 @@ class JsonLinesFormat(FileFormat):
 
         yield from _filtered(selected(), where)
 
-    def frame(self, path, columns=None):
+    def frame(self, path, columns=None, labels=()):
         import pandas as pd
 
         df = pd.read_json(input_of(path), lines=True, dtype=False)  # labels as stored
@@ -301,7 +305,7 @@ class MemoryFormat(FileFormat):
     def batches(self, path, columns, text_columns, where, batch_rows: int):
         yield from path.batches(columns, where, batch_rows)
 
-    def frame(self, path, columns=None):
+    def frame(self, path, columns=None, labels=()):
         import pyarrow as pa
 
         table = pa.Table.from_batches(list(path.batches(columns or path.schema().names, None,

@@ -18,7 +18,7 @@ import xarray as xr
 from foldcorr.tensor import joint_tally
 from foldcorr.errors import InvalidInputError
 from foldcorr.sources.problems import file_error
-from foldcorr.sources.tables import classes_like, read_table, text_labels
+from foldcorr.sources.tables import classes_like, comparable_labels, read_table, text_labels
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_columns
 
 __all__ = ["PairSpec", "load_joint", "ModelTable", "load_models", "same_kind",
@@ -71,17 +71,25 @@ def _first(values) -> str:
     return repr(values.iloc[0].item() if hasattr(values.iloc[0], "item") else values.iloc[0])
 
 
-def same_kind(*columns: pd.Series) -> list[pd.Series]:
+def same_kind(*columns: pd.Series, warn: bool = True) -> list[pd.Series]:
     """Label columns compared in one type: all as text when numeric meets non-numeric.
+
+    With ``warn``, a :class:`~foldcorr.errors.LabelTypeWarning` says so when
+    the text reads as numbers (see :func:`foldcorr.tensor.coding.compared_labels`);
+    id columns pass ``warn=False``.
 
     Examples
     --------
     >>> [c.tolist() for c in same_kind(pd.Series([1, 2]), pd.Series(["1", "x"]))]
     [['1', '2'], ['1', 'x']]
     """
-    numeric = {pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s)
-               for s in columns}
-    return [text_labels(s) for s in columns] if len(numeric) > 1 else list(columns)
+    numeric = [pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s)
+               for s in columns]
+    if len(set(numeric)) < 2:
+        return list(columns)
+    if warn:  # the warning of the label rule, once, for a numeric and a text column
+        comparable_labels(columns[numeric.index(True)], columns[numeric.index(False)])
+    return [text_labels(s) for s in columns]
 
 
 def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArray:
@@ -120,7 +128,7 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
     1
     """
     path = Path(path)
-    df = read_table(path)
+    df = read_table(path, labels=[spec.truth, spec.pred, spec.pred_a, spec.pred_b])
     fold = _fold_of(df, spec)
     if path_b is None:
         if spec.pred_a is None or spec.pred_b is None:
@@ -140,9 +148,9 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
                 "with two tables, name the id column that joins them (--id COL)")
         col_a, col_b = spec.pred_a or spec.pred, spec.pred_b or spec.pred
         _need(path, df, [spec.id, spec.truth, col_a, fold])
-        other = read_table(path_b)
+        other = read_table(path_b, labels=[spec.truth, col_b])
         _need(path_b, other, [spec.id, col_b])
-        ids_a, ids_b = same_kind(df[spec.id], other[spec.id])
+        ids_a, ids_b = same_kind(df[spec.id], other[spec.id], warn=False)
         _check_ids(path, path_b, ids_a, ids_b, spec.id)
         position = pd.Index(ids_b).get_indexer(ids_a)
         other = other.iloc[position].reset_index(drop=True)
@@ -259,7 +267,7 @@ def load_models(paths, spec: PairSpec = PairSpec(), *, models=None) -> ModelTabl
     (['m1', 'm2', 'm3'], ['x', 'x'])
     """
     paths = [Path(p) for p in paths]
-    first = read_table(paths[0])
+    first = read_table(paths[0], labels=[spec.truth, spec.pred, *(models or [])])
     fold = _fold_of(first, spec)
     if len(paths) == 1:
         models = list(models or [])
@@ -290,9 +298,9 @@ def load_models(paths, spec: PairSpec = PairSpec(), *, models=None) -> ModelTabl
 
 def _aligned(path_a: Path, first: pd.DataFrame, path: Path, spec: PairSpec) -> pd.DataFrame:
     """The table ``path`` in the row order of ``first``, joined on ``spec.id``; truth checked."""
-    other = read_table(path)
+    other = read_table(path, labels=[spec.truth, spec.pred])
     _need(path, other, [spec.id, spec.pred])
-    ids_a, ids_b = same_kind(first[spec.id], other[spec.id])
+    ids_a, ids_b = same_kind(first[spec.id], other[spec.id], warn=False)
     _check_ids(path_a, path, ids_a, ids_b, spec.id)
     other = other.iloc[pd.Index(ids_b).get_indexer(ids_a)].reset_index(drop=True)
     if spec.truth in other.columns:
@@ -338,7 +346,7 @@ def load_clustered(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: st
     from foldcorr.tensor import cluster_tally
 
     path = Path(path)
-    df = read_table(path)
+    df = read_table(path, labels=[truth, pred])
     fold = FOLD if fold == "auto" and FOLD in df.columns else (None if fold == "auto" else fold)
     _need(path, df, [truth, pred, cluster, fold])
     actual, predicted = same_kind(df[truth], df[pred])

@@ -193,7 +193,7 @@ def read_samples(path, tensor: xr.DataArray, id_column: str) -> Samples:
     pred = tensor.attrs.get("pred_column", PREDICTED)
     fold = tensor.attrs.get("fold_column")
     wanted = [c for c in (id_column, truth, pred, fold) if c]
-    df = read_table(path, columns=wanted)
+    df = read_table(path, columns=wanted, labels=[truth, pred])
     if id_column not in df.columns:
         raise InvalidInputError(f"{path.name}: id column {id_column!r} not found; the table has "
                                 f"columns {list(df.columns)!r}")

@@ -21,9 +21,9 @@ from foldcorr.errors import InvalidInputError
 from foldcorr.sources.formats import TABLE_FORMATS, format_for
 from foldcorr.sources.problems import file_error, first_line
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_frame
-from foldcorr.tensor.coding import coerce_classes, labels_as_text, series_kind
+from foldcorr.tensor.coding import coerce_classes, compared_labels, labels_as_text, series_kind
 
-__all__ = ["TableSpec", "read_table", "text_labels", "classes_like"]
+__all__ = ["TableSpec", "read_table", "text_labels", "classes_like", "comparable_labels"]
 
 
 @dataclass(frozen=True)
@@ -50,7 +50,7 @@ class TableSpec:
     classes: tuple | None = None
 
 
-def read_table(path, columns=None) -> pd.DataFrame:
+def read_table(path, columns=None, labels=()) -> pd.DataFrame:
     """Read a prediction table, only the named columns where the format allows.
 
     Parameters
@@ -59,6 +59,9 @@ def read_table(path, columns=None) -> pd.DataFrame:
         A ``.csv``, ``.tsv``, ``.parquet`` or ``.jsonl`` file.
     columns : list of str, optional
         Columns to read; all when None.
+    labels : sequence of str, default ()
+        Columns of labels: a CSV reader keeps their text as written
+        (``01`` stays ``01``); typed formats keep their types.
 
     Returns
     -------
@@ -76,13 +79,16 @@ def read_table(path, columns=None) -> pd.DataFrame:
     >>> _ = p.write_text("actual,predicted\\ncat,dog\\n")
     >>> read_table(p).shape
     (1, 2)
+    >>> _ = p.write_text("actual,predicted\\n01,1\\n")
+    >>> read_table(p, labels=["actual", "predicted"]).iloc[0].tolist()
+    ['01', '1']
     """
     path = Path(path)
     if not path.is_file():
         raise file_error(path, "file not found")
     fmt = format_for(path, among=TABLE_FORMATS)
     try:
-        df = fmt.frame(path, columns)
+        df = fmt.frame(path, columns, labels=labels)
     except InvalidInputError:
         raise
     except Exception as exc:  # pandas and pyarrow raise their own error types
@@ -99,11 +105,11 @@ def _load_in_memory(path, spec: TableSpec = TableSpec()) -> xr.DataArray:
     for comparison in the benchmarks); :func:`load_tensor` does not use it.
     """
     path = Path(path)
-    df = read_table(path, columns=_wanted(spec))
+    df = read_table(path, columns=_wanted(spec), labels=[spec.truth, spec.pred])
     fold = _fold_column(path, df, spec)
     _require_columns(path, df, [spec.truth, spec.pred, fold, spec.weight])
     classes = None if spec.classes is None else classes_like(spec.classes, df[spec.truth])
-    truth, pred = _comparable(df[spec.truth], df[spec.pred])
+    truth, pred = comparable_labels(df[spec.truth], df[spec.pred])
     frame = df.assign(**{spec.truth: truth, spec.pred: pred})
     try:
         t = tally_frame(frame, truth=spec.truth, pred=spec.pred,
@@ -135,11 +141,23 @@ def _require_columns(path, df, names) -> None:
             raise file_error(path, f"column {name!r} not found; the table has {names!r}")
 
 
-def _comparable(truth: pd.Series, pred: pd.Series):
-    """Make truth and pred comparable when one is numeric and the other text."""
-    numeric = [pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s)
-               for s in (truth, pred)]
-    if numeric[0] != numeric[1]:
+def comparable_labels(truth: pd.Series, pred: pd.Series):
+    """Truth and predicted labels in one type, by the rule of
+    :func:`foldcorr.tensor.coding.compared_labels` (text when either is text).
+
+    Examples
+    --------
+    >>> import warnings
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")
+    ...     t, p = comparable_labels(pd.Series([1, 2], name="a"), pd.Series(["01", "2"], name="p"))
+    >>> t.tolist(), p.tolist()
+    (['1', '2'], ['01', '2'])
+    """
+    kinds = (series_kind(truth), series_kind(pred))
+    distinct = tuple(s.dropna().unique().tolist() for s in (truth, pred))
+    kind, _, _ = compared_labels((truth.name, pred.name), kinds, distinct)
+    if kind == "text":
         return text_labels(truth), text_labels(pred)
     return truth, pred
 
@@ -150,8 +168,8 @@ def text_labels(column: pd.Series) -> pd.Series:
 
     Examples
     --------
-    >>> text_labels(pd.Series([1.0, None, 3.0])).tolist()
-    ['1', None, '3']
+    >>> text_labels(pd.Series([1.0, None, 3.5])).tolist()
+    ['1.0', None, '3.5']
     """
     out = pd.Series([None] * len(column), index=column.index, dtype=object)
     known = column.notna().to_numpy()

@@ -33,8 +33,8 @@ from foldcorr.tensor import (
 from foldcorr.tensor.coding import (
     LabelCoder,
     coerce_classes,
+    compared_labels,
     label_key,
-    labels_as_text,
     settle_labels,
 )
 
@@ -112,7 +112,7 @@ class StreamTally:
         self.truth, self.pred, self.fold, self.weight = truth, pred, fold, weight
         self.coders = {"truth": LabelCoder(text=text), "pred": LabelCoder(text=text)}
         if fold is not None:
-            self.coders["fold"] = LabelCoder(text=text)
+            self.coders["fold"] = LabelCoder(text=text, folds=True)
         self._counts = np.zeros((1, 0, 0), dtype=np.float64 if weight else np.int64)
         # Unweighted batches are counted into a uint32 array of the same shape
         # (half the memory an int64 count touches per row), added into the
@@ -327,13 +327,8 @@ class StreamTally:
         out = {role: (codes, *settle_labels(self.coders[role], codes))
                for role in self.coders for codes in [self._seen_codes(role)]}
         (ct, kt, vt), (cp, kp, vp) = out["truth"], out["pred"]
-        numeric = [k in ("int", "float") for k in (kt, kp)]
-        if numeric[0] != numeric[1]:
-            out["truth"] = (ct, "text", labels_as_text(kt, vt))
-            out["pred"] = (cp, "text", labels_as_text(kp, vp))
-        elif all(numeric) and "float" in (kt, kp):
-            out["truth"] = (ct, "float", [float(v) for v in vt])
-            out["pred"] = (cp, "float", [float(v) for v in vp])
+        kind, vt, vp = compared_labels((self.truth, self.pred), (kt, kp), (vt, vp))
+        out["truth"], out["pred"] = (ct, kind or kt, vt), (cp, kind or kp, vp)
         return out
 
     def tensor(self, *, classes=None, attrs=None, unknown=None):

@@ -2,9 +2,12 @@
 
 A :class:`LabelCoder` gives each distinct value of a column a stable integer
 code across batches and files (small non-negative integers are their own
-codes); :func:`settle_labels` then types the values seen, as pandas would read
-the whole column; :func:`labels_as_text` and :func:`coerce_classes` make truth,
-predictions and given class names agree on one type. Values arrive as Arrow
+codes); :func:`settle_labels` then types the values seen: label text stays the
+text the source holds, fold text becomes numbers when every value reads so
+(folds keep their numeric order). :func:`compared_labels`,
+:func:`labels_as_text` and :func:`coerce_classes` make truth, predictions and
+given class names agree on one type (text when either side is text, with a
+:class:`~foldcorr.errors.LabelTypeWarning` when that text reads as numbers). Values arrive as Arrow
 arrays (the in-memory columnar type of every reader); nothing here reads a
 file, and pyarrow is imported only when an array is coded.
 """
@@ -13,11 +16,15 @@ from __future__ import annotations
 
 import math
 import re
+import warnings
 
 import numpy as np
 
+from foldcorr.errors import LabelTypeWarning
+
 __all__ = ["DIRECT_MAX", "BOOL_TEXT", "LabelCoder", "arrow_kind", "settle_labels",
-           "labels_as_text", "coerce_classes", "label_key", "series_kind"]
+           "labels_as_text", "coerce_classes", "label_key", "series_kind", "compared_labels",
+           "reads_as_numbers"]
 
 #: Integer labels in [0, DIRECT_MAX) are their own codes (no hashing).
 DIRECT_MAX = 1 << 11
@@ -26,6 +33,7 @@ BOOL_TEXT = {"True": True, "TRUE": True, "true": True,
              "False": False, "FALSE": False, "false": False}
 
 _INT_TEXT = re.compile(r"\s*[+-]?[0-9]+\s*")
+_NUMBER_TEXT = re.compile(r"\s*[+-]?([0-9]+\.?[0-9]*|\.[0-9]+)([eE][+-]?[0-9]+)?\s*")
 
 
 class LabelCoder:
@@ -40,6 +48,10 @@ class LabelCoder:
     text : bool
         The values are CSV text whose type is settled at the end (see
         :func:`settle_labels`).
+    folds : bool, default False
+        The column holds folds, not labels: its text becomes numbers when
+        every value reads so, to keep the folds' numeric order. Label text is
+        never changed.
 
     Examples
     --------
@@ -49,8 +61,9 @@ class LabelCoder:
     ([0, 1, 0], ['b', 'a'])
     """
 
-    def __init__(self, *, text: bool):
+    def __init__(self, *, text: bool, folds: bool = False):
         self.text = text          # values are CSV text; their type is settled at the end
+        self.folds = folds        # fold text is typed (numeric order); label text never is
         self.direct = True        # codes are the integer values themselves
         self.size = 0
         self.index: dict = {}
@@ -169,11 +182,13 @@ def series_kind(column) -> str:
 
 
 def settle_labels(coder: LabelCoder, codes: np.ndarray) -> tuple[str, list]:
-    """The column kind and typed values of the seen codes, as pandas would read them.
+    """The column kind and typed values of the seen codes.
 
-    CSV text (``coder.text``) becomes booleans, integers or floats when every
-    value reads so; typed columns keep their type, integers beside floats
-    become floats.
+    CSV label text (``coder.text``) stays text as typed (``01``, ``1.0`` and
+    ``1e3`` are three labels); CSV fold text (``coder.folds``) becomes
+    booleans, integers or floats when every value reads so, keeping the
+    folds' numeric order. Typed columns keep their type; integers beside
+    floats become floats.
 
     Parameters
     ----------
@@ -192,11 +207,17 @@ def settle_labels(coder: LabelCoder, codes: np.ndarray) -> tuple[str, list]:
     --------
     >>> import pyarrow as pa
     >>> coder = LabelCoder(text=True)
-    >>> codes, _ = coder.encode(pa.array(["2", "10", "2"]))
+    >>> codes, _ = coder.encode(pa.array(["2", "10", "02"]))
     >>> settle_labels(coder, sorted(set(codes.tolist())))
+    ('text', ['2', '10', '02'])
+    >>> folds = LabelCoder(text=True, folds=True)
+    >>> codes, _ = folds.encode(pa.array(["2", "10", "2"]))
+    >>> settle_labels(folds, sorted(set(codes.tolist())))
     ('int', [2, 10])
     """
     raw = coder.value_of(codes)
+    if coder.text and not coder.folds:
+        return "text", raw
     if coder.text:
         if all(v in BOOL_TEXT for v in raw):
             return "bool", [BOOL_TEXT[v] for v in raw]
@@ -219,8 +240,9 @@ def settle_labels(coder: LabelCoder, codes: np.ndarray) -> tuple[str, list]:
 def labels_as_text(kind: str, values: list) -> list:
     """Labels as text, for a numeric column compared with a text column.
 
-    Whole floats lose their ``.0`` (so ``1.0`` reads ``"1"``, as the same
-    column of integers would); every other value is written with ``str``.
+    Every value is written with ``str``, as the source typed it: the float
+    ``1.0`` reads ``"1.0"`` (never the text ``"1"``), the integer ``7`` reads
+    ``"7"`` (never ``"007"``).
 
     Parameters
     ----------
@@ -235,12 +257,71 @@ def labels_as_text(kind: str, values: list) -> list:
 
     Examples
     --------
-    >>> labels_as_text("float", [1.0, 2.0]), labels_as_text("float", [1.5]), labels_as_text("int", [3])
-    (['1', '2'], ['1.5'], ['3'])
+    >>> labels_as_text("float", [1.0, 2.5]), labels_as_text("int", [3])
+    (['1.0', '2.5'], ['3'])
     """
-    if kind == "float" and all(math.isfinite(v) and float(v).is_integer() for v in values):
-        return [str(int(v)) for v in values]
     return [v if isinstance(v, str) else str(v) for v in values]
+
+
+def reads_as_numbers(values) -> bool:
+    """Whether every text value reads as a number (``01``, ``1e3``, ``-2.5``).
+
+    Examples
+    --------
+    >>> reads_as_numbers(["01", "1e3", "-2.5"]), reads_as_numbers(["1", "a"]), reads_as_numbers([])
+    (True, False, False)
+    """
+    values = list(values)
+    return bool(values) and all(isinstance(v, str) and _NUMBER_TEXT.fullmatch(v)
+                                for v in values)
+
+
+def compared_labels(names: tuple, kinds: tuple, values: tuple) -> tuple[str, list, list]:
+    """Truth and predicted labels in one type, as they are compared.
+
+    Text when either side is text (numbers written with :func:`labels_as_text`),
+    with a :class:`~foldcorr.errors.LabelTypeWarning` naming the columns when
+    the text side reads as numbers; floats when both are numbers and one is a
+    float; otherwise the values as they are.
+
+    Parameters
+    ----------
+    names : (str, str)
+        The truth and prediction column names (for the warning).
+    kinds : (str, str)
+        Their kinds (see :func:`arrow_kind`; ``"text"`` or ``"object"`` for text).
+    values : (list, list)
+        Their distinct values, without missing ones.
+
+    Returns
+    -------
+    (str or None, list, list)
+        The common kind (None when the kinds are kept) and both value lists.
+
+    Examples
+    --------
+    >>> import warnings
+    >>> with warnings.catch_warnings(record=True) as caught:
+    ...     warnings.simplefilter("always")
+    ...     out = compared_labels(("actual", "predicted"), ("int", "text"), ([1, 2], ["01", "2"]))
+    >>> out, str(caught[0].message)  # doctest: +NORMALIZE_WHITESPACE
+    (('text', ['1', '2'], ['01', '2']), "column 'actual' holds numbers and column 'predicted'
+    text that reads as numbers; labels are compared as text, so 1 and '01' are different
+    classes (write both columns in one type to compare them as numbers)")
+    """
+    numeric = [k in ("int", "float") for k in kinds]
+    if numeric[0] != numeric[1]:
+        text_side = 0 if numeric[1] else 1
+        if reads_as_numbers(values[text_side]):
+            num, txt = names[1 - text_side], names[text_side]
+            warnings.warn(
+                f"column {num!r} holds numbers and column {txt!r} text that reads as numbers; "
+                "labels are compared as text, so 1 and '01' are different classes (write both "
+                "columns in one type to compare them as numbers)", LabelTypeWarning, stacklevel=2)
+        return "text", labels_as_text(kinds[0], values[0]), labels_as_text(kinds[1], values[1])
+    if all(numeric) and "float" in kinds:
+        return "float", [float(v) for v in values[0]], [float(v) for v in values[1]]
+    return None, list(values[0]), list(values[1])
 
 
 def label_key(value):
