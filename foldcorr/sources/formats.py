@@ -14,6 +14,7 @@ from __future__ import annotations
 import io
 from pathlib import Path
 
+from foldcorr.errors import InvalidInputError
 from foldcorr.sources.locations import BytesFile, RemoteFile, input_of, open_dataset, size_of
 from foldcorr.sources.matrix import read_matrix
 from foldcorr.sources.memory import MemoryTable
@@ -23,7 +24,8 @@ from foldcorr.tensor.coding import arrow_kind
 
 __all__ = ["FileFormat", "CsvFormat", "ParquetFormat", "JsonLinesFormat", "CountsMatrixFormat",
            "NetcdfFormat", "MemoryFormat", "FORMATS", "TABLE_FORMATS", "TABLE_SUFFIXES", "format_for",
-           "format_of", "BLOCK_BYTES", "BATCH_READAHEAD", "NA_VALUES"]
+           "format_of", "BLOCK_BYTES", "BATCH_READAHEAD", "NA_VALUES",
+           "JSON_MAX_DEPTH", "check_json_depth"]
 
 #: Bytes per CSV / JSON Lines block.
 BLOCK_BYTES = 1 << 24
@@ -31,6 +33,8 @@ BLOCK_BYTES = 1 << 24
 BATCH_READAHEAD = 1
 #: Cell texts a CSV reader takes as missing: only the empty cell (``NA`` can be a class).
 NA_VALUES = ("",)
+#: Deepest nesting of arrays and objects a JSON Lines line may have (labels are scalars).
+JSON_MAX_DEPTH = 64
 
 
 class FileFormat:
@@ -219,6 +223,10 @@ class JsonLinesFormat(FileFormat):
         import pyarrow as pa
         import pyarrow.json as pjson
 
+        try:
+            check_json_depth(path)
+        except InvalidInputError as exc:
+            raise UnreadableFile(exc) from None
         table = pjson.read_json(_first_lines(path),
                                 read_options=pjson.ReadOptions(block_size=1 << 20))
         return pa.schema(table.schema)
@@ -227,6 +235,7 @@ class JsonLinesFormat(FileFormat):
         import pyarrow.json as pjson
 
         def selected():
+            check_json_depth(path)
             reader = pjson.open_json(input_of(path),
                                      read_options=pjson.ReadOptions(block_size=BLOCK_BYTES))
             for batch in reader:
@@ -240,6 +249,7 @@ class JsonLinesFormat(FileFormat):
     def frame(self, path, columns=None, labels=()):
         import pandas as pd
 
+        check_json_depth(path)
         df = pd.read_json(input_of(path), lines=True, dtype=False)  # labels as stored
         return df if columns is None else df[[c for c in columns if c in df.columns]]
 
@@ -384,8 +394,70 @@ def _filtered(batches, where):
         yield batch
 
 
+def check_json_depth(path, limit: int = JSON_MAX_DEPTH) -> None:
+    """Refuse a JSON Lines file with a line nested deeper than ``limit`` (before any parser
+    sees it: deep nesting exhausts the parsers' stacks).
+
+    Only a line with more opening brackets than ``limit`` is scanned, strings skipped (so
+    ``"[[["`` inside a label is no nesting).
+
+    Raises
+    ------
+    InvalidInputError
+        Naming the file and the 1-based line.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "p.jsonl"
+    >>> _ = p.write_text('{"actual": "[[[[", "predicted": "x"}\\n{"actual": [[[1]]]}\\n')
+    >>> check_json_depth(p, limit=3)
+    Traceback (most recent call last):
+    ...
+    foldcorr.errors.InvalidInputError: p.jsonl: line 2 is nested deeper than 3 levels; ...
+    """
+    with _open_bytes(path) as fh:
+        number = _deep_line(fh, limit)
+    if number is not None:
+        raise file_error(path, f"line {number} is nested deeper than {limit} levels; a JSON "
+                               "Lines table holds one flat object a line")
+
+
+def _deep_line(fh, limit: int) -> int | None:
+    """The 1-based number of the first line of ``fh`` nested deeper than ``limit``, or None.
+
+    The count of opening brackets bounds a line's depth, so only a line with more than
+    ``limit`` of them is scanned character by character.
+    """
+    for number, line in enumerate(fh, start=1):
+        if line.count(b"[") + line.count(b"{") > limit and _text_depth(line) > limit:
+            return number
+    return None
+
+
+def _text_depth(text: bytes) -> int:
+    """Deepest nesting of one JSON line, strings skipped."""
+    deepest = depth = 0
+    in_string = escaped = False
+    for ch in text.decode("utf-8", "replace"):
+        if in_string:
+            escaped, in_string = (False, True) if escaped else (ch == "\\", ch != '"')
+        elif ch == '"':
+            in_string = True
+        elif ch in "[{":
+            depth += 1
+            deepest = max(deepest, depth)
+        elif ch in "]}":
+            depth -= 1
+    return deepest
+
+
+def _open_bytes(path):
+    return path.open() if isinstance(path, (RemoteFile, BytesFile)) else open(path, "rb")
+
+
 def _first_lines(path, n: int = 1000):
-    with (path.open() if isinstance(path, (RemoteFile, BytesFile)) else open(path, "rb")) as fh:
+    with _open_bytes(path) as fh:
         lines = []
         for _ in range(n):
             line = fh.readline()
