@@ -148,3 +148,28 @@ def test_counts_matrix_labels_round_trip_unchanged(tmp_path, labels):
     t = load(path, matrix=True)
     assert sorted(t.coords["actual"].values.tolist()) == sorted(labels)
     np.testing.assert_array_equal(t.sel(actual=labels, predicted=labels).values, counts)
+
+
+@pytest.mark.parametrize("suffix", [".csv", ".parquet", ".jsonl"])
+def test_na_values_name_the_texts_that_are_missing(tmp_path, suffix):
+    truth, pred = ["NA", "b", "a"], ["a", "b", "NA"]
+    path = tmp_path / f"p{suffix}"
+    if suffix == ".csv":
+        write_csv(path, truth, pred)
+    else:
+        _sources(tmp_path, truth, pred)
+    assert "NA" in load(path).coords["actual"].values.tolist()       # default: a class
+    with pytest.raises(ValueError, match=r"column 'actual' row 1: missing label"):
+        load(path, na_values=["NA"])
+
+
+def test_na_values_on_the_command_line(tmp_path, capsys):
+    from foldcorr.cli import main
+
+    path = tmp_path / "p.csv"
+    write_csv(path, ["a", "b", "a"], ["a", "b", "n/a"])
+    assert main(["score", str(path), "--na-values", "n/a,NA"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "column 'predicted' row 3: missing label" in err[0]
+    assert main(["score", str(path), "--matrix", "--na-values", "NA"]) == 2
+    assert "`--na-values` applies to prediction tables" in capsys.readouterr().err

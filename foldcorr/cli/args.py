@@ -135,6 +135,11 @@ def _class_list(value: str) -> tuple:
     return labels
 
 
+def _text_list(value: str) -> tuple:
+    """Comma-separated texts, kept as written (whitespace included)."""
+    return tuple(v for v in value.split(",") if v)
+
+
 def _add_output_options(p: argparse.ArgumentParser, formats=FORMATS) -> None:
     p.add_argument("--format", choices=formats, default="text",
                    help="output format (default: text)")
@@ -166,6 +171,9 @@ def _add_table_options(p: argparse.ArgumentParser,
     p.add_argument("--classes", type=_class_list, default=UNSET, metavar="A,B,...",
                    help="fixed class order; labels outside it are an error")
     p.add_argument("--matrix", action="store_true", default=UNSET, help=matrix_help)
+    p.add_argument("--na-values", type=_text_list, default=UNSET, metavar="A,B,...",
+                   help="label texts that count as missing, beside the empty cell (default: the "
+                        "empty cell only, so NA, None and null are classes)")
 
 
 def _add_save_options(p: argparse.ArgumentParser) -> None:

@@ -23,7 +23,7 @@ __all__ = ["TABLE_OPTIONS", "MULTILABEL_OPTIONS", "KINDS", "score", "evaluate_wi
 MULTILABEL_OPTIONS = ("truth_cols", "pred_cols", "truth_prefix", "pred_prefix", "sep")
 #: Options describing how a source is read (see :func:`load_source`).
 TABLE_OPTIONS = ("truth", "pred", "fold", "weight", "classes", "cluster", "where", "matrix",
-                 "engine", "scheduler", "skip_bad_files", "progress", "count",
+                 "engine", "scheduler", "skip_bad_files", "progress", "count", "na_values",
                  *MULTILABEL_OPTIONS)
 _SPEC_KEYS = ("truth", "pred", "fold", "weight", "classes")
 
@@ -182,6 +182,9 @@ def load_source(source, *, names: Mapping | None = None, **table):
     if table.get("matrix") and (table.get("where") is not None or engine not in (None, "local")):
         raise OptionError(f"`{name('where')}` and `{name('engine')}` apply to prediction tables, "
                           f"not to `{name('matrix')}`")
+    if table.get("matrix") and table.get("na_values"):
+        raise OptionError(f"`{name('na_values')}` applies to prediction tables, not to "
+                          f"`{name('matrix')}`")
     from foldcorr.sources import load
 
     return load(source, **table)
@@ -194,7 +197,7 @@ def _check_multilabel(table: dict, given: dict, name) -> None:
     if table.get("matrix"):
         raise OptionError(f"`{name('matrix')}` reads a multiclass counts matrix; it does not "
                           "combine with the multilabel options")
-    for key in ("prevalence", "where", "scheduler"):
+    for key in ("prevalence", "where", "scheduler", "na_values"):
         if given.get(key, table.get(key)) is not None:
             raise OptionError(f"`{name(key)}` applies to multiclass scoring; it does not combine "
                               "with the multilabel options")
@@ -264,12 +267,12 @@ def score(source, *, names: Mapping | None = None, **options):
 
 #: Table options that do not combine with ``cluster`` (the table is read whole, unweighted).
 _NOT_WITH_CLUSTER = ("weight", "count", "where", "matrix", "engine", "scheduler",
-                     "skip_bad_files", *MULTILABEL_OPTIONS)
+                     "skip_bad_files", "na_values", *MULTILABEL_OPTIONS)
 
 
 def _load_clustered(source, table: dict, name):
     """The samples of a prediction table by cluster (``cluster`` option)."""
-    wrong = [k for k in _NOT_WITH_CLUSTER if table.get(k) not in (None, False, "local")]
+    wrong = [k for k in _NOT_WITH_CLUSTER if table.get(k) not in (None, False, "local", ())]
     if wrong:
         raise OptionError(f"`{name('cluster')}` reads a prediction table whole and unweighted; "
                           f"it does not combine with `{name(wrong[0])}`")

@@ -60,7 +60,7 @@ def dask_tally(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | 
                weight: str | None = None, classes=None, where=None,
                skip_bad_files: bool = False, progress: bool | None = None,
                scheduler=None, batch_rows: int = BATCH_ROWS,
-               count: str | None = None) -> StreamResult:
+               count: str | None = None, na_values=()) -> StreamResult:
     """Tally a dataset, or a Dask DataFrame, on a Dask cluster.
 
     Parameters
@@ -118,9 +118,9 @@ def dask_tally(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | 
     try:
         if _is_dask_frame(data):
             return _run_frame(client, data, truth, pred, fold, weight, classes, where, progress,
-                              count)
+                              count, na_values)
         return _run_files(client, data, truth, pred, fold, weight, classes, where,
-                          skip_bad_files, progress, batch_rows, count)
+                          skip_bad_files, progress, batch_rows, count, na_values)
     except FoldcorrError:
         raise
     except Exception as exc:  # a lost worker, a closed connection, a cancelled task
@@ -194,7 +194,7 @@ def _is_dask_frame(data) -> bool:
 
 
 def _run_files(client, path, truth, pred, fold, weight, classes, where, skip_bad_files,
-               progress, batch_rows, count=None) -> StreamResult:
+               progress, batch_rows, count=None, na_values=()) -> StreamResult:
     import sys
 
     import dask.bag as db
@@ -204,7 +204,7 @@ def _run_files(client, path, truth, pred, fold, weight, classes, where, skip_bad
         raise InvalidInputError(f"truth and pred name the same column {truth!r}")
     files = resolve_paths(path)
     plan = counted_plan(plan_files(path, files, truth, pred, fold, weight or count, where,
-                                   skip_bad_files), weight, count)
+                                   skip_bad_files), weight, count, na_values)
     workers = max(1, len(client.scheduler_info().get("workers", {})))
     groups = _groups(plan.files, PIECES_PER_WORKER * workers)
     pieces = db.from_sequence(groups, npartitions=len(groups)).map(
@@ -295,7 +295,7 @@ def _finish_piece(piece: _Piece, *, plan, classes, batch_rows) -> StreamResult:
 
 
 def _run_frame(client, frame, truth, pred, fold, weight, classes, where, progress,
-               count=None) -> StreamResult:
+               count=None, na_values=()) -> StreamResult:
     import dask.bag as db
 
     names = list(frame.columns)
@@ -309,7 +309,7 @@ def _run_frame(client, frame, truth, pred, fold, weight, classes, where, progres
         where = where.bind(pa.Schema.from_pandas(frame._meta, preserve_index=False))
     plan = FilePlan(files=(), skipped=(), truth=truth, pred=pred, fold=fold_col,
                     weight=weight or count, text=False, where=where, source="dask dataframe",
-                    single=False, count=count)
+                    single=False, count=count, na_values=tuple(na_values))
     parts = frame.to_delayed()
     pieces = db.from_delayed([_delayed_partition(p, i, plan, classes)
                               for i, p in enumerate(parts)])

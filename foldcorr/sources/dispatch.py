@@ -45,7 +45,7 @@ def counts_format(source, *, matrix: bool = False) -> FileFormat | None:
 def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
          weight: str | None = None, classes=None, where=None, matrix: bool = False,
          engine: str = "local", scheduler=None, skip_bad_files: bool = False,
-         progress: bool | None = False, count: str | None = None):
+         progress: bool | None = False, count: str | None = None, na_values=()):
     """Read any source into a confusion tensor.
 
     Prediction tables are streamed batch by batch (see
@@ -90,6 +90,10 @@ def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None
     count : str, optional
         Column of whole counts: rows already aggregated (see
         :mod:`foldcorr.sources.counts`); the tensor stays int64.
+    na_values : sequence of str, default ()
+        Label texts that count as missing, beside the empty CSV cell (so
+        ``NA`` is a class unless named here); a missing label is an error
+        naming its row.
 
     Returns
     -------
@@ -115,6 +119,8 @@ def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None
     [[1, 1], [0, 1]]
     """
     fmt = counts_format(source, matrix=matrix)
+    if fmt is not None and na_values:
+        raise OptionError(f"`na_values` applies to prediction tables, not to a {fmt.title}")
     if fmt is not None:
         spec = TableSpec(truth=truth, pred=pred, fold=fold, weight=weight or count,
                          classes=classes)
@@ -125,7 +131,7 @@ def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None
     return tally_dataset(source, truth=truth, pred=pred, fold=fold, weight=weight,
                          classes=classes, where=where, skip_bad_files=skip_bad_files,
                          progress=progress, engine=engine, scheduler=scheduler,
-                         count=count).tensor
+                         count=count, na_values=na_values).tensor
 
 
 def load_tensor(path, spec: TableSpec = TableSpec(), **options):
@@ -151,7 +157,7 @@ def tally_dataset(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
                   weight: str | None = None, classes=None, where=None,
                   skip_bad_files: bool = False, progress: bool | None = None,
                   engine: str = "local", scheduler=None, batch_rows: int = BATCH_ROWS,
-                  count: str | None = None) -> StreamResult:
+                  count: str | None = None, na_values=()) -> StreamResult:
     """Tally a dataset on this machine (streaming) or on a Dask cluster.
 
     Parameters
@@ -160,6 +166,7 @@ def tally_dataset(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
         A file, folder or glob of prediction tables, local or at a URL;
         standard input (``"-"``); or a table in memory (see :func:`load`).
     truth, pred, fold, weight, classes, where, skip_bad_files, progress, batch_rows, count
+    na_values
         As in :func:`foldcorr.sources.stream.stream_tensor`.
     engine : {"local", "dask"}, default "local"
         ``"local"`` streams in this process (a Dask DataFrame partition by
@@ -203,9 +210,11 @@ def tally_dataset(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
             data = memory_table(data)
         return stream_tensor(data, truth=truth, pred=pred, fold=fold, weight=weight,
                              classes=classes, where=where, skip_bad_files=skip_bad_files,
-                             progress=progress, batch_rows=batch_rows, count=count)
+                             progress=progress, batch_rows=batch_rows, count=count,
+                             na_values=na_values)
     from foldcorr.sources.cluster import dask_tally
 
     return dask_tally(data, truth=truth, pred=pred, fold=fold, weight=weight, classes=classes,
                       where=where, skip_bad_files=skip_bad_files, progress=progress,
-                      scheduler=scheduler, batch_rows=batch_rows, count=count)
+                      scheduler=scheduler, batch_rows=batch_rows, count=count,
+                      na_values=na_values)

@@ -118,7 +118,8 @@ class SkippedFiles:
 def stream_tensor(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
                   weight: str | None = None, classes=None, where=None,
                   skip_bad_files: bool = False, progress: bool | None = None,
-                  batch_rows: int = BATCH_ROWS, count: str | None = None) -> StreamResult:
+                  batch_rows: int = BATCH_ROWS, count: str | None = None,
+                  na_values=()) -> StreamResult:
     """Tally a dataset of prediction tables into a tensor, batch by batch.
 
     Parameters
@@ -182,7 +183,7 @@ def stream_tensor(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str
     bar = Progress(len(files)) if show else None
     try:
         return _stream(path, files, truth, pred, fold, weight, classes, where,
-                       skip_bad_files, batch_rows, bar, count)
+                       skip_bad_files, batch_rows, bar, count, na_values)
     finally:
         if bar is not None:
             bar.close()
@@ -227,6 +228,7 @@ class FilePlan:
     single: bool
     partitions: dict = field(default_factory=dict)
     count: str | None = None
+    na_values: tuple = ()
 
     def columns(self) -> list[str]:
         """Columns to read: labels, fold, weight and the filter's columns."""
@@ -251,7 +253,8 @@ class FilePlan:
 
     def new_tally(self) -> StreamTally:
         """An empty tally of the plan's columns."""
-        return StreamTally(self.truth, self.pred, self.fold, self.weight, text=self.text)
+        return StreamTally(self.truth, self.pred, self.fold, self.weight, text=self.text,
+                           na_values=self.na_values)
 
 
 def plan_files(path, files, truth, pred, fold, weight, where, skip_bad_files) -> FilePlan:
@@ -338,8 +341,9 @@ def _skip_entry(exc: UnreadableFile) -> tuple[str, str]:
     return name, why
 
 
-def counted_plan(plan: FilePlan, weight, count) -> FilePlan:
-    """The plan reading ``count`` as whole counts (weights and counts are exclusive).
+def counted_plan(plan: FilePlan, weight, count, na_values=()) -> FilePlan:
+    """The plan reading ``count`` as whole counts (weights and counts are exclusive), and
+    ``na_values`` as missing labels.
 
     Examples
     --------
@@ -350,6 +354,7 @@ def counted_plan(plan: FilePlan, weight, count) -> FilePlan:
     >>> counted_plan(plan, None, "n").count
     'n'
     """
+    plan = replace(plan, na_values=tuple(na_values)) if na_values else plan
     if count is None:
         return plan
     if weight is not None:
@@ -458,9 +463,9 @@ def finish_tally(plan: FilePlan, acc: StreamTally, used, skipped, classes,
 
 
 def _stream(path, files, truth, pred, fold, weight, classes, where, skip_bad_files,
-            batch_rows, bar, count=None) -> StreamResult:
+            batch_rows, bar, count=None, na_values=()) -> StreamResult:
     plan = counted_plan(plan_files(path, files, truth, pred, fold, weight or count, where,
-                                   skip_bad_files), weight, count)
+                                   skip_bad_files), weight, count, na_values)
     if bar is not None:
         bar.advance(len(plan.skipped))
     acc, used, skipped = tally_files(plan, plan.files, classes, skip_bad_files, batch_rows, bar)

@@ -95,6 +95,8 @@ class StreamTally:
         Column of sample weights.
     text : bool, default False
         Labels arrive as CSV text whose type is settled at the end.
+    na_values : sequence of str, default ()
+        Texts that count as missing labels.
 
     Examples
     --------
@@ -108,11 +110,12 @@ class StreamTally:
     """
 
     def __init__(self, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = None,
-                 weight: str | None = None, *, text: bool = False):
+                 weight: str | None = None, *, text: bool = False, na_values=()):
         self.truth, self.pred, self.fold, self.weight = truth, pred, fold, weight
-        self.coders = {"truth": LabelCoder(text=text), "pred": LabelCoder(text=text)}
+        na = frozenset(na_values)
+        self.coders = {"truth": LabelCoder(text=text, na=na), "pred": LabelCoder(text=text, na=na)}
         if fold is not None:
-            self.coders["fold"] = LabelCoder(text=text, folds=True)
+            self.coders["fold"] = LabelCoder(text=text, folds=True, na=na)
         self._counts = np.zeros((1, 0, 0), dtype=np.float64 if weight else np.int64)
         # Unweighted batches are counted into a uint32 array of the same shape
         # (half the memory an int64 count touches per row), added into the

@@ -52,6 +52,8 @@ class LabelCoder:
         The column holds folds, not labels: its text becomes numbers when
         every value reads so, to keep the folds' numeric order. Label text is
         never changed.
+    na : frozenset of str, default frozenset()
+        Texts that count as missing (coded -1, as nulls).
 
     Examples
     --------
@@ -61,7 +63,8 @@ class LabelCoder:
     ([0, 1, 0], ['b', 'a'])
     """
 
-    def __init__(self, *, text: bool, folds: bool = False):
+    def __init__(self, *, text: bool, folds: bool = False, na: frozenset = frozenset()):
+        self.na = na              # texts that count as missing
         self.text = text          # values are CSV text; their type is settled at the end
         self.folds = folds        # fold text is typed (numeric order); label text never is
         self.direct = True        # codes are the integer values themselves
@@ -93,7 +96,8 @@ class LabelCoder:
         if not len(arr):
             return np.zeros(0, dtype=np.int64), None
         enc = arr if pa.types.is_dictionary(typ) else pc.dictionary_encode(arr)
-        lut = np.fromiter((self._code(v) for v in enc.dictionary.to_pylist()),
+        lut = np.fromiter((-1 if isinstance(v, str) and v in self.na else self._code(v)
+                           for v in enc.dictionary.to_pylist()),
                           dtype=np.int64, count=len(enc.dictionary))
         lut = np.append(lut, -1).astype(np.int32 if len(lut) < 1 << 31 else np.int64)
         idx = enc.indices
@@ -101,7 +105,10 @@ class LabelCoder:
         if idx.null_count:
             nulls = idx.is_null().to_numpy(zero_copy_only=False)
             idx = pc.fill_null(idx, -1)
-        return lut[idx.to_numpy()], nulls
+        codes = lut[idx.to_numpy()]
+        if self.na and (lut[:-1] < 0).any():
+            nulls = codes < 0
+        return codes, nulls
 
     def _to_dictionary(self) -> None:
         self.direct = False
