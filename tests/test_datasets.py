@@ -303,6 +303,54 @@ def test_dash_reads_stdin_and_writes_stdout(tmp_path, capsys, monkeypatch):
     assert not (tmp_path / "-").exists() and not os.path.exists("-")
 
 
+def _stdin(monkeypatch, data: bytes):
+    monkeypatch.setattr("sys.stdin", io.TextIOWrapper(io.BytesIO(data)))
+
+
+@pytest.mark.parametrize("verb", [
+    ["gate", "{}", "--min-rk", "0.1", "--format", "json"],
+    ["compare", "{}", "--pred-a", "predicted", "--pred-b", "other", "--seed", "1",
+     "--resamples", "200", "--format", "json"],
+    ["sweep", "{}", "--truth", "actual", "--score", "score", "--format", "json"],
+])
+def test_dash_reads_stdin_for_gate_compare_and_sweep(tmp_path, capsys, monkeypatch, verb):
+    # the same report from a file and from standard input (CSV and Parquet)
+    df = _rows(seed=15)
+    df["other"] = df["predicted"].iloc[::-1].to_numpy()
+    if verb[0] == "sweep":
+        df = pd.DataFrame({"actual": (df["actual"] == df["actual"].iloc[0]).astype(int),
+                           "score": np.linspace(0, 1, len(df))})
+    df.to_csv(tmp_path / "p.csv", index=False)
+    assert main([v.format(tmp_path / "p.csv") for v in verb]) in (0, 1)
+    want = json.loads(capsys.readouterr().out)
+    for data, extra in ((df.to_csv(index=False).encode(), []),
+                        (df.to_parquet(), ["--input-format", "parquet"])):
+        _stdin(monkeypatch, data)
+        assert main([v.format("-") for v in verb] + extra) in (0, 1)
+        got = json.loads(capsys.readouterr().out)
+        assert {k: v for k, v in got.items() if k != "source"} == \
+            {k: v for k, v in want.items() if k != "source"}
+
+
+def test_stdin_is_read_for_one_table_only(capsys, monkeypatch):
+    _stdin(monkeypatch, b"id,actual,predicted\n1,a,a\n")
+    assert main(["compare", "-", "-", "--id", "id"]) == 2
+    assert "standard input (-) can be read once" in capsys.readouterr().err
+
+
+def test_gate_refuses_count_with_a_saved_evaluation(tmp_path, capsys):
+    path = tmp_path / "p.csv"
+    path.write_text("actual,predicted,n\na,a,3\nb,a,1\nb,b,2\n")
+    assert main(["score", str(path), "--count", "n", "--save", str(tmp_path / "r.nc")]) == 0
+    capsys.readouterr()
+    assert main(["gate", str(tmp_path / "r.nc"), "--count", "n", "--min-rk", "0.1"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "`count` (--count) cannot apply" in err[0]
+    # honoured with a table: the gate sees the 6 samples the counts stand for
+    assert main(["gate", str(path), "--count", "n", "--min-rk", "0.1", "--format", "json"]) == 0
+    assert "pooled over 6 samples" in capsys.readouterr().out
+
+
 # ------------------------------------------------------------------------- the filter's limits
 
 def test_deep_or_huge_filters_give_one_clear_error(tmp_path, capsys):

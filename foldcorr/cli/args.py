@@ -140,6 +140,12 @@ def _text_list(value: str) -> tuple:
     return tuple(v for v in value.split(",") if v)
 
 
+def _add_input_format(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--input-format", choices=("csv", "tsv", "jsonl", "parquet"),
+                   help="format of a table on standard input (PATH -); default: read from its "
+                        "first bytes")
+
+
 def _add_output_options(p: argparse.ArgumentParser, formats=FORMATS) -> None:
     p.add_argument("--format", choices=formats, default="text",
                    help="output format (default: text)")
@@ -194,7 +200,7 @@ def _add_source_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--scheduler", default=UNSET, metavar="ADDRESS",
                    help="Dask scheduler to use, e.g. tcp://scheduler.example:8786 (default: a local "
                         "cluster on 127.0.0.1, one worker per core)")
-    p.add_argument("--input-format", choices=("csv", "tsv", "jsonl", "parquet"), help="format of a table on standard input (PATH -); default: read from its first bytes")
+    _add_input_format(p)
     p.add_argument("--skip-bad-files", action="store_true", default=UNSET,
                    help="skip unreadable files of a dataset and report them, instead of stopping")
     p.add_argument("--quiet", action="store_true",
@@ -296,6 +302,7 @@ def get_parser() -> argparse.ArgumentParser:
                     "when all hold, 1 when any fails, 2 on bad input.")
     gate.add_argument("path", metavar="SOURCE", help="prediction table, counts matrix or .nc")
     _add_table_options(gate, matrix_help="SOURCE is a counts matrix CSV")
+    _add_input_format(gate)
     gate.add_argument("--id", metavar="COL", dest="id_column",
                       help="column of unique sample ids in prediction tables (for a paired "
                            "baseline comparison)")
@@ -356,6 +363,7 @@ def get_parser() -> argparse.ArgumentParser:
     sweep.add_argument("--positive", metavar="VALUE",
                        help="truth value meaning positive (needed unless truth is 0/1 or "
                             "true/false)")
+    _add_input_format(sweep)
     sweep.add_argument("--at", type=_number, metavar="THRESHOLD",
                        help="also report the MCC at this threshold")
     sweep.add_argument("--truth-cols", type=_column_list, metavar="A,B,...",
@@ -408,6 +416,7 @@ def get_parser() -> argparse.ArgumentParser:
     compare.add_argument("--id", metavar="COL", help="id column joining two tables")
     compare.add_argument("--fold", default=UNSET, metavar="COL",
                          help="column of fold labels (default: 'fold' when present)")
+    _add_input_format(compare)
     compare.add_argument("--classes", type=_class_list, metavar="A,B,...",
                          help="fixed class order; labels outside it are an error")
     compare.add_argument("--ci", type=_number, default=UNSET, metavar="LEVEL",

@@ -55,9 +55,18 @@ def _split(given: dict) -> tuple:
     return options, {k: v for k, v in given.items() if k not in keys}
 
 
+def table_source(args, path):
+    """``path``, or standard input read whole when it is ``-`` (see
+    :func:`foldcorr.sources.locations.read_stdin`; ``--input-format`` says its format)."""
+    if path != "-":
+        return path
+    from foldcorr.sources.locations import read_stdin
+
+    return read_stdin(input_format=getattr(args, "input_format", None))
+
+
 def run_score(args, staging) -> int:
     from foldcorr.pipeline import score
-    from foldcorr.sources.locations import read_stdin
 
     given = given_options(args)
     if given.get("cluster") is not None and getattr(args, "save", None):
@@ -67,7 +76,7 @@ def run_score(args, staging) -> int:
                           "could not show its clustered intervals again; drop --save or --cluster")
     options, table = _split(given)
     _check_save(args, args.path)
-    source = args.path if args.path != "-" else read_stdin(input_format=args.input_format)
+    source = table_source(args, args.path)
     ev = score(source, names=flag_names(), progress=False if args.quiet else None, **table,
                **options.to_dict())
     request = _prepare_save(args, ev, options)
@@ -191,10 +200,10 @@ def run_gate(args, staging) -> int:
             check_resamples(given["resamples"], name="--resamples")
     from foldcorr.pipeline import MULTILABEL_OPTIONS
 
-    table = given_options(args, ["truth", "pred", "fold", "weight", "classes", "matrix",
-                                 *MULTILABEL_OPTIONS])
+    table = given_options(args, ["truth", "pred", "fold", "weight", "count", "classes", "matrix",
+                                 "na_values", *MULTILABEL_OPTIONS])
     ev, samples, baseline, base_samples = load_gate_inputs(
-        args.path, args.baseline, undefined=getattr(args, "undefined", None),
+        table_source(args, args.path), args.baseline, undefined=getattr(args, "undefined", None),
         id_column=args.id_column, **table)
     floors = read_class_floors(args.class_floors, ev.row_names) if args.class_floors else None
     rules = GateRules(
@@ -275,7 +284,7 @@ def run_sweep(args, staging) -> int:
 
     spec = ScoreSpec(**present(args, ("truth", "score", "truth_cols", "score_cols", "truth_prefix",
                                       "score_prefix", "fold", "positive")))
-    table = load_scores(args.path, spec)
+    table = load_scores(table_source(args, args.path), spec)
     result = sweep(table.truth, table.scores, labels=table.labels, folds=table.folds,
                    at=args.at, **present(args, ("undefined",)))
     if args.curve:
@@ -312,19 +321,25 @@ def run_compare(args, staging) -> int:
         if COMPARE_SETTINGS[dest] in settings:
             check_resamples(settings[COMPARE_SETTINGS[dest]], name=f"--{dest}")
     paths = [p for p in (args.path, args.path_b, *args.more) if p is not None]
+    if paths.count("-") > 1:
+        from foldcorr.errors import OptionError
+
+        raise OptionError("standard input (-) can be read once; name it for one table only")
+    paths = [table_source(args, p) for p in paths]
+    path, path_b = paths[0], (paths[1] if args.path_b is not None else None)
     if args.models is not None and len(args.models) == 2 and len(paths) == 1:
         spec = replace(spec, pred_a=args.models[0], pred_b=args.models[1])
     elif args.models is not None or len(paths) > 2:
         return _compare_many(args, staging, paths, spec, settings)
-    joint = load_joint(args.path, spec, path_b=args.path_b)
+    joint = load_joint(path, spec, path_b=path_b)
     result = compare_models(joint, **settings)
     if args.path_b is None:
         names = (f"column {spec.pred_a!r}", f"column {spec.pred_b!r}")
     else:
         from pathlib import Path
 
-        names = (f"{Path(args.path).name}, column {spec.pred_a or spec.pred!r}",
-                 f"{Path(args.path_b).name}, column {spec.pred_b or spec.pred!r}")
+        names = (f"{Path(str(path)).name}, column {spec.pred_a or spec.pred!r}",
+                 f"{Path(str(path_b)).name}, column {spec.pred_b or spec.pred!r}")
     source = joint.attrs.get("source")
     emit(args, staging, result, **present(args, ("top",)), names=names, source=source)
     return EXIT_OK

@@ -374,7 +374,8 @@ def load_evaluation(path, *, undefined: str | None = None, id_column: str | None
             from foldcorr.sources.saved import check_saved_options
 
             spec = TableSpec(**{k: table[k] for k in _SPEC_KEYS if k in table})
-            check_saved_options(path, spec, matrix=table.get("matrix", False), id_column=id_column)
+            check_saved_options(path, spec, matrix=table.get("matrix", False), id_column=id_column,
+                                count=table.get("count"))
         saved = load_saved(path)
         stored = ScoreOptions.from_saved(saved.options, source=Path(path).name)
         classes = table.get("classes")

@@ -122,9 +122,8 @@ def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None
     if fmt is not None and na_values:
         raise OptionError(f"`na_values` applies to prediction tables, not to a {fmt.title}")
     if fmt is not None:
-        spec = TableSpec(truth=truth, pred=pred, fold=fold, weight=weight or count,
-                         classes=classes)
-        fmt.check_options(source, spec, matrix=matrix, where=where,
+        spec = TableSpec(truth=truth, pred=pred, fold=fold, weight=weight, classes=classes)
+        fmt.check_options(source, spec, matrix=matrix, where=where, count=count,
                           skip_bad_files=skip_bad_files, engine=engine, scheduler=scheduler)
         t = fmt.tensor(source)
         return t if classes is None else reorder_classes(source, t, classes, fmt.title)

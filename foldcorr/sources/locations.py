@@ -17,7 +17,7 @@ from pathlib import Path
 from foldcorr.errors import InvalidInputError, require
 
 __all__ = ["RemoteFile", "BytesFile", "is_url", "list_url", "input_of", "open_dataset", "size_of",
-           "read_stdin", "STDIN"]
+           "read_stdin", "STDIN", "local_or_bytes"]
 
 _URL = re.compile(r"^[A-Za-z][A-Za-z0-9+.-]*://")
 #: The source name that stands for standard input.
@@ -222,11 +222,34 @@ class BytesFile:
         """The number of bytes."""
         return len(self.data)
 
+    @property
+    def stem(self) -> str:
+        """Its name without the ending (as :attr:`pathlib.Path.stem`)."""
+        return self.name
+
+    def is_file(self) -> bool:
+        """Always true: the bytes are there (as :meth:`pathlib.Path.is_file`)."""
+        return True
+
     def __str__(self) -> str:
         return self.name + self.suffix
 
     def __lt__(self, other) -> bool:
         return str(self) < str(other)
+
+
+def local_or_bytes(path):
+    """A table file as the whole-table readers take it: a :class:`BytesFile` as it is (standard
+    input), anything else as a :class:`pathlib.Path`.
+
+    Examples
+    --------
+    >>> local_or_bytes("runs/p.csv").name, local_or_bytes(BytesFile(b"", "stdin", ".csv")).name
+    ('p.csv', 'stdin')
+    """
+    from pathlib import Path
+
+    return path if isinstance(path, BytesFile) else Path(path)
 
 
 def read_stdin(stream=None, input_format: str | None = None) -> BytesFile:

@@ -20,6 +20,7 @@ import xarray as xr
 from foldcorr.errors import InvalidInputError, OptionError
 from foldcorr.tensor import indicators_from_sets, multilabel_tally
 from foldcorr.sources.problems import file_error
+from foldcorr.sources.locations import local_or_bytes
 from foldcorr.sources.tables import read_table
 from foldcorr.tensor import FOLD
 
@@ -194,7 +195,7 @@ def load_multilabel(path, spec: MultilabelSpec) -> xr.DataArray:
     >>> t.coords["label"].values.tolist(), t.sel(label="tern").values.tolist()
     (['gull', 'tern'], [[0, 1], [1, 0]])
     """
-    path = Path(path)
+    path = local_or_bytes(path)
     layout = _layout(spec)
     if not layout:
         raise OptionError("multilabel mode needs --truth-cols/--pred-cols, "
@@ -354,7 +355,7 @@ def load_scores(path, spec: ScoreSpec) -> ScoreTable:
     >>> load_scores(p, ScoreSpec(positive="owl")).truth.tolist()
     [True, False]
     """
-    path = Path(path)
+    path = local_or_bytes(path)
     multi = _layout(spec)
     if multi == "sets":  # pragma: no cover - ScoreSpec has no sep
         raise OptionError("label sets are not supported for sweeps")

@@ -18,6 +18,7 @@ import xarray as xr
 from foldcorr.tensor import joint_tally
 from foldcorr.errors import InvalidInputError
 from foldcorr.sources.problems import file_error
+from foldcorr.sources.locations import local_or_bytes
 from foldcorr.sources.tables import classes_like, comparable_labels, read_table, text_labels
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_columns
 
@@ -127,7 +128,7 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
     >>> int(j.sel(actual="y", predicted_a="x", predicted_b="y"))
     1
     """
-    path = Path(path)
+    path = local_or_bytes(path)
     df = read_table(path, labels=[spec.truth, spec.pred, spec.pred_a, spec.pred_b])
     fold = _fold_of(df, spec)
     if path_b is None:
@@ -142,7 +143,7 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
         names = (spec.truth, spec.pred_a, spec.pred_b)
         source = path.name
     else:
-        path_b = Path(path_b)
+        path_b = local_or_bytes(path_b)
         if spec.id is None:
             raise InvalidInputError(
                 "with two tables, name the id column that joins them (--id COL)")
@@ -196,11 +197,11 @@ def _check_ids(path_a, path_b, ids_a: pd.Series, ids_b: pd.Series, name: str) ->
     if only_a.any() or only_b.any():
         parts = []
         if only_a.any():
-            parts.append(f"{int(only_a.sum())} ids of {Path(path_a).name} are not in "
-                         f"{Path(path_b).name} (first {_first(ids_a[only_a])})")
+            parts.append(f"{int(only_a.sum())} ids of {local_or_bytes(path_a).name} are not in "
+                         f"{local_or_bytes(path_b).name} (first {_first(ids_a[only_a])})")
         if only_b.any():
-            parts.append(f"{int(only_b.sum())} ids of {Path(path_b).name} are not in "
-                         f"{Path(path_a).name} (first {_first(ids_b[only_b])})")
+            parts.append(f"{int(only_b.sum())} ids of {local_or_bytes(path_b).name} are not in "
+                         f"{local_or_bytes(path_a).name} (first {_first(ids_b[only_b])})")
         raise InvalidInputError(f"the tables must hold the same ids in column {name!r}: "
                                 + "; ".join(parts))
 
@@ -228,7 +229,7 @@ class ModelTable:
 
 
 def _model_names(paths) -> list[str]:
-    stems = [Path(p).stem for p in paths]
+    stems = [local_or_bytes(p).stem for p in paths]
     return [s if stems.count(s) == 1 else f"{s} ({i + 1})" for i, s in enumerate(stems)]
 
 
@@ -266,7 +267,7 @@ def load_models(paths, spec: PairSpec = PairSpec(), *, models=None) -> ModelTabl
     >>> list(mt.predictions), mt.predictions["m3"].tolist()
     (['m1', 'm2', 'm3'], ['x', 'x'])
     """
-    paths = [Path(p) for p in paths]
+    paths = [local_or_bytes(p) for p in paths]
     first = read_table(paths[0], labels=[spec.truth, spec.pred, *(models or [])])
     fold = _fold_of(first, spec)
     if len(paths) == 1:
@@ -345,7 +346,7 @@ def load_clustered(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: st
     """
     from foldcorr.tensor import cluster_tally
 
-    path = Path(path)
+    path = local_or_bytes(path)
     df = read_table(path, labels=[truth, pred])
     fold = FOLD if fold == "auto" and FOLD in df.columns else (None if fold == "auto" else fold)
     _need(path, df, [truth, pred, cluster, fold])

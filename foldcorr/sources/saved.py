@@ -152,7 +152,7 @@ def check_save_target(target, source=None, *, name: str = "--save") -> Path:
 
 def check_saved_options(path, spec=None, *, matrix: bool = False, where=None,
                         skip_bad_files: bool = False, engine: str = "local", scheduler=None,
-                        id_column: str | None = None) -> None:
+                        id_column: str | None = None, count: str | None = None) -> None:
     """Refuse options that describe a prediction table, given with a saved evaluation.
 
     A saved evaluation holds counts already tallied: which columns they came
@@ -165,7 +165,7 @@ def check_saved_options(path, spec=None, *, matrix: bool = False, where=None,
         The saved evaluation (named in the message).
     spec : foldcorr.sources.tables.TableSpec, optional
         Column roles; any but ``classes`` differing from the defaults is refused.
-    matrix, where, skip_bad_files, engine, scheduler, id_column
+    matrix, where, skip_bad_files, engine, scheduler, id_column, count
         Options of :func:`foldcorr.sources.load` (and the sample-id column); any
         set is refused.
 
@@ -195,7 +195,8 @@ def check_saved_options(path, spec=None, *, matrix: bool = False, where=None,
              ("skip_bad_files", bool(skip_bad_files), skip_bad_files),
              ("engine", engine != "local", engine),
              ("scheduler", scheduler is not None, scheduler),
-             ("id", id_column is not None, id_column)]
+             ("id", id_column is not None, id_column),
+             ("count", count is not None, count)]
     for name, is_set, value in given:
         if is_set:
             flag = "--" + name.replace("_", "-")

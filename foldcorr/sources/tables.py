@@ -19,6 +19,7 @@ import xarray as xr
 
 from foldcorr.errors import InvalidInputError
 from foldcorr.sources.formats import TABLE_FORMATS, format_for
+from foldcorr.sources.locations import local_or_bytes
 from foldcorr.sources.problems import file_error, first_line
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_frame
 from foldcorr.tensor.coding import coerce_classes, compared_labels, labels_as_text, series_kind
@@ -83,7 +84,7 @@ def read_table(path, columns=None, labels=()) -> pd.DataFrame:
     >>> read_table(p, labels=["actual", "predicted"]).iloc[0].tolist()
     ['01', '1']
     """
-    path = Path(path)
+    path = local_or_bytes(path)
     if not path.is_file():
         raise file_error(path, "file not found")
     fmt = format_for(path, among=TABLE_FORMATS)
@@ -104,7 +105,7 @@ def _load_in_memory(path, spec: TableSpec = TableSpec()) -> xr.DataArray:
     The reference the streaming path must agree with (kept for the tests and
     for comparison in the benchmarks); :func:`load_tensor` does not use it.
     """
-    path = Path(path)
+    path = local_or_bytes(path)
     df = read_table(path, columns=_wanted(spec), labels=[spec.truth, spec.pred])
     fold = _fold_column(path, df, spec)
     _require_columns(path, df, [spec.truth, spec.pred, fold, spec.weight])
