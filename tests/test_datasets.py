@@ -221,6 +221,22 @@ def test_every_kind_in_memory_equals_sklearn():
         np.testing.assert_array_equal(t.values, ref, err_msg=name)   # sklearn confusion_matrix
 
 
+def test_polars_frames_equal_sklearn():
+    # the 'polars' extra; skipped where polars is not installed
+    pl = pytest.importorskip("polars")
+    df = _rows(seed=10)
+    labels, ref = _sklearn(df)
+    frame = pl.from_pandas(df)
+    for obj in (frame, frame.lazy()):
+        t = tally_dataset(obj).tensor
+        assert t.coords["actual"].values.tolist() == labels
+        np.testing.assert_array_equal(t.values, ref)   # sklearn confusion_matrix
+    keep = df[df["split"] == "test"]
+    t = load(frame, where='split == "test"', classes=labels, fold=None)
+    np.testing.assert_array_equal(t.values, confusion_matrix(keep["actual"], keep["predicted"],
+                                                             labels=labels))
+
+
 def test_arrow_expression_and_text_filters_agree():
     df = _rows(seed=9)
     keep = df[(df["split"] == "test") & (df["fold"] > 0)]
