@@ -8,6 +8,7 @@ from sklearn.metrics import confusion_matrix
 from foldcorr import InvalidInputError
 from foldcorr.sources import TableSpec, load_tensor
 from foldcorr.sources.matrix import read_matrix
+from foldcorr.sources.tables import _load_in_memory
 
 
 @pytest.fixture
@@ -118,3 +119,19 @@ def test_matrix_classes_must_match(tmp_path):
     assert t.values.tolist() == [[4, 3], [2, 1]]
     with pytest.raises(InvalidInputError, match=r"not in the matrix \['z'\]"):
         load_tensor(path, TableSpec(classes=("a", "b", "z")), matrix=True)
+
+
+@pytest.mark.parametrize("name, text, line", [
+    ("p.csv", "actual,predicted\na,b\nc,d,e\nf,g\n", 3),
+    ("p.csv", 'actual,predicted\n"a\nb",b\nc,d\ne,f,g\n', 5),     # a quoted newline is a line
+    ("p.tsv", "actual\tpredicted\na\tb\n\nc\td\te\n", 4),
+    ("p.jsonl", '{"actual": "a", "predicted": "b"}\n{"actual": "a",\n', 2),
+    ("p.jsonl", '{"actual": "a", "predicted": "b"}\n\n{"actual": "a" "predicted": "b"}\n', 3),
+])
+def test_parse_errors_name_the_1_based_line(tmp_path, name, text, line):
+    # issue 12: CSV and JSON Lines errors give the line number as an editor counts it
+    path = tmp_path / name
+    path.write_text(text)
+    for read in (load_tensor, _load_in_memory):
+        with pytest.raises(InvalidInputError, match=rf"^{name}: cannot read as \w+: line {line}: "):
+            read(path)

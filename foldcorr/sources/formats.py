@@ -12,13 +12,14 @@ here and one line in :data:`FORMATS`.
 from __future__ import annotations
 
 import io
+import re
 from pathlib import Path
 
 from foldcorr.errors import InvalidInputError
 from foldcorr.sources.locations import BytesFile, RemoteFile, input_of, open_dataset, size_of
 from foldcorr.sources.matrix import read_matrix
 from foldcorr.sources.memory import MemoryTable
-from foldcorr.sources.problems import UnreadableFile, file_error
+from foldcorr.sources.problems import UnreadableFile, file_error, first_line
 from foldcorr.sources.saved import SAVED_SUFFIXES, check_saved_options, is_saved_path, load_saved
 from foldcorr.tensor.coding import arrow_kind
 
@@ -100,6 +101,30 @@ class FileFormat:
     def check_options(self, path, spec, **options) -> None:
         """Refuse options that cannot apply to a file of this format (none by default)."""
 
+    def bad_line(self, path) -> int | None:
+        """The 1-based number of the first line a parser refuses, when the format can tell."""
+        return None
+
+    def read_error(self, path, exc: BaseException):
+        """The error of a file this format cannot read: the parser's first line, with the
+        1-based number of the bad line when :meth:`bad_line` finds it.
+
+        Examples
+        --------
+        >>> import tempfile, pathlib
+        >>> p = pathlib.Path(tempfile.mkdtemp()) / "p.jsonl"
+        >>> _ = p.write_text('{"actual": "a"}\\n{"actual": \\n')
+        >>> str(JsonLinesFormat().read_error(p, ValueError("JSON parse error: Invalid value. in row 1")))
+        'p.jsonl: cannot read as jsonl: line 2: JSON parse error: Invalid value.'
+        """
+        text = re.sub(r"\s+in row \d+$", "", first_line(exc))  # a row count of its own block
+        try:
+            line = self.bad_line(path)
+        except Exception:  # the file cannot even be read line by line: the parser's words
+            line = None
+        where = "" if line is None else f"line {line}: "
+        return file_error(path, f"cannot read as {self.name_of(path)}: {where}{text}")
+
     def __repr__(self) -> str:
         return f"{type(self).__name__}()"
 
@@ -164,15 +189,31 @@ class CsvFormat(FileFormat):
 
         if size_of(path) == 0:
             raise file_error(path, "the file is empty")
-        usecols = None if columns is None else (lambda c: c in set(columns))
-        return pd.read_csv(input_of(path), sep=self._sep(path), usecols=usecols,
-                           dtype={c: object for c in labels}, encoding="utf-8-sig",
-                           keep_default_na=False, na_values=list(NA_VALUES))
+        # every column is parsed (pandas' usecols would drop the extra cells of a bad row)
+        df = pd.read_csv(input_of(path), sep=self._sep(path), dtype={c: object for c in labels},
+                         encoding="utf-8-sig", keep_default_na=False, na_values=list(NA_VALUES))
+        return df if columns is None else df[[c for c in df.columns if c in set(columns)]]
 
     def column_names(self, path) -> list:
         import pandas as pd
 
         return list(pd.read_csv(input_of(path), sep=self._sep(path), nrows=0, encoding="utf-8-sig").columns)
+
+    def bad_line(self, path) -> int | None:
+        """The first line whose record has another number of cells than the header."""
+        import csv
+
+        with _open_bytes(path) as fh:
+            text = io.TextIOWrapper(fh, encoding="utf-8-sig", errors="replace", newline="")
+            reader = csv.reader(text, delimiter=self._sep(path))
+            width, start = None, 1
+            for row in reader:
+                if row:
+                    width = len(row) if width is None else width
+                    if len(row) != width:
+                        return start
+                start = reader.line_num + 1
+        return None
 
 
 class ParquetFormat(FileFormat):
@@ -257,6 +298,22 @@ class JsonLinesFormat(FileFormat):
         import pandas as pd
 
         return list(pd.read_json(input_of(path), lines=True, nrows=1).columns)
+
+    def bad_line(self, path) -> int | None:
+        """The first non-blank line that is not one JSON object."""
+        import json
+
+        with _open_bytes(path) as fh:
+            for number, line in enumerate(fh, start=1):
+                if not line.strip():
+                    continue
+                try:
+                    ok = isinstance(json.loads(line), dict)
+                except (ValueError, RecursionError):
+                    ok = False
+                if not ok:
+                    return number
+        return None
 
 
 class CountsMatrixFormat(FileFormat):

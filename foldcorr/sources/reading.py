@@ -218,7 +218,7 @@ def _checked_batches(f, fmt, it, where):
                 raise file_error(f, f"`where` {where.text!r} orders a column against a number, "
                                     f"but the column holds text that is not a number "
                                     f"({text})") from None
-            raise UnreadableFile(file_error(f, f"cannot read as {fmt.name_of(f)}: {text}")) from None
+            raise UnreadableFile(fmt.read_error(f, exc)) from None
         yield batch
 
 
@@ -272,7 +272,7 @@ def checked_schema(f, fmt, truth, pred, fold, weight, first_types, where, partit
     except UnreadableFile:
         raise
     except Exception as exc:  # pyarrow raises its own error types
-        raise UnreadableFile(file_error(f, f"cannot read as {fmt.name_of(f)}: {first_line(exc)}")) from None
+        raise UnreadableFile(fmt.read_error(f, exc)) from None
     for col, value in (partitions or {}).items():
         if col not in schema.names:
             schema = schema.append(pa.field(col, value.type))

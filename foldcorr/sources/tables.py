@@ -20,7 +20,7 @@ import xarray as xr
 from foldcorr.errors import InvalidInputError
 from foldcorr.sources.formats import TABLE_FORMATS, format_for
 from foldcorr.sources.locations import local_or_bytes
-from foldcorr.sources.problems import file_error, first_line
+from foldcorr.sources.problems import file_error
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_frame
 from foldcorr.tensor.coding import coerce_classes, compared_labels, labels_as_text, series_kind
 
@@ -93,7 +93,7 @@ def read_table(path, columns=None, labels=()) -> pd.DataFrame:
     except InvalidInputError:
         raise
     except Exception as exc:  # pandas and pyarrow raise their own error types
-        raise file_error(path, f"cannot read as {fmt.name_of(path)}: {first_line(exc)}") from None
+        raise fmt.read_error(path, exc) from None
     if len(df) == 0:
         raise file_error(path, "the table has no rows")
     return df
