@@ -174,15 +174,24 @@ class CsvFormat(FileFormat):
     def batches(self, path, columns, text_columns, where, batch_rows: int):
         import pyarrow as pa
         import pyarrow.csv as pcsv
+        import pyarrow.dataset as ds
 
-        reader = pcsv.open_csv(
-            input_of(path), read_options=pcsv.ReadOptions(block_size=BLOCK_BYTES),
-            parse_options=self._parse_options(path),
-            convert_options=pcsv.ConvertOptions(
-                include_columns=columns, strings_can_be_null=True, null_values=list(NA_VALUES),
-                column_types={**{c: pa.float64() for c in columns if c not in text_columns},
-                              **{c: pa.string() for c in text_columns}}))
-        yield from _filtered(reader, where)
+        # Through pyarrow.dataset, as Parquet: the filter is pushed down to the scan. Every
+        # column has a fixed type (text unless read as a number), so no column's type is
+        # guessed from the first block.
+        def scan():
+            types = {name: pa.string() for name in self.schema(path).names}
+            types.update({c: pa.float64() for c in columns if c not in text_columns})
+            dataset = open_dataset(path, ds.CsvFileFormat(
+                read_options=pcsv.ReadOptions(block_size=BLOCK_BYTES),
+                parse_options=self._parse_options(path),
+                convert_options=pcsv.ConvertOptions(column_types=types, strings_can_be_null=True,
+                                                    null_values=list(NA_VALUES))))
+            expr = None if where is None else where.expression(dataset.schema)
+            yield from dataset.to_batches(columns=columns, filter=expr, batch_size=batch_rows,
+                                          batch_readahead=BATCH_READAHEAD, fragment_readahead=1)
+
+        yield from scan()
 
     def frame(self, path, columns=None, labels=()):
         import pandas as pd

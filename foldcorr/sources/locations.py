@@ -186,7 +186,7 @@ def open_dataset(f, file_format):
 
     if isinstance(f, BytesFile):
         fmt = ds.ParquetFileFormat() if file_format == "parquet" else file_format
-        fragment = fmt.make_fragment(pa.BufferReader(pa.py_buffer(f.data)))
+        fragment = fmt.make_fragment(pa.py_buffer(f.data))  # a reader would close after one scan
         return ds.FileSystemDataset([fragment], fragment.physical_schema, fmt)
     if isinstance(f, RemoteFile):
         import pyarrow.fs as pafs
