@@ -491,29 +491,14 @@ def _drop_interval(ev, baseline, shared, rules: GateRules, samples, baseline_sam
     notes: list[str] = []
     if samples is not None and baseline_samples is not None:
         order, reason = align_samples(baseline_samples, samples)
+        clustered = samples.cluster is not None or baseline_samples.cluster is not None
+        if order is None and clustered:
+            raise InvalidInputError("clusters are resampled over the samples both runs share, "
+                                    f"but the runs cannot be paired: {reason}")
         if order is None:
             notes.append(f"unpaired comparison: {reason}")
         else:
-            from foldcorr.analysis.compare import compare_models
-            from foldcorr.tensor import joint_tally
-
-            truth = baseline_samples.actual
-            pred_a, pred_b = baseline_samples.predicted, samples.predicted[order]
-            known = set(shared)
-            keep = np.array([a in known and x in known and y in known
-                             for a, x, y in zip(truth.tolist(), pred_a.tolist(),
-                                                pred_b.tolist())], dtype=bool)
-            folds = None if baseline_samples.fold is None else baseline_samples.fold[keep]
-            joint = joint_tally(truth[keep], pred_a[keep], pred_b[keep], folds=folds,
-                                classes=shared)
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", UndefinedMetricWarning)
-                comp = compare_models(joint, n_resamples=rules.n_resamples,
-                                      level=rules.confidence, seed=rules.seed)
-            low, high = -float(comp.ci[1]), -float(comp.ci[0])
-            how = (f"paired bootstrap on {int(keep.sum())} shared samples, "
-                   f"{rules.n_resamples} resamples")
-            return low, high, how, notes + list(comp.warnings)
+            return _paired_drop(baseline_samples, samples, order, shared, rules, notes)
     elif samples is not None or baseline_samples is not None:
         notes.append("unpaired comparison: only one side carries sample ids")
     from foldcorr.analysis.uncertainty import bootstrap_difference
@@ -529,3 +514,36 @@ def _drop_interval(ev, baseline, shared, rules: GateRules, samples, baseline_sam
     low, high = -float(res.high), -float(res.low)
     how = f"unpaired bootstrap of both tensors, {rules.n_resamples} resamples"
     return low, high, how, notes + list(res.warnings)
+
+
+def _paired_drop(baseline_samples: Samples, samples: Samples, order, shared, rules: GateRules,
+                 notes: list):
+    """The paired interval of the drop (whole clusters resampled when the samples carry them)."""
+    from foldcorr.analysis.compare import compare_models
+    from foldcorr.tensor import cluster_tally, joint_tally
+
+    truth = baseline_samples.actual
+    pred_a, pred_b = baseline_samples.predicted, samples.predicted[order]
+    known = set(shared)
+    keep = np.array([a in known and x in known and y in known
+                     for a, x, y in zip(truth.tolist(), pred_a.tolist(), pred_b.tolist())],
+                    dtype=bool)
+    folds = None if baseline_samples.fold is None else baseline_samples.fold[keep]
+    clusters = (samples.cluster[order] if samples.cluster is not None
+                else baseline_samples.cluster)
+    columns = (truth[keep], pred_a[keep], pred_b[keep])
+    cells = None if clusters is None else cluster_tally(*columns, cluster=clusters[keep],
+                                                        folds=folds, classes=shared)
+    joint = joint_tally(*columns, folds=folds, classes=shared) if cells is None \
+        else cells.tensor()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UndefinedMetricWarning)
+        comp = compare_models(joint, n_resamples=rules.n_resamples, level=rules.confidence,
+                              seed=rules.seed, cluster=cells)
+    low, high = -float(comp.ci[1]), -float(comp.ci[0])
+    how = (f"paired bootstrap on {int(keep.sum())} shared samples, "
+           f"{rules.n_resamples} resamples")
+    if clusters is not None:
+        how += (f", {comp.n_clusters} clusters resampled whole, design effect "
+                f"{comp.design_effect:.2f}")
+    return low, high, how, notes + list(comp.warnings)

@@ -142,7 +142,8 @@ def _saved_changes():
                                                     predicted=["owl", "owl", "wren"]),
         "nocount.nc": lambda ds: ds.drop_vars("count"),
         "count_bool.nc": lambda ds: ds.assign(count=ds["count"] > 0),
-        "fold_no_dim.nc": lambda ds: ds.sum("fold").assign(sample_fold=ds.sample_fold),
+        "fold_no_dim.nc": lambda ds: ds.sum("fold", keep_attrs=True).assign(
+            sample_fold=ds.sample_fold),
     }
 
 

@@ -58,7 +58,7 @@ def _class_coverage(n, prevalence, accuracy, reps, seed):
     return covered, shown
 
 
-@pytest.mark.parametrize("n, accuracy", [(300, 0.8), (1000, 0.8)])
+@pytest.mark.parametrize("n, accuracy", [(300, 0.8), (1000, 0.5), (1000, 0.8)])
 def test_per_class_intervals_cover_where_shown_rare_class_included(n, accuracy):
     covered, shown = _class_coverage(n, 0.01, accuracy, reps=400, seed=n)
     rare = covered[0] / shown[0]

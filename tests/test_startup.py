@@ -42,9 +42,10 @@ loaded = sorted({{m.split('.')[0] for m in sys.modules}} & set({unused!r}))
 import dask.array as da, numpy as np, sparse, xarray as xr
 wrapped = xr.DataArray(da.zeros(4, chunks=2))
 held = xr.DataArray(sparse.COO.from_numpy(np.eye(3, dtype=int)))
+total = held.sum().data  # a 0-d COO, or a NumPy array with older NumPy and sparse
 print(json.dumps({{"code": code, "loaded": loaded, "dask_kept": type(wrapped.data).__name__,
                    "total": float(wrapped.sum().compute()), "sparse_kept": type(held.data).__name__,
-                   "sparse_total": int(held.sum().data.todense())}}))
+                   "sparse_total": int(total.todense() if hasattr(total, "todense") else total)}}))
 """
 UNUSED = ("dask", "distributed", "matplotlib", "h5py", "h5netcdf", "sklearn", "scipy", "sparse")
 

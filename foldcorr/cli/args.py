@@ -306,6 +306,10 @@ def get_parser() -> argparse.ArgumentParser:
     gate.add_argument("--id", metavar="COL", dest="id_column",
                       help="column of unique sample ids in prediction tables (for a paired "
                            "baseline comparison)")
+    gate.add_argument("--cluster", metavar="COL",
+                      help="column of cluster ids (specimen, site, patient) in both prediction "
+                           "tables: the interval of --confidence resamples whole clusters; "
+                           "needs --id")
     rules = gate.add_argument_group("rules")
     rules.add_argument("--min-rk", type=RK_LIMIT, metavar="X",
                        help="pooled R_K must be >= X (multiclass; X in [-1, 1])")
@@ -414,6 +418,9 @@ def get_parser() -> argparse.ArgumentParser:
     compare.add_argument("--pred", default=UNSET, metavar="COL",
                          help="prediction column of each of two tables (default: predicted)")
     compare.add_argument("--id", metavar="COL", help="id column joining two tables")
+    compare.add_argument("--cluster", metavar="COL",
+                         help="column of cluster ids (specimen, site, patient) of the first "
+                              "table: intervals and tests resample whole clusters, within folds")
     compare.add_argument("--fold", default=UNSET, metavar="COL",
                          help="column of fold labels (default: 'fold' when present)")
     _add_input_format(compare)

@@ -192,6 +192,9 @@ def run_gate(args, staging) -> int:
                              ("--allow-new-classes", "allow_new_classes", "applies to")):
         if getattr(args, dest) not in (None, False) and not args.baseline:
             raise OptionError(f"`{flag}` {does} a baseline; give --baseline FILE too")
+    if args.cluster is not None and (args.confidence is None or not args.baseline):
+        raise OptionError("`--cluster` applies to the interval of the drop from a baseline, the "
+                          "gate's only interval; give --baseline FILE --confidence LEVEL too")
     if args.confidence is not None:
         from foldcorr.analysis.resampling import check_level, check_resamples
 
@@ -204,7 +207,7 @@ def run_gate(args, staging) -> int:
                                  "na_values", *MULTILABEL_OPTIONS])
     ev, samples, baseline, base_samples = load_gate_inputs(
         table_source(args, args.path), args.baseline, undefined=getattr(args, "undefined", None),
-        id_column=args.id_column, **table)
+        id_column=args.id_column, cluster=args.cluster, **table)
     floors = read_class_floors(args.class_floors, ev.row_names) if args.class_floors else None
     rules = GateRules(
         min_rk=args.min_rk, min_micro_mcc=args.min_micro_mcc, min_macro_mcc=args.min_macro_mcc,
@@ -310,9 +313,10 @@ COMPARE_SETTINGS = {"ci": "level", "resamples": "n_resamples", "permutations": "
 def run_compare(args, staging) -> int:
     from foldcorr.analysis.compare import compare_models
     from foldcorr.analysis.resampling import check_level, check_resamples
-    from foldcorr.sources.paired import PairSpec, load_joint
+    from foldcorr.sources.paired import PairSpec
 
-    spec = PairSpec(**present(args, ("truth", "pred_a", "pred_b", "pred", "id", "fold", "classes")))
+    spec = PairSpec(**present(args, ("truth", "pred_a", "pred_b", "pred", "id", "fold", "classes",
+                                     "cluster")))
     settings = {key: value for dest, key in COMPARE_SETTINGS.items()
                 if (value := getattr(args, dest, None)) is not None}
     if "level" in settings:
@@ -331,8 +335,8 @@ def run_compare(args, staging) -> int:
         spec = replace(spec, pred_a=args.models[0], pred_b=args.models[1])
     elif args.models is not None or len(paths) > 2:
         return _compare_many(args, staging, paths, spec, settings)
-    joint = load_joint(path, spec, path_b=path_b)
-    result = compare_models(joint, **settings)
+    joint, cells = _load_pair(path, path_b, spec)
+    result = compare_models(joint, cluster=cells, **settings)
     if args.path_b is None:
         names = (f"column {spec.pred_a!r}", f"column {spec.pred_b!r}")
     else:
@@ -343,6 +347,18 @@ def run_compare(args, staging) -> int:
     source = joint.attrs.get("source")
     emit(args, staging, result, **present(args, ("top",)), names=names, source=source)
     return EXIT_OK
+
+
+def _load_pair(path, path_b, spec) -> tuple:
+    """The joint tensor of two models and, with ``--cluster``, its cells by cluster."""
+    from foldcorr.sources.paired import load_joint, load_joint_cells
+
+    if spec.cluster is None:
+        return load_joint(path, spec, path_b=path_b), None
+    cells = load_joint_cells(path, spec, path_b=path_b)
+    sources = [os.path.basename(str(getattr(p, "name", p))) for p in (path, path_b)
+               if p is not None]
+    return cells.tensor().assign_attrs(source=" + ".join(sources)), cells
 
 
 #: The most models one comparison takes.
@@ -367,6 +383,7 @@ def _compare_many(args, staging, paths, spec, settings) -> int:
     result = compare_many(table.truth.to_numpy(), {k: v.to_numpy() for k, v in
                                                    table.predictions.items()},
                           folds=None if table.folds is None else table.folds.to_numpy(),
+                          cluster=None if table.clusters is None else table.clusters.to_numpy(),
                           **settings)
     emit(args, staging, result, **present(args, ("top",)), source=table.source)
     return EXIT_OK

@@ -332,7 +332,7 @@ def replay(path, *, names: Mapping | None = None, **overrides) -> tuple:
 
 
 def load_evaluation(path, *, undefined: str | None = None, id_column: str | None = None,
-                    check_table: bool = True, **table):
+                    check_table: bool = True, cluster: str | None = None, **table):
     """Evaluation (no analyses) and per-sample records of a table or a saved evaluation.
 
     Parameters
@@ -346,6 +346,9 @@ def load_evaluation(path, *, undefined: str | None = None, id_column: str | None
         Column of unique sample ids of a table (per-sample records are read).
     check_table : bool, default True
         With a saved evaluation: refuse table options (they describe no table).
+    cluster : str, optional
+        Column of cluster ids of a table, kept in the per-sample records
+        (needs ``id_column``; a saved evaluation holds no clusters).
     **table
         Table options (see :func:`load_source`); with a saved evaluation only
         ``classes`` applies, as a new class order.
@@ -368,6 +371,8 @@ def load_evaluation(path, *, undefined: str | None = None, id_column: str | None
     from foldcorr.sources.saving import read_samples
 
     no_analyses = {"analyses": ()}
+    if cluster is not None:
+        _check_sample_clusters(path, id_column, table)
     if is_saved_path(path):
         if check_table:
             from foldcorr.sources import TableSpec
@@ -384,19 +389,38 @@ def load_evaluation(path, *, undefined: str | None = None, id_column: str | None
     tensor = load_source(path, **table)
     samples = None
     if id_column and not table.get("matrix"):
-        samples = read_samples(path, tensor, id_column)
+        samples = read_samples(path, tensor, id_column, cluster=cluster)
     return score(tensor, **({} if undefined is None else {"undefined": undefined}),
                  **no_analyses), samples
 
 
+def _check_sample_clusters(path, id_column, table: dict) -> None:
+    """Refuse, in one line, a ``cluster`` column that per-sample records cannot carry."""
+    from foldcorr.sources.saved import is_saved_path
+
+    if is_saved_path(path):
+        raise OptionError(f"`--cluster` needs prediction tables; the saved evaluation "
+                          f"{Path(path).name!r} holds counts and ids, not the samples' clusters")
+    wrong = [k for k in _NOT_WITH_CLUSTER if table.get(k) not in (None, False, "local")]
+    if wrong:
+        raise OptionError("`--cluster` reads the samples of a prediction table one by one; it "
+                          f"does not combine with `--{wrong[0].replace('_', '-')}`")
+    if not id_column:
+        raise OptionError("`--cluster` pairs the samples of both runs, cluster by cluster, by "
+                          "their ids; give --id COL too")
+
+
 def load_gate_inputs(source, baseline=None, *, undefined: str | None = None,
-                     id_column: str | None = None, **table) -> tuple:
+                     id_column: str | None = None, cluster: str | None = None,
+                     **table) -> tuple:
     """Evaluations and per-sample records of a gate's source and baseline.
 
     Table options describe the table among ``source`` and ``baseline``; they
     are refused when both are saved evaluations, and ``classes`` reorders a
     saved ``source`` only. The baseline takes the undefined convention of the
-    source unless ``undefined`` is given.
+    source unless ``undefined`` is given. ``cluster`` names a column of
+    cluster ids kept in both runs' per-sample records (prediction tables with
+    ``id_column`` only), so that the interval of the drop resamples clusters.
 
     Returns
     -------
@@ -417,10 +441,11 @@ def load_gate_inputs(source, baseline=None, *, undefined: str | None = None,
 
     all_saved = not any(p is not None and not is_saved_path(p) for p in (source, baseline))
     ev, samples = load_evaluation(source, undefined=undefined, id_column=id_column,
-                                  check_table=all_saved, **table)
+                                  check_table=all_saved, cluster=cluster, **table)
     if baseline is None:
         return ev, samples, None, None
     base_table = {k: v for k, v in table.items() if k != "classes" or not is_saved_path(baseline)}
     base, base_samples = load_evaluation(baseline, undefined=undefined or ev.undefined,
-                                         id_column=id_column, check_table=all_saved, **base_table)
+                                         id_column=id_column, check_table=all_saved,
+                                         cluster=cluster, **base_table)
     return ev, samples, base, base_samples

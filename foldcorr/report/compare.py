@@ -74,8 +74,11 @@ def compare_report(c, *, labels=("A", "B"), names=None, top: int | None = 20,
              ("folds", str(c.folds.sizes["fold"]) if c.folds is not None else "none"))
     if names is not None:
         facts += ((f"model {a}", str(names[0])), (f"model {b}", str(names[1])))
+    if c.n_clusters is not None:
+        facts += (("clusters", f"{c.n_clusters} (design effect {c.design_effect:.2f})"),)
     facts += (("verdict", verdict(c, labels)),)
     low, high = c.ci
+    unit = "samples" if c.n_clusters is None else "whole clusters of samples"
     summary = Table(
         "R_K of each model, paired",
         (Column("figure", "label"), Column("value", "text")),
@@ -85,7 +88,7 @@ def compare_report(c, *, labels=("A", "B"), names=None, top: int | None = 20,
          ("permutation p-value (two-sided)", format_p(c.p_value)),
          ("resamples / permutations", f"{c.n_resamples} / {c.n_permutations}")),
         note=f"model {a} and model {b} are scored on the same samples; the interval resamples "
-             "samples with both predictions kept together",
+             f"{unit} with both predictions kept together",
     )
     pc = c.per_class
     order = np.argsort(-np.abs(np.nan_to_num(pc["difference"].values)), kind="stable")
@@ -160,7 +163,8 @@ def compare_dict(c, *, labels=("A", "B"), names=None, source: str | None = None)
         "b": {"label": labels[1], "name": None if names is None else names[1], "rk": c.rk_b},
         "difference": {"estimate": c.difference, "ci": list(c.ci), "p_value": c.p_value,
                        "resamples": c.n_resamples, "permutations": c.n_permutations,
-                       "level": c.level, "seed": c.seed, "method": "percentile"},
+                       "level": c.level, "seed": c.seed, "method": "percentile",
+                       "clusters": c.n_clusters, "design_effect": c.design_effect},
         "verdict": {"better": c.better, "decided": c.decided, "text": verdict(c, labels)},
         "per_class": per_class,
         "folds": folds,

@@ -50,7 +50,10 @@ def many_report(mc, *, top: int | None = 20, source: str | None = None) -> Repor
     facts = (("source", source or "(in memory)"), ("samples", format_value(mc.n, "count")),
              ("models", str(len(models))), ("best", str(mc.best)), ("verdict", _verdict(mc)))
     if mc.n_clusters is not None:
-        facts += (("clusters", str(mc.n_clusters)),)
+        effects = [float(v) for v in r["design_effect"].values if v == v]  # NaN != NaN
+        spread = (f" (design effect of each model's R_K {min(effects):.2f} to "
+                  f"{max(effects):.2f})" if effects else "")
+        facts += (("clusters", f"{mc.n_clusters}{spread}"),)
     rows = tuple(
         (name, float(r["rk"].values[i]), _interval(r["low"].values[i], r["high"].values[i]))
         + ((0.0, "", "", "(best)") if name == str(mc.best) else

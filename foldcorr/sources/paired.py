@@ -22,8 +22,8 @@ from foldcorr.sources.locations import local_or_bytes
 from foldcorr.sources.tables import classes_like, comparable_labels, read_table, text_labels
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, tally_columns
 
-__all__ = ["PairSpec", "load_joint", "ModelTable", "load_models", "same_kind",
-           "load_clustered"]
+__all__ = ["PairSpec", "load_joint", "load_joint_cells", "ModelTable", "load_models",
+           "same_kind", "load_clustered"]
 
 
 @dataclass(frozen=True)
@@ -45,6 +45,9 @@ class PairSpec:
         Fold column (of the first table); ``"auto"`` uses ``fold`` when present.
     classes : tuple or None
         Fixed class order.
+    cluster : str or None
+        Column of cluster ids (of the first table): samples sharing one are
+        resampled, and swapped by the permutation test, together.
     """
 
     truth: str = ACTUAL
@@ -54,6 +57,7 @@ class PairSpec:
     id: str | None = None
     fold: str | None = "auto"
     classes: tuple | None = None
+    cluster: str | None = None
 
 
 def _need(path, df, names) -> None:
@@ -128,6 +132,64 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
     >>> int(j.sel(actual="y", predicted_a="x", predicted_b="y"))
     1
     """
+    pair = _pair_columns(path, spec, path_b)
+    try:
+        j = joint_tally(pair.truth, pair.a, pair.b, folds=pair.folds, classes=pair.classes,
+                        names=pair.names)
+    except InvalidInputError as exc:
+        raise file_error(path, str(exc)) from None
+    j.attrs["source"] = pair.source
+    return j
+
+
+def load_joint_cells(path, spec: PairSpec, *, path_b=None):
+    """Read two models' predictions of the same samples by cluster (``spec.cluster``).
+
+    The tables are read and checked as by :func:`load_joint`; the cluster
+    column is read from the first table.
+
+    Returns
+    -------
+    foldcorr.tensor.ClusterCells
+        Joint cells ``(actual, predicted_a, predicted_b)`` by cluster and
+        fold; its ``tensor()`` is what :func:`load_joint` returns.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "p.csv"
+    >>> _ = p.write_text("actual,a,b,site\\nx,x,y,s1\\ny,x,y,s1\\ny,y,y,s2\\n")
+    >>> load_joint_cells(p, PairSpec(pred_a="a", pred_b="b", cluster="site")).n_clusters
+    2
+    """
+    from foldcorr.tensor import cluster_tally
+
+    if spec.cluster is None:
+        raise InvalidInputError("name the column of cluster ids (--cluster COL)")
+    pair = _pair_columns(path, spec, path_b)
+    try:
+        return cluster_tally(pair.truth, pair.a, pair.b, cluster=pair.clusters,
+                             folds=pair.folds, classes=pair.classes)
+    except InvalidInputError as exc:
+        raise file_error(path, str(exc)) from None
+
+
+@dataclass(frozen=True)
+class _Pair:
+    """Row-aligned columns of a two-model comparison, as read and checked."""
+
+    truth: pd.Series
+    a: pd.Series
+    b: pd.Series
+    folds: pd.Series | None
+    clusters: pd.Series | None
+    classes: list | None
+    names: tuple
+    source: str
+
+
+def _pair_columns(path, spec: PairSpec, path_b) -> _Pair:
+    """Truth, both predictions, folds and clusters of one or two tables, checked."""
     path = local_or_bytes(path)
     df = read_table(path, labels=[spec.truth, spec.pred, spec.pred_a, spec.pred_b])
     fold = _fold_of(df, spec)
@@ -138,7 +200,7 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
                 f"got pred_a={spec.pred_a!r}, pred_b={spec.pred_b!r}")
         if spec.pred_a == spec.pred_b:
             raise InvalidInputError(f"--pred-a and --pred-b name the same column {spec.pred_a!r}")
-        _need(path, df, [spec.truth, spec.pred_a, spec.pred_b, fold])
+        _need(path, df, [spec.truth, spec.pred_a, spec.pred_b, fold, spec.cluster])
         truth, a, b = df[spec.truth], df[spec.pred_a], df[spec.pred_b]
         names = (spec.truth, spec.pred_a, spec.pred_b)
         source = path.name
@@ -148,7 +210,7 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
             raise InvalidInputError(
                 "with two tables, name the id column that joins them (--id COL)")
         col_a, col_b = spec.pred_a or spec.pred, spec.pred_b or spec.pred
-        _need(path, df, [spec.id, spec.truth, col_a, fold])
+        _need(path, df, [spec.id, spec.truth, col_a, fold, spec.cluster])
         other = read_table(path_b, labels=[spec.truth, col_b])
         _need(path_b, other, [spec.id, col_b])
         ids_a, ids_b = same_kind(df[spec.id], other[spec.id], warn=False)
@@ -175,13 +237,8 @@ def load_joint(path, spec: PairSpec = PairSpec(), *, path_b=None) -> xr.DataArra
             tally_columns({PREDICTED: (col_b, b.iloc[np.argsort(position)])}, classes=classes)
         except InvalidInputError as exc:
             raise file_error(path_b, str(exc)) from None
-    try:
-        j = joint_tally(truth, a, b, folds=None if fold is None else df[fold], classes=classes,
-                        names=names)
-    except InvalidInputError as exc:
-        raise file_error(path, str(exc)) from None
-    j.attrs["source"] = source
-    return j
+    return _Pair(truth, a, b, None if fold is None else df[fold],
+                 None if spec.cluster is None else df[spec.cluster], classes, names, source)
 
 
 def _check_ids(path_a, path_b, ids_a: pd.Series, ids_b: pd.Series, name: str) -> None:
@@ -220,12 +277,15 @@ class ModelTable:
         Fold per sample, or None.
     source : str
         The file name(s) read.
+    clusters : pandas.Series or None
+        Cluster id per sample (``spec.cluster``, from the first table), or None.
     """
 
     truth: pd.Series
     predictions: dict
     folds: pd.Series | None
     source: str
+    clusters: pd.Series | None = None
 
 
 def _model_names(paths) -> list[str]:
@@ -275,7 +335,7 @@ def load_models(paths, spec: PairSpec = PairSpec(), *, models=None) -> ModelTabl
         if len(models) < 2 or len(set(models)) < len(models):
             raise InvalidInputError(f"name two or more different prediction columns, one per "
                                     f"model (--models A,B,...); got {models!r}")
-        _need(paths[0], first, [spec.truth, *models, fold])
+        _need(paths[0], first, [spec.truth, *models, fold, spec.cluster])
         predictions = {name: first[name] for name in models}
         source = paths[0].name
     else:
@@ -285,7 +345,7 @@ def load_models(paths, spec: PairSpec = PairSpec(), *, models=None) -> ModelTabl
         if spec.id is None:
             raise InvalidInputError("with one table per model, name the id column that joins "
                                     "them (--id COL)")
-        _need(paths[0], first, [spec.id, spec.truth, spec.pred, fold])
+        _need(paths[0], first, [spec.id, spec.truth, spec.pred, fold, spec.cluster])
         first = first.reset_index(drop=True)
         predictions = {}
         for name, path in zip(_model_names(paths), paths):
@@ -294,7 +354,8 @@ def load_models(paths, spec: PairSpec = PairSpec(), *, models=None) -> ModelTabl
         source = " + ".join(p.name for p in paths)
     truth, *preds = same_kind(first[spec.truth], *predictions.values())
     return ModelTable(truth, dict(zip(predictions, preds)),
-                      None if fold is None else first[fold], source)
+                      None if fold is None else first[fold], source,
+                      None if spec.cluster is None else first[spec.cluster])
 
 
 def _aligned(path_a: Path, first: pd.DataFrame, path: Path, spec: PairSpec) -> pd.DataFrame:

@@ -157,7 +157,8 @@ def prepare_save(target, tensor, source, *, id_column: str | None = None,
 
 
 
-def read_samples(path, tensor: xr.DataArray, id_column: str) -> Samples:
+def read_samples(path, tensor: xr.DataArray, id_column: str, *,
+                 cluster: str | None = None) -> Samples:
     """Read per-sample ids and labels from the prediction table a tensor came from.
 
     Parameters
@@ -169,6 +170,8 @@ def read_samples(path, tensor: xr.DataArray, id_column: str) -> Samples:
         (``truth_column``, ``pred_column``, ``fold_column``).
     id_column : str
         Column of unique sample ids.
+    cluster : str, optional
+        Column of cluster ids, kept as ``Samples.cluster``.
 
     Returns
     -------
@@ -192,11 +195,12 @@ def read_samples(path, tensor: xr.DataArray, id_column: str) -> Samples:
     truth = tensor.attrs.get("truth_column", ACTUAL)
     pred = tensor.attrs.get("pred_column", PREDICTED)
     fold = tensor.attrs.get("fold_column")
-    wanted = [c for c in (id_column, truth, pred, fold) if c]
+    wanted = [c for c in (id_column, truth, pred, fold, cluster) if c]
     df = read_table(path, columns=wanted, labels=[truth, pred])
-    if id_column not in df.columns:
-        raise InvalidInputError(f"{path.name}: id column {id_column!r} not found; the table has "
-                                f"columns {list(df.columns)!r}")
+    for role, name in (("id", id_column), ("cluster", cluster)):
+        if name and name not in df.columns:
+            raise InvalidInputError(f"{path.name}: {role} column {name!r} not found; the table "
+                                    f"has columns {list(df.columns)!r}")
     try:
         samples = Samples.of(df[id_column], df[truth], df[pred],
                              None if fold is None else df[fold], id_column=id_column)
@@ -207,4 +211,5 @@ def read_samples(path, tensor: xr.DataArray, id_column: str) -> Samples:
             label_codes(samples.fold, tensor.coords[FOLD].values, f"column {fold!r}")]
     except InvalidInputError as exc:
         raise InvalidInputError(f"{path.name}: {exc}") from None
-    return Samples.of(samples.ids, actual, predicted, folds, id_column=id_column)
+    return Samples.of(samples.ids, actual, predicted, folds, id_column=id_column,
+                      cluster=None if cluster is None else df[cluster])

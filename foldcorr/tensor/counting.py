@@ -355,11 +355,23 @@ def unknown_label_message(name: str, row: int, value, n_bad: int, labels) -> str
     --------
     >>> unknown_label_message("actual", 2, "owl", 1, ["cat", "dog"])
     "column 'actual' row 3: label 'owl' is not among the classes ['cat', 'dog'] (1 rows outside them)"
+    >>> unknown_label_message("actual", 0, None, 1, ["cat"])
+    "column 'actual' row 1: label nan is not among the classes ['cat'] (1 rows outside them)"
     """
+    if _is_missing(value):
+        value = float("nan")
     labels = list(labels)
     shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
     return (f"column {name!r} row {row + 1}: label {value!r} is not among the classes "
             f"[{shown}] ({n_bad} rows outside them)")
+
+
+def _is_missing(value) -> bool:
+    """None, NaN or pandas' NA (which has no truth value): shown as ``nan`` whatever the reader."""
+    try:
+        return value is None or bool(value != value)
+    except (TypeError, ValueError):
+        return True
 
 
 def bad_weight_message(row: int, value) -> str:

@@ -33,6 +33,8 @@ class Samples:
         Fold label per sample, or None without folds.
     id_column : str
         Name of the column the ids came from.
+    cluster : numpy.ndarray or None
+        Cluster id per sample (samples of one cluster share their fate), or None.
 
     Examples
     --------
@@ -50,13 +52,16 @@ class Samples:
     predicted: np.ndarray
     fold: np.ndarray | None
     id_column: str
+    cluster: np.ndarray | None = None
 
     @classmethod
-    def of(cls, ids, actual, predicted, fold=None, *, id_column: str = "id") -> Samples:
+    def of(cls, ids, actual, predicted, fold=None, *, id_column: str = "id",
+           cluster=None) -> Samples:
         """Validate and build: equal lengths, no missing and no repeated ids."""
         arrays = {"ids": _plain(ids), "actual": _plain(actual), "predicted": _plain(predicted)}
-        if fold is not None:
-            arrays["fold"] = _plain(fold)
+        for name, values in (("fold", fold), ("cluster", cluster)):
+            if values is not None:
+                arrays[name] = _plain(values)
         n = len(arrays["ids"])
         for name, values in arrays.items():
             if values.ndim != 1 or len(values) != n:
@@ -76,7 +81,7 @@ class Samples:
                 f"{times} times ({len(dup.unique())} duplicated ids in all)"
             )
         return cls(ids=arrays["ids"], actual=arrays["actual"], predicted=arrays["predicted"],
-                   fold=arrays.get("fold"), id_column=id_column)
+                   fold=arrays.get("fold"), id_column=id_column, cluster=arrays.get("cluster"))
 
     def __len__(self) -> int:
         return len(self.ids)
