@@ -266,6 +266,36 @@ class SweepResult:
 
         return html_fragment(self)
 
+    def plot(self, kind: str = "threshold", ax=None, **options):
+        """Draw one plot of this result with matplotlib (the ``plot`` extra).
+
+        Parameters
+        ----------
+        kind : str, default "threshold"
+            A plot of ``foldcorr.report.plots.PLOTS["SweepResult"]``.
+        ax : matplotlib.axes.Axes, optional
+            Draw there and return it; without it, a new figure is returned,
+            which shows itself inline in a notebook.
+        **options
+            Options of the plot function (``docs/plots.md``).
+
+        Raises
+        ------
+        OptionError
+            On a kind this result has no plot for.
+        MissingDependencyError
+            When matplotlib is not installed.
+
+        Examples
+        --------
+        >>> r = sweep([0, 1, 1, 0, 1, 0], [0.1, 0.8, 0.6, 0.3, 0.4, 0.5], folds=[1, 1, 1, 2, 2, 2])
+        >>> r.plot(companions=["f1"]).axes[0].get_ylabel()
+        'MCC'
+        """
+        from foldcorr.report.plots import plot  # drawing lives in the report layer
+
+        return plot(self, kind, ax=ax, **options)
+
     def __repr__(self) -> str:
         folds = f", {len(self.folds)} folds" if self.folds else ""
         return (f"SweepResult({len(self.labels)} labels, n={self.n}{folds}, "
