@@ -447,9 +447,15 @@ def crossfold_thresholds(grid: ScoreGrid, tp, s, y, total_pos, codes, fold_label
 
 
 def _own_mcc(here, here_pos, pos_j: int, n_j: int, points, undefined: str) -> np.ndarray:
-    """One fold's MCC at the thresholds ``points``, from its counts at every threshold."""
-    predicted = np.cumsum(here[::-1])[::-1][points]  # fold samples at or above each threshold
-    positive = np.cumsum(here_pos[::-1])[::-1][points]
+    """One fold's MCC at the thresholds ``points`` (ascending), from its counts at every threshold.
+
+    The fold's samples at or above each point are the suffix sums of the counts
+    between consecutive points (one pass, no array as long as the grid).
+    """
+    if len(points) == 0:
+        return np.empty(0)
+    predicted = np.add.reduceat(here, points)[::-1].cumsum()[::-1]
+    positive = np.add.reduceat(here_pos, points)[::-1].cumsum()[::-1]
     return mcc_counts(positive, predicted - positive, pos_j, n_j, undefined)
 
 
