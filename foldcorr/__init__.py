@@ -45,7 +45,8 @@ _EXPORTS = {
     "foldcorr.sources.saved": ["SavedEvaluation", "save_evaluation", "load_saved"],
     "foldcorr.report": ["render"],
     "foldcorr.report.plots": [
-        "loss_budget_figure", "confusion_figure", "fold_figure", "figure_svg", "save_plots",
+        "loss_budget_plot", "confusion_plot", "fold_plot", "class_fold_plot", "models_plot",
+        "difference_plot", "threshold_plot", "figure_svg", "save_plots",
     ],
     "foldcorr.sources.dispatch": ["load", "load_tensor", "tally_dataset"],
     "foldcorr.sources.stream": ["stream_tensor", "StreamResult"],

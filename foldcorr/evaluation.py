@@ -339,6 +339,37 @@ class Evaluation:
 
         return render(self, "markdown")
 
+    def plot(self, kind: str = "loss_budget", ax=None, **options):
+        """Draw one plot of this result with matplotlib (the ``plot`` extra).
+
+        Parameters
+        ----------
+        kind : str, default "loss_budget"
+            A plot of ``foldcorr.report.plots.PLOTS["Evaluation"]``.
+        ax : matplotlib.axes.Axes, optional
+            Draw there and return it; without it, a new figure is returned,
+            which shows itself inline in a notebook.
+        **options
+            Options of the plot function (``docs/plots.md``).
+
+        Raises
+        ------
+        OptionError
+            On a kind this result has no plot for.
+        MissingDependencyError
+            When matplotlib is not installed.
+
+        Examples
+        --------
+        >>> from foldcorr.tensor import confusion_tensor
+        >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
+        >>> ev.plot("confusion").axes[0].get_ylabel()
+        'actual class'
+        """
+        from foldcorr.report.plots import plot  # drawing lives in the report layer
+
+        return plot(self, kind, ax=ax, **options)
+
     def _repr_html_(self) -> str:
         from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
 

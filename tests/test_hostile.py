@@ -211,8 +211,8 @@ def test_source_errors_name_file_and_column(capsys, inputs, out, line, problem):
 #: Every output option of every verb, with the files the run must leave.
 OUTPUTS = [
     ("score {hostile_csv} --output {out}/r.md --format markdown --save {out}/r.nc --plot {out}/p",
-     ["p", "p/confusion.png", "p/confusion.svg", "p/folds.png", "p/folds.svg",
-      "p/loss_budget.png", "p/loss_budget.svg", "r.md", "r.nc"]),
+     ["p", "p/class_fold.png", "p/class_fold.svg", "p/confusion.png", "p/confusion.svg",
+      "p/folds.png", "p/folds.svg", "p/loss_budget.png", "p/loss_budget.svg", "r.md", "r.nc"]),
     ("score {hostile_parquet} --format html --output {out}/r.html", ["r.html"]),
     ("score {hostile_csv} --format json --output {out}/r.json --ci 0.9 --resamples 200",
      ["r.json"]),

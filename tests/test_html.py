@@ -167,7 +167,8 @@ def test_plots_inline_as_svg(tmp_path):
     pytest.importorskip("matplotlib")
     page = _page(tmp_path)
     body = page.split('<section id="plots">')[1]
-    assert body.count("<figure><svg") == 3  # loss budget, heatmap, R_K per fold
+    # loss budget, heatmap, R_K per fold, class by fold
+    assert body.count("<figure><svg") == 4
     assert "<?xml" not in page and "<!DOCTYPE svg" not in page
 
 

@@ -3,8 +3,8 @@
 The rules are those of DESIGN.md: each folder (or top-level module) of the package is a layer;
 a module imports only modules of its own layer or of the layers before it in :data:`ORDER`, at any
 depth (call-time imports included); what two modules share is a public name of the lower one.
-The one exception is a result object's display hook (``__rich__``, ``_repr_html_``), which may
-import its renderer from the report layer at call time.
+The one exception is a result object's display hook (``__rich__``, ``_repr_html_``, ``plot``, ...),
+which may import its renderer from the report layer at call time.
 """
 
 import ast
@@ -24,7 +24,7 @@ LAYER_OF_MODULE = {"_files": "errors", "_version": "errors", "_lazy": "errors", 
                    "figures": "metrics", "decomposition": "metrics",
                    "__main__": "cli", "__init__": "cli"}
 #: Methods of result objects that may import their renderer at call time.
-DISPLAY_HOOKS = {"__rich__", "_repr_html_", "to_json", "to_html", "to_markdown"}
+DISPLAY_HOOKS = {"__rich__", "_repr_html_", "to_json", "to_html", "to_markdown", "plot"}
 MAX_LINES = 600
 
 

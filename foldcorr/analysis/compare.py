@@ -123,6 +123,38 @@ class Comparison:
 
         return html_fragment(self)
 
+    def plot(self, kind: str = "difference", ax=None, **options):
+        """Draw one plot of this result with matplotlib (the ``plot`` extra).
+
+        Parameters
+        ----------
+        kind : str, default "difference"
+            A plot of ``foldcorr.report.plots.PLOTS["Comparison"]``.
+        ax : matplotlib.axes.Axes, optional
+            Draw there and return it; without it, a new figure is returned,
+            which shows itself inline in a notebook.
+        **options
+            Options of the plot function (``docs/plots.md``).
+
+        Raises
+        ------
+        OptionError
+            On a kind this result has no plot for.
+        MissingDependencyError
+            When matplotlib is not installed.
+
+        Examples
+        --------
+        >>> from foldcorr.tensor import joint_tally
+        >>> c = compare_models(joint_tally(list("aabbcc"), list("abbbcc"), list("aabbca")),
+        ...                    n_resamples=200, seed=1)
+        >>> c.plot().axes[0].get_xlabel()
+        'model B minus model A'
+        """
+        from foldcorr.report.plots import plot  # drawing lives in the report layer
+
+        return plot(self, kind, ax=ax, **options)
+
     def __repr__(self) -> str:
         low, high = self.ci
         return (f"Comparison(n={self.n}, {len(self.classes)} classes, R_K a={self.rk_a:.4f}, "

@@ -143,6 +143,37 @@ class ManyComparison:
                 f"not separated from it: {list(self.tied[1:])!r}, p adjusted: "
                 f"{self.adjustment})")
 
+    def plot(self, kind: str = "models", ax=None, **options):
+        """Draw one plot of this result with matplotlib (the ``plot`` extra).
+
+        Parameters
+        ----------
+        kind : str, default "models"
+            A plot of ``foldcorr.report.plots.PLOTS["ManyComparison"]``.
+        ax : matplotlib.axes.Axes, optional
+            Draw there and return it; without it, a new figure is returned,
+            which shows itself inline in a notebook.
+        **options
+            Options of the plot function (``docs/plots.md``).
+
+        Raises
+        ------
+        OptionError
+            On a kind this result has no plot for.
+        MissingDependencyError
+            When matplotlib is not installed.
+
+        Examples
+        --------
+        >>> r = compare_many(list("aabbccaabbcc"), {"x": list("aabbccaabbca"),
+        ...                  "y": list("abbbccaabcca")}, n_resamples=200, seed=1)
+        >>> r.plot().axes[0].get_xlabel()
+        'R_K (pooled over folds)'
+        """
+        from foldcorr.report.plots import plot  # drawing lives in the report layer
+
+        return plot(self, kind, ax=ax, **options)
+
     def _repr_html_(self) -> str:
         from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
 

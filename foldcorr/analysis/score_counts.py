@@ -383,7 +383,7 @@ def best_index(mcc: np.ndarray, allowed: np.ndarray | None = None) -> int:
 
 
 def crossfold_thresholds(grid: ScoreGrid, tp, s, y, total_pos, codes, fold_labels,
-                         undefined) -> xr.Dataset:
+                         undefined, points: np.ndarray | None = None) -> xr.Dataset:
     """Per fold: the best threshold on the other folds, and its MCC on the fold.
 
     Each fold's scores are sorted with their truth (the folds together are one
@@ -392,6 +392,9 @@ def crossfold_thresholds(grid: ScoreGrid, tp, s, y, total_pos, codes, fold_label
     minus the fold's. Only thresholds that occur among the other folds' scores
     are candidates, exactly as if the other folds had been swept alone.
     ``codes`` holds each sample's fold code, ``fold_labels`` the fold names.
+    With ``points`` (indices into ``grid.thresholds``), the result also holds
+    ``fold_mcc`` (dims ``fold, point``): each fold's own MCC at those
+    thresholds (coordinate ``point_threshold``), from the same counts.
 
     Examples
     --------
@@ -405,7 +408,7 @@ def crossfold_thresholds(grid: ScoreGrid, tp, s, y, total_pos, codes, fold_label
     ([0.7, 0.8], [4, 4])
     """
     occurs = None if grid._first is None else np.diff(np.append(grid._first, grid.n))
-    chosen, held, sizes = [], [], []
+    chosen, held, sizes, curves = [], [], [], []
     for j in range(len(fold_labels)):
         inside = codes == j
         packed, parts = _sort_with_truth(s[inside], y[inside])
@@ -418,6 +421,8 @@ def crossfold_thresholds(grid: ScoreGrid, tp, s, y, total_pos, codes, fold_label
         here_pos = np.bincount(where[positive], minlength=grid.n)
         if grid._first is not None:
             here, here_pos = here[grid._first], here_pos[grid._first]
+        if points is not None:
+            curves.append(_own_mcc(here, here_pos, pos_j, n_j, points, undefined))
         mcc_c = _complement_mcc(grid, here, here_pos, occurs, total_pos - pos_j,
                                 grid.n - n_j, undefined)
         i = best_index(mcc_c)
@@ -431,8 +436,27 @@ def crossfold_thresholds(grid: ScoreGrid, tp, s, y, total_pos, codes, fold_label
             chosen.append(float(theta))
             held.append(float(mcc_counts(tp_i, pred_i - tp_i, pos_j, n_j, undefined)[0]))
         sizes.append(n_j)
-    return xr.Dataset({"threshold": (FOLD, np.array(chosen)), "mcc": (FOLD, np.array(held)),
-                       "n": (FOLD, np.array(sizes))}, coords={FOLD: fold_labels})
+    out = xr.Dataset({"threshold": (FOLD, np.array(chosen)), "mcc": (FOLD, np.array(held)),
+                      "n": (FOLD, np.array(sizes))}, coords={FOLD: fold_labels})
+    if points is not None:
+        out["fold_mcc"] = xr.DataArray(np.array(curves).reshape(len(fold_labels), len(points)),
+                                       dims=(FOLD, "point"),
+                                       coords={"point_threshold": ("point",
+                                                                   grid.thresholds[points])})
+    return out
+
+
+def _own_mcc(here, here_pos, pos_j: int, n_j: int, points, undefined: str) -> np.ndarray:
+    """One fold's MCC at the thresholds ``points`` (ascending), from its counts at every threshold.
+
+    The fold's samples at or above each point are the suffix sums of the counts
+    between consecutive points (one pass, no array as long as the grid).
+    """
+    if len(points) == 0:
+        return np.empty(0)
+    predicted = np.add.reduceat(here, points)[::-1].cumsum()[::-1]
+    positive = np.add.reduceat(here_pos, points)[::-1].cumsum()[::-1]
+    return mcc_counts(positive, predicted - positive, pos_j, n_j, undefined)
 
 
 def _complement_mcc(grid: ScoreGrid, here, here_pos, occurs, total_pos: int, n: int,

@@ -30,10 +30,13 @@ from foldcorr.analysis.score_counts import (
 )
 from foldcorr.tensor import ACTUAL, CLASS, COUNT, PREDICTED
 
-__all__ = ["threshold_curve", "sweep", "LabelSweep", "SweepResult", "THRESHOLD"]
+__all__ = ["threshold_curve", "sweep", "LabelSweep", "SweepResult", "THRESHOLD", "CURVE_POINTS"]
 
 #: Name of the threshold dim of a curve.
 THRESHOLD = "threshold"
+
+#: Thresholds (about) at which :attr:`LabelSweep.fold_curves` keeps each fold's MCC.
+CURVE_POINTS = 2000
 
 BINARY = [False, True]
 
@@ -162,6 +165,11 @@ class LabelSweep:
         Mean held-out MCC over folds.
     undefined : str
         The convention used for undefined values.
+    fold_curves : xarray.DataArray or None
+        Dims ``fold, threshold``: each fold's own MCC at up to about
+        :data:`CURVE_POINTS` thresholds (evenly spaced in curve order, plus the
+        in-sample best and every cross-fold choice), for drawing; None without
+        folds.
     """
 
     label: object
@@ -173,6 +181,7 @@ class LabelSweep:
     crossfold: xr.Dataset | None
     crossfold_mcc: float | None
     undefined: str = "zero"
+    fold_curves: xr.DataArray | None = None
     #: (thresholds, tp, fp, mcc, positives, n): what :attr:`curve` is built from.
     _counts: tuple = field(default=(np.empty(0), np.empty(0, np.int64), np.empty(0, np.int64),
                                     np.empty(0), 0, 0), repr=False, compare=False)
@@ -256,6 +265,36 @@ class SweepResult:
         from foldcorr.report.notebook import html_fragment  # rendering lives in the report layer
 
         return html_fragment(self)
+
+    def plot(self, kind: str = "threshold", ax=None, **options):
+        """Draw one plot of this result with matplotlib (the ``plot`` extra).
+
+        Parameters
+        ----------
+        kind : str, default "threshold"
+            A plot of ``foldcorr.report.plots.PLOTS["SweepResult"]``.
+        ax : matplotlib.axes.Axes, optional
+            Draw there and return it; without it, a new figure is returned,
+            which shows itself inline in a notebook.
+        **options
+            Options of the plot function (``docs/plots.md``).
+
+        Raises
+        ------
+        OptionError
+            On a kind this result has no plot for.
+        MissingDependencyError
+            When matplotlib is not installed.
+
+        Examples
+        --------
+        >>> r = sweep([0, 1, 1, 0, 1, 0], [0.1, 0.8, 0.6, 0.3, 0.4, 0.5], folds=[1, 1, 1, 2, 2, 2])
+        >>> r.plot(companions=["f1"]).axes[0].get_ylabel()
+        'MCC'
+        """
+        from foldcorr.report.plots import plot  # drawing lives in the report layer
+
+        return plot(self, kind, ax=ax, **options)
 
     def __repr__(self) -> str:
         folds = f", {len(self.folds)} folds" if self.folds else ""
@@ -391,14 +430,27 @@ def _sweep_one(y, s, name, codes, fold_labels, at, undefined, notes) -> LabelSwe
     i = best_index(mcc)
     best_t, best_mcc = (float(grid.thresholds[i]), float(mcc[i])) if i >= 0 else (np.nan, np.nan)
     mcc_at = None if at is None else _mcc_at(grid, tp, fp, total_pos, n, at, undefined)
-    crossfold = crossfold_mcc = None
+    crossfold = crossfold_mcc = curves = None
     if codes is not None:
-        crossfold = crossfold_thresholds(grid, tp, s, y, total_pos, codes, fold_labels, undefined)
+        crossfold = crossfold_thresholds(grid, tp, s, y, total_pos, codes, fold_labels, undefined,
+                                         points=_curve_points(grid.thresholds.size, i))
+        curves = crossfold["fold_mcc"].rename(point=THRESHOLD).swap_dims(
+            {THRESHOLD: "point_threshold"}).rename(point_threshold=THRESHOLD)
+        curves = curves.rename("mcc")
+        crossfold = crossfold.drop_vars(["fold_mcc", "point_threshold"])
         crossfold_mcc = float(crossfold["mcc"].mean())
     return LabelSweep(label=name, n_thresholds=int(grid.thresholds.size),
                       best_threshold=best_t, best_mcc=best_mcc, at_threshold=at, mcc_at=mcc_at,
                       crossfold=crossfold, crossfold_mcc=crossfold_mcc, undefined=undefined,
-                      _counts=(grid.thresholds, tp, fp, mcc, total_pos, n))
+                      fold_curves=curves, _counts=(grid.thresholds, tp, fp, mcc, total_pos, n))
+
+
+def _curve_points(size: int, best: int) -> np.ndarray:
+    """Indices of the thresholds kept for the fold curves: evenly spaced, plus the best."""
+    if size == 0:
+        return np.empty(0, dtype=np.intp)
+    spaced = np.linspace(0, size - 1, min(size, CURVE_POINTS)).round().astype(np.intp)
+    return np.unique(np.append(spaced, best)) if best >= 0 else np.unique(spaced)
 
 
 def _degenerate(grid: ScoreGrid, total_pos: int, n: int) -> str:

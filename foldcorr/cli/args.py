@@ -213,8 +213,8 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     Shared by ``score`` and ``demo``.
     """
     p.add_argument("--plot", metavar="DIR",
-                   help="also draw the loss budget, confusion heatmap and fold plot "
-                        "into DIR as PNG and SVG (needs the 'plot' extra)")
+                   help="also draw the loss budget, confusion heatmap, fold plot and class by "
+                        "fold heatmap into DIR as PNG and SVG (needs the 'plot' extra)")
     p.add_argument("--ci", type=_number, default=UNSET, metavar="LEVEL",
                    help="add bootstrap intervals at this level, e.g. 0.95")
     p.add_argument("--resamples", type=RESAMPLES, default=UNSET, metavar="B",
@@ -436,6 +436,9 @@ def get_parser() -> argparse.ArgumentParser:
                               f"{MAX_RESAMPLES:,})")
     compare.add_argument("--seed", type=SEED, metavar="S",
                          help="seed of resamples and permutations")
+    compare.add_argument("--plot", metavar="DIR",
+                         help="also draw R_K per model (three or more models) or B - A per "
+                              "class (two) into DIR as PNG and SVG (needs the 'plot' extra)")
     _add_report_options(compare)
     return parser
 

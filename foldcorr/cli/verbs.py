@@ -16,7 +16,7 @@ from foldcorr._files import same_path
 from foldcorr.cli.args import OPTION_OF_DEST, flag_names
 
 __all__ = ["VERBS", "EXIT_OK", "EXIT_FAILED", "EXIT_USAGE", "check_targets", "given_options",
-           "present", "emit", "emit_evaluation", "write_out", "available_memory",
+           "present", "emit", "emit_evaluation", "write_plots", "write_out", "available_memory",
            "DEMO_BYTES_PER_SAMPLE"]
 
 EXIT_OK, EXIT_FAILED, EXIT_USAGE = 0, 1, 2
@@ -295,12 +295,7 @@ def run_sweep(args, staging) -> int:
 
         with staging.writing(args.curve) as tmp:
             write_curve(result, tmp)
-    if args.plot:
-        from foldcorr.report.sweep_plots import plot_sweep
-
-        with staging.folder(args.plot) as tmp:
-            paths = plot_sweep(result, tmp)
-        staging.note(f"{len(paths)} figure(s) written to {args.plot}")
+    write_plots(args, staging, result, formats=("png",))
     emit(args, staging, result, **present(args, ("top",)), source=table.source)
     return EXIT_OK
 
@@ -345,6 +340,7 @@ def run_compare(args, staging) -> int:
         names = (f"{Path(str(path)).name}, column {spec.pred_a or spec.pred!r}",
                  f"{Path(str(path_b)).name}, column {spec.pred_b or spec.pred!r}")
     source = joint.attrs.get("source")
+    write_plots(args, staging, result)
     emit(args, staging, result, **present(args, ("top",)), names=names, source=source)
     return EXIT_OK
 
@@ -385,6 +381,7 @@ def _compare_many(args, staging, paths, spec, settings) -> int:
                           folds=None if table.folds is None else table.folds.to_numpy(),
                           cluster=None if table.clusters is None else table.clusters.to_numpy(),
                           **settings)
+    write_plots(args, staging, result)
     emit(args, staging, result, **present(args, ("top",)), source=table.source)
     return EXIT_OK
 
@@ -415,13 +412,19 @@ def _console():
 
 def emit_evaluation(args, staging, ev, top) -> None:
     """:func:`emit` of what :func:`foldcorr.pipeline.score` returned (and its ``--plot`` files)."""
-    if getattr(args, "plot", None):
-        from foldcorr.report.plots import save_plots
-
-        with staging.folder(args.plot) as tmp:
-            written = save_plots(ev, tmp)
-        staging.note(f"{len(written)} plot files written to {args.plot}")
+    write_plots(args, staging, ev)
     emit(args, staging, ev, top=top)
+
+
+def write_plots(args, staging, result, *, formats=("png", "svg")) -> None:
+    """``--plot DIR``: every plot of ``result`` into DIR, staged with the run's other outputs."""
+    if not getattr(args, "plot", None):
+        return
+    from foldcorr.report.plots import save_plots
+
+    with staging.folder(args.plot) as tmp:
+        written = save_plots(result, tmp, formats=formats)
+    staging.note(f"{len(written)} plot files written to {args.plot}")
 
 
 def emit(args, staging, result, **context) -> None:

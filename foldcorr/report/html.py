@@ -25,6 +25,7 @@ PLOT_CAPTIONS = {
     "loss_budget": "Loss budget: where 1 - R_K goes, class by class, plus the marginal mismatch",
     "confusion": "Confusion heatmap (rows actual, columns predicted)",
     "folds": "R_K per fold",
+    "class_fold": "Per-class MCC fold by fold, classes with the largest shortfall share first",
 }
 
 #: The captions that differ for a multilabel evaluation.
