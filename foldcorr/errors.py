@@ -25,11 +25,18 @@ __all__ = [
     "collect_undefined",
     "MIN_RESAMPLES",
     "MAX_RESAMPLES",
+    "DEFAULT_SEED",
 ]
 
 #: Fewest and most bootstrap resamples or permutations accepted, by the library
 #: (:func:`foldcorr.analysis.resampling.check_resamples`) and the command line alike.
 MIN_RESAMPLES, MAX_RESAMPLES = 100, 10**6
+
+#: Seed of every bootstrap and permutation when none is given (``score``, ``compare``,
+#: ``gate``): the same inputs give the same intervals and the same verdict on every run.
+#: Every holder of options (``ScoreOptions``, ``GateRules``, the comparison settings)
+#: takes its default from here; ``--seed`` (``seed=``) replaces it.
+DEFAULT_SEED = 14
 
 
 class FoldcorrError(Exception):

@@ -307,7 +307,7 @@ class Evaluation:
         --------
         >>> from foldcorr.tensor import confusion_tensor
         >>> evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])).to_json()[:32]
-        '{\\n  "schema": "foldcorr.score/1"'
+        '{\\n  "schema": "foldcorr.score/2"'
         """
         from foldcorr.report import render  # rendering lives in the report layer
 
@@ -429,7 +429,7 @@ def compute_figures(figures, t, *, undefined: str = "zero") -> xr.Dataset:
     >>> from foldcorr.figures import MULTICLASS, PER_CLASS, figures_of
     >>> from foldcorr.tensor import confusion_tensor
     >>> t = confusion_tensor([[6, 2], [1, 3]], ["p", "n"])
-    >>> compute_figures(figures_of(MULTICLASS, PER_CLASS), t)["support"].values.tolist()
+    >>> compute_figures(figures_of(MULTICLASS, PER_CLASS), t)["in_truth"].values.tolist()
     [8, 4]
     """
     done: dict = {}
@@ -473,7 +473,7 @@ def evaluate(t, *, undefined: str = "zero") -> Evaluation:
     Multilabel, with :math:`C_\ell` the 2 x 2 matrix of label :math:`\ell`:
     micro MCC is :math:`\mathrm{MCC}(\sum_\ell C_\ell)`, macro MCC the mean
     of :math:`\mathrm{MCC}(C_\ell)` over the labels with a positive in truth
-    or predictions, weighted MCC the support-weighted mean. Labels are sorted
+    or predictions, weighted MCC the mean weighted by in-truth counts. Labels are sorted
     by cost :math:`(1 - \mathrm{MCC}_\ell)\, n^+_\ell`, largest first (an
     undefined MCC counts as 0 there), ties in label order.
 
@@ -546,7 +546,7 @@ def _accuracy_hides(pooled: xr.Dataset, per_class: xr.Dataset) -> list[str]:
     acc, rk = float(pooled["accuracy"]), float(pooled["rk"])
     # R_K is 0/0 unless truth and predictions each cover at least two classes; then the
     # undefined warning already says so, and "R_K is only 0.000" would mislead.
-    rk_defined = all(int((per_class[v] > 0).sum()) >= 2 for v in ("support", "predicted"))
+    rk_defined = all(int((per_class[v] > 0).sum()) >= 2 for v in ("in_truth", "predicted"))
     if rk_defined and acc >= ACCURACY_LOOKS_GOOD and rk < ACCURACY_HIDES_RK:
         return [
             f"accuracy is {acc:.3f} but R_K is only {rk:.3f}: the accuracy comes mostly from "

@@ -181,7 +181,7 @@ def weighted_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
     value = (weight * per_label.where(weight > 0, 0.0)).sum(LABEL, skipna=False)
     if bool((total == 0).any()):
         shown = "0.0" if undefined == "zero" else "NaN"
-        warnings.warn(f"support-weighted MCC (no label has a positive) is undefined; reported "
+        warnings.warn(f"MCC weighted by in-truth count (no label has a positive) is undefined; reported "
                       f"as {shown}", UndefinedMetricWarning, stacklevel=2)
     fill = 0.0 if undefined == "zero" else np.nan
     return xr.where(total > 0, value / total.where(total > 0, 1), fill).rename("weighted_mcc")
@@ -248,7 +248,7 @@ def _label_drag(t, *, undefined="zero"):
 
 
 def _label_cost(t, *, undefined="zero"):
-    """(1 - MCC) x support; an undefined MCC counts as 0 here."""
+    """(1 - MCC) x in-truth count; an undefined MCC counts as 0 here."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UndefinedMetricWarning)
         per_label = m.mcc(t, undefined=undefined)
@@ -273,7 +273,7 @@ FIGURES: tuple[Figure, ...] = (
            "correlation", headline="micro MCC"),
     Figure("macro_mcc", "macro MCC (mean over labels present)", label_macro_mcc, POOLED, _L,
            "correlation", headline="macro MCC"),
-    Figure("weighted_mcc", "support-weighted MCC", weighted_mcc, POOLED, _L, "correlation"),
+    Figure("weighted_mcc", "MCC weighted by in-truth count", weighted_mcc, POOLED, _L, "correlation"),
     # one per fold
     Figure("n", "samples", sample_count, PER_FOLD, _BOTH, "count"),
     Figure("rk", "R_K", m.rk, PER_FOLD, _C, "correlation"),
@@ -283,7 +283,7 @@ FIGURES: tuple[Figure, ...] = (
     Figure("micro_mcc", "micro MCC", micro_mcc, PER_FOLD, _L, "correlation"),
     Figure("macro_mcc", "macro MCC", label_macro_mcc, PER_FOLD, _L, "correlation"),
     # one per class (multiclass), pooled over folds
-    Figure("support", "support", _support, PER_CLASS, _C, "count"),
+    Figure("in_truth", "in truth", _support, PER_CLASS, _C, "count"),
     Figure("predicted", "predicted", _predicted, PER_CLASS, _C, "count"),
     Figure("mcc", "MCC", decompose, PER_CLASS, _C, "correlation", part="mcc"),
     Figure("weight", "weight", decompose, PER_CLASS, _C, part="weight"),
@@ -298,7 +298,7 @@ FIGURES: tuple[Figure, ...] = (
     Figure("flags", "flags", class_flags, PER_CLASS, _C, "flags"),
     Figure("top_confusion", "most often taken for", _top_confusion, PER_CLASS, _C, "confusion"),
     # one per label (multilabel), pooled over folds
-    Figure("support", "support", _label_support, PER_LABEL, _L, "count"),
+    Figure("in_truth", "in truth", _label_support, PER_LABEL, _L, "count"),
     Figure("predicted", "predicted", _label_predicted, PER_LABEL, _L, "count"),
     Figure("prevalence", "prevalence", _prevalence, PER_LABEL, _L),
     Figure("mcc", "MCC", m.mcc, PER_LABEL, _L, "correlation"),

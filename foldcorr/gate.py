@@ -42,7 +42,7 @@ import numpy as np
 import xarray as xr
 
 from foldcorr import metrics as m
-from foldcorr.errors import InvalidInputError, OptionError, UndefinedMetricWarning
+from foldcorr.errors import DEFAULT_SEED, InvalidInputError, OptionError, UndefinedMetricWarning
 from foldcorr.evaluation import Evaluation
 from foldcorr.tensor.samples import Samples, align_samples
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, pool
@@ -97,7 +97,8 @@ class GateRules:
     n_resamples : int
         Bootstrap resamples for the interval of the drop.
     seed : int or None
-        Seed of the bootstrap.
+        Seed of the bootstrap (:data:`foldcorr.errors.DEFAULT_SEED` unless given, so
+        that a gate gives the same verdict on every run).
     """
 
     min_rk: float | None = None
@@ -111,7 +112,7 @@ class GateRules:
     confidence: float | None = None
     allow_new_classes: bool = False
     n_resamples: int = 2000
-    seed: int | None = None
+    seed: int | None = DEFAULT_SEED
 
     def __post_init__(self):
         for name in ("min_rk", "min_micro_mcc", "min_macro_mcc", "min_fold_rk", "min_class_mcc",
@@ -157,6 +158,9 @@ class RuleResult:
     interval : tuple of float or None
         ``(low, high)`` bootstrap interval of the figure (the drop, with a
         confidence level), or None.
+    where : str
+        Where the value comes from when it is one of many (the lowest fold or
+        class, the class nearest its floor), else "".
     """
 
     rule: str
@@ -166,6 +170,7 @@ class RuleResult:
     passed: bool
     detail: str = ""
     interval: tuple[float, float] | None = None
+    where: str = ""
 
     @property
     def title(self) -> str:
@@ -183,8 +188,8 @@ class ClassShortfall:
         Class label.
     mcc, floor : float
         Its MCC and the floor it missed.
-    support : float
-        Its number of actual samples.
+    in_truth : float
+        Its number of samples in the truth (actual class).
     rule : str
         The rule it failed (``min_class_mcc`` or ``class_floors``).
     """
@@ -192,7 +197,7 @@ class ClassShortfall:
     label: object
     mcc: float
     floor: float
-    support: float
+    in_truth: float
     rule: str
 
 
@@ -218,6 +223,8 @@ class GateResult:
         a baseline.
     warnings : tuple of str
         The evaluation's warnings and notes on the comparison.
+    seed : int or None
+        Seed of the baseline interval's bootstrap (None when none was drawn).
     """
 
     passed: bool
@@ -227,6 +234,7 @@ class GateResult:
     baseline: Evaluation | None = None
     comparison: str = ""
     warnings: tuple[str, ...] = field(default_factory=tuple)
+    seed: int | None = None
 
     @property
     def failed(self) -> tuple[RuleResult, ...]:
@@ -350,7 +358,8 @@ def check_gate(ev: Evaluation, rules: GateRules, *, baseline: Evaluation | None 
     short.sort(key=_furthest_below_first)  # across rules, as documented in docs/json.md
     return GateResult(passed=all(r.passed for r in out), rules=tuple(out),
                       failing_classes=tuple(short), evaluation=ev, baseline=baseline,
-                      comparison=comparison, warnings=tuple(dict.fromkeys(notes)))
+                      comparison=comparison, warnings=tuple(dict.fromkeys(notes)),
+                      seed=rules.seed if any(r.interval is not None for r in out) else None)
 
 
 def _check_kind(ev: Evaluation, rules: GateRules) -> None:
@@ -380,7 +389,8 @@ def _fold_rule(ev: Evaluation, threshold: float) -> RuleResult:
             [f"fold {labels[i]!s} {_f(values[i])}" for i in bad])
     else:
         detail = f"lowest is fold {labels[worst]!s} of {len(values)}"
-    return RuleResult("min_fold_rk", value, threshold, ">=", not bad, detail)
+    return RuleResult("min_fold_rk", value, threshold, ">=", not bad, detail,
+                      where=f"fold {labels[worst]!s}")
 
 
 def _furthest_below_first(c: ClassShortfall) -> float:
@@ -394,16 +404,21 @@ def _class_rule(ev: Evaluation, floors: dict, name: str):
     noun = "labels" if ev.row_scope == "label" else "classes"
     index = {label: i for i, label in enumerate(labels)}
     mcc = pc["mcc"].values.astype(float)
-    support = pc["support"].values
+    in_truth = pc["in_truth"].values
     missed, margins = [], []
     for label, floor in floors.items():
         i = index[label]
         margins.append(mcc[i] - floor if math.isfinite(mcc[i]) else math.nan)
         if not _holds(mcc[i], floor, ">="):
             missed.append(ClassShortfall(label, float(mcc[i]), float(floor),
-                                         float(support[i]), name))
+                                         float(in_truth[i]), name))
     missed.sort(key=_furthest_below_first)
     checked = len(floors)
+    order = list(floors)
+    nearest = order[int(np.argmin([m if math.isfinite(m) else -math.inf for m in margins]))]
+    where = (f"{nearest!s} {_f(mcc[index[nearest]])}, floor {float(floors[nearest]):.3f}"
+             if name == "class_floors" else
+             str(labels[int(np.argmin(np.where(np.isfinite(mcc), mcc, -np.inf)))]))
     if name == "min_class_mcc":
         value = float(np.nanmin(mcc)) if np.isfinite(mcc).any() else math.nan
         if any(not math.isfinite(v) for v in mcc):
@@ -420,7 +435,7 @@ def _class_rule(ev: Evaluation, floors: dict, name: str):
         detail = f"{len(missed)} of {checked} {noun} below: " + _listed(described)
     else:
         detail = f"{head} {checked} {noun}"
-    return RuleResult(name, value, threshold, ">=", not missed, detail), missed
+    return RuleResult(name, value, threshold, ">=", not missed, detail, where=where), missed
 
 
 def _shared_classes(ev: Evaluation, baseline: Evaluation, allow: bool):
@@ -473,8 +488,8 @@ def _drop_rule(ev, baseline, rules: GateRules, samples, baseline_samples):
     if not (math.isfinite(low) and math.isfinite(high)):
         passed = _holds(drop, rules.max_drop, "<=")
     level = f"{rules.confidence * 100:g}%"
-    detail = (f"{head}; drop {_f(drop)}, {level} interval [{_f(low)}, {_f(high)}] "
-              f"({how}); a regression only when the whole interval lies above "
+    detail = (f"{head}; drop {_f(drop)}, {level} interval {_f(low)} to {_f(high)} "
+              f"({how}, seed {rules.seed}); a regression only when the whole interval lies above "
               f"{rules.max_drop:g}")
     return (RuleResult("max_drop", drop, rules.max_drop, "<=", passed, detail,
                        interval=(low, high)),

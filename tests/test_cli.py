@@ -42,7 +42,7 @@ def test_json_matches_reference(capsys, table):
     code, out, err = run(capsys, "score", path, "--format", "json")
     assert code == 0
     doc = json.loads(out)
-    assert doc["schema"] == "foldcorr.score/1"
+    assert doc["schema"] == "foldcorr.score/2"
     y, p = df.actual, df.predicted
     pooled = doc["pooled"]
     assert abs(pooled["rk"] - matthews_corrcoef(y, p)) < 1e-12
@@ -60,7 +60,7 @@ def test_json_matches_reference(capsys, table):
     assert set(doc["fold_summary"]) == {"count", "mean_rk", "sd_rk", "min_rk", "max_rk"}
     assert len(doc["per_class"]) == 4
     row = doc["per_class"][0]
-    assert set(row) >= {"class", "support", "predicted", "mcc", "weight", "contribution", "drag",
+    assert set(row) >= {"class", "in_truth", "predicted", "mcc", "weight", "contribution", "drag",
                         "recall", "precision", "f1", "top_confusion"}
     drags = [r["drag"] for r in doc["per_class"]]
     assert drags == sorted(drags, reverse=True)
@@ -92,7 +92,7 @@ def test_markdown_report(capsys, table):
     path, _ = table
     code, out, _ = run(capsys, "score", path, "--format", "markdown", "--top", "all")
     assert code == 0 and out.startswith("## foldcorr score")
-    assert "| class | support |" in out and "|:--|--:|" in out
+    assert "| class | in truth |" in out and "|:--|--:|" in out
 
 
 def test_matrix_input(capsys, tmp_path):
@@ -111,7 +111,7 @@ def test_output_file_is_written_whole(capsys, table, tmp_path):
     out_file = tmp_path / "score.json"
     code, out, _ = run(capsys, "score", path, "--format", "json", "--output", out_file)
     assert code == 0 and out == ""
-    assert json.loads(out_file.read_text())["schema"] == "foldcorr.score/1"
+    assert json.loads(out_file.read_text())["schema"] == "foldcorr.score/2"
     assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
 
 
@@ -141,7 +141,7 @@ def test_output_to_a_device_is_written_directly(capsys, table):
     "argv, message",
     [
         (["score"], "the following arguments are required: PATH"),
-        (["score", "x.csv", "--top", "0"], "expected a positive whole number or 'all'"),
+        (["score", "x.csv", "--top", "-1"], "expected a whole number (0: the summary only) or 'all'"),
         (["score", "x.csv", "--format", "yaml"], "invalid choice: 'yaml'"),
         (["nope"], "invalid choice: 'nope'"),
     ],

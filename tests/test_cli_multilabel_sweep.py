@@ -50,7 +50,7 @@ def test_multilabel_json_matches_reference(capsys, tags, layout):
     code, out, err = run(capsys, "score", path, *layout, "--format", "json")
     assert code == 0, err
     doc = json.loads(out)
-    assert doc["schema"] == "foldcorr.multilabel/1"
+    assert doc["schema"] == "foldcorr.multilabel/2"
     # with --truth-cols the labels are the truth column names
     doc["labels"] = [lab.removeprefix("y_") for lab in doc["labels"]]
     for row in doc["per_label"]:
@@ -65,7 +65,7 @@ def test_multilabel_json_matches_reference(capsys, tags, layout):
     for row in doc["per_label"]:
         i = LABELS.index(row["label"])
         assert row["mcc"] == pytest.approx(ref[row["label"]], abs=1e-12)
-        assert row["support"] == mcm[i, 1].sum() and row["predicted"] == mcm[i, :, 1].sum()
+        assert row["in_truth"] == mcm[i, 1].sum() and row["predicted"] == mcm[i, :, 1].sum()
         assert set(row) >= {"prevalence", "recall", "precision"}
     assert [f["fold"] for f in doc["folds"]] == [0, 1, 2, 3]
     for f in doc["folds"]:
@@ -80,7 +80,9 @@ def test_multilabel_text_and_markdown(capsys, tags):
     assert code == 0 and "Labels by cost" in out and "micro MCC" in out
     code, out, _ = run(capsys, "score", path, "--truth-prefix", "y_", "--pred-prefix", "p_",
                        "--format", "markdown", "--top", "2")
-    assert code == 0 and out.startswith("## foldcorr score (multilabel)") and "2 more labels" in out
+    # Issue 14: Markdown shows the top rows, and every row in a collapsible block.
+    assert code == 0 and out.startswith("## foldcorr score (multilabel)")
+    assert "(top 2 of 4)" in out and "<details><summary>All 4 rows</summary>" in out
 
 
 def test_multilabel_bad_input(capsys, tags, tmp_path):

@@ -55,7 +55,7 @@ def test_score_text_and_markdown_show_intervals(tables, capsys):
     assert main(["score", str(tables["a"]), "--ci", "0.95", "--resamples", "100",
                  "--seed", "1", "--ci-method", "bca"]) == 0
     out = capsys.readouterr().out
-    assert "95% CI" in out and "(bca, 100 resamples)" in out and "Fold statistics" in out
+    assert "95% CI" in out and "(bca, 100 resamples, seed 1)" in out and "Fold statistics" in out
     assert "Class intervals" in out and "R_K 95% CI" in out
     assert main(["score", str(tables["a"]), "--ci", "0.95", "--resamples", "100",
                  "--format", "markdown"]) == 0

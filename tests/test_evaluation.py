@@ -45,9 +45,9 @@ def test_per_class_table_is_complete_and_sorted_by_drag():
     assert table.coords["class"].values.tolist() == expected
     np.testing.assert_allclose(table["drag"].values, np.sort(drag)[::-1], atol=1e-12)
     np.testing.assert_allclose(ev.per_class["mcc"].values, mcc, atol=1e-12)
-    assert set(ev.per_class.data_vars) >= {"support", "predicted", "mcc", "weight", "contribution",
+    assert set(ev.per_class.data_vars) >= {"in_truth", "predicted", "mcc", "weight", "contribution",
                                            "drag", "recall", "precision", "f1", "top_confusion"}
-    assert ev.per_class["support"].values.tolist() == [55, 30, 15]
+    assert ev.per_class["in_truth"].values.tolist() == [55, 30, 15]
 
 
 def test_every_undefined_value_is_named_in_warnings():
@@ -94,14 +94,14 @@ def test_sample_counts_do_not_overflow():
     ev = fc.evaluate(t)
     assert ev.n > 0 and ev.n == pytest.approx(big + 3 + 2 + 5 + 3, rel=1e-15)
     np.testing.assert_allclose(ev.folds["n"].values, [big + 10, 3], rtol=1e-15)
-    np.testing.assert_allclose(ev.per_class["support"].values, [big + 3 + 1, 2 + 5 + 2],
+    np.testing.assert_allclose(ev.per_class["in_truth"].values, [big + 3 + 1, 2 + 5 + 2],
                                rtol=1e-15)
     np.testing.assert_allclose(ev.per_class["predicted"].values, [big + 2 + 1, 3 + 5 + 2],
                                rtol=1e-15)
     # Ordinary counts stay exact integers.
     small = fc.evaluate(fc.confusion_tensor([[5, 1], [2, 7]], ["a", "b"]))
     assert small.n == 15 and isinstance(small.n, int)
-    assert small.per_class["support"].dtype == np.int64
+    assert small.per_class["in_truth"].dtype == np.int64
 
 
 def test_evaluate_refuses_other_leading_dims():

@@ -161,7 +161,8 @@ def test_top_limits_rows_shown_never_json(capsys, table):
     assert main(["score", str(table), "--top", "3", "--format", "markdown"]) == 0
     markdown = capsys.readouterr().out
     assert "Costliest confusions (top 3 by repair gain)" in markdown
-    assert "5 more classes not shown" in markdown
+    # Markdown shows the top rows and every class in a collapsible block (issue 14).
+    assert "(top 3 of 8)" in markdown and "<details><summary>All 8 rows</summary>" in markdown
 
 
 def test_top_limits_multilabel_rows_shown_never_json(capsys, tmp_path):
@@ -207,7 +208,7 @@ def test_multilabel_renders_in_every_format_from_the_one_report_path():
     assert "Labels by cost" in html and "MCC interval" in html
     assert render_score(ev, "markdown").startswith("## foldcorr score (multilabel)")
     doc = json.loads(render_score(ev, "json"))
-    assert doc["schema"] == "foldcorr.multilabel/1" and "micro_mcc_ci" in doc
+    assert doc["schema"] == "foldcorr.multilabel/2" and "micro_mcc_ci" in doc
     assert all(len(row["mcc_ci"]) == 2 for row in doc["per_label"])
 
 

@@ -51,7 +51,7 @@ def test_values_match_the_reference_library(capsys, good):
                        "--min-class-mcc", "0", "--format", "json")
     assert code == 0
     doc = json.loads(out)
-    assert doc["schema"] == "foldcorr.gate/1" and doc["passed"] is True
+    assert doc["schema"] == "foldcorr.gate/2" and doc["passed"] is True
     rules = {r["rule"]: r for r in doc["rules"]}
     assert set(rules["min_rk"]) >= {"rule", "value", "threshold", "passed", "detail"}
     assert abs(rules["min_rk"]["value"] - matthews_corrcoef(df.actual, df.predicted)) < 1e-12
@@ -96,7 +96,7 @@ def test_class_floors(capsys, good, tmp_path):
     [failing] = doc["failing_classes"]
     assert failing["class"] == "urchin" and failing["rule"] == "class_floors"
     assert abs(failing["mcc"] - urchin) < 1e-12
-    assert failing["support"] == int((df.actual == "urchin").sum())
+    assert failing["in_truth"] == int((df.actual == "urchin").sum())
     rule = doc["rules"][0]
     assert rule["rule"] == "class_floors" and rule["threshold"] == 0.0
     assert abs(rule["value"] - (urchin - round(urchin + 0.05, 6))) < 1e-9
@@ -345,7 +345,7 @@ def test_confidence_paired_interval_against_scipy(capsys, tmp_path):
     sigma = float(np.std(ref.bootstrap_distribution))
     tol = 4 * 2.67 * sigma * np.sqrt(1 / 2000 + 1 / 4000)
     assert abs(ours_low - low) < tol and abs(ours_high - high) < tol
-    assert f"interval [{ours_low:.3f}, {ours_high:.3f}]" in detail
+    assert f"interval {ours_low:.3f} to {ours_high:.3f}" in detail
     assert "paired bootstrap on 500 shared samples" in detail
     # The whole interval lies above 0: a regression, exit 1.
     assert low > 0 and code == 1 and rule["passed"] is False

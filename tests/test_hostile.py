@@ -91,7 +91,7 @@ BAD = [
     ("show {count_dims_nc}", "count_dims.nc: variable 'count' has dims ('split', "),
     ("show {count_1d_nc}", "count_1d.nc: variable 'count' has dims ('actual',)"),
     ("show {dup_class_nc}", "dup_class.nc: coordinate 'actual' repeats 'owl'"),
-    ("show {saved} --top 0", "argument --top"),
+    ("show {saved} --top -1", "argument --top"),
     ("show {csv}", "good.csv"),
     ("score {saved} --where 'fold == 1'", "saved.nc is a saved evaluation"),
     # bounds of counts and limits
@@ -130,7 +130,7 @@ BAD = [
     ("frobnicate", "invalid choice: 'frobnicate'"),
     ("score {csv} --bogus", "unrecognized arguments: --bogus"),
     ("score {csv} --format yaml", "argument --format: invalid choice: 'yaml'"),
-    ("score {csv} --top 0", "argument --top"),
+    ("score {csv} --top -1", "argument --top"),
     ("sweep {csv} --at nan", "argument --at: expected a number"),
     ("compare {csv} {parquet}", "--id COL"),
     ("compare {csv} --pred-a predicted --pred-b nope", "good.csv: column 'nope' not found"),

@@ -195,3 +195,28 @@ def test_every_report_renders_as_html(tmp_path):
     parser.feed(out.read_text())
     assert parser.external == [] and parser.tags.count("table") >= 1
     assert "gull" in " ".join(parser.text)
+
+
+@needs_chromium
+def test_filter_box_finds_a_class_and_the_header_stays(report, tmp_path):
+    # Issue 14: every class is on the page, a long table filters by the text typed (class names
+    # searchable) and its header row is sticky.
+    sync_api = pytest.importorskip("playwright.sync_api")
+    path, doc = report
+    with sync_api.sync_playwright() as pw:
+        browser = pw.chromium.launch_persistent_context(
+            str(tmp_path / "profile"), executable_path=chromium(), headless=True,
+            args=[f for f in CHROMIUM_FLAGS if f != "--headless"])
+        try:
+            page = browser.new_page()
+            page.goto(path.as_uri())
+            rows = page.locator("#classes-by-shortfall-share-table tbody tr")
+            assert rows.count() == len(doc["per_class"])
+            page.locator('input.filter[data-table="classes-by-shortfall-share-table"]').fill("sni")
+            visible = [r for r in rows.all() if r.is_visible()]
+            assert [r.locator("td").first.inner_text() for r in visible] == ["snipe"]
+            header = page.locator("#classes-by-shortfall-share-table thead th").first
+            assert header.evaluate("th => getComputedStyle(th).position") == "sticky"
+            assert page.locator("#colour-scale").is_visible()
+        finally:
+            browser.close()

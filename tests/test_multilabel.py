@@ -47,7 +47,7 @@ def test_mcc_per_label_micro_macro_weighted_match_reference():
     assert ev.macro_mcc == pytest.approx(np.mean(ref), abs=1e-12)
     support = truth.sum(axis=0)
     assert ev.weighted_mcc == pytest.approx(np.average(ref, weights=support), abs=1e-12)
-    np.testing.assert_array_equal(per["support"].values, support)
+    np.testing.assert_array_equal(per["in_truth"].values, support)
     np.testing.assert_allclose(per["prevalence"].values, truth.mean(axis=0))
 
 
@@ -68,7 +68,7 @@ def test_sorted_by_cost():
     ev = evaluate(multilabel_tally(truth, pred))
     cost = ev.per_label["cost"].values
     assert (np.diff(cost) <= 0).all()
-    expected = (1 - ev.per_label["mcc"].values) * ev.per_label["support"].values
+    expected = (1 - ev.per_label["mcc"].values) * ev.per_label["in_truth"].values
     np.testing.assert_allclose(cost, expected)
 
 

@@ -50,7 +50,7 @@ def test_multilabel_score_saves_and_show_replays_it(tags, tmp_path, capsys):
     code, shown, _ = run(capsys, "show", saved, "--format", "json")
     assert code == 0
     assert json.loads(shown) == json.loads(printed)
-    assert json.loads(shown)["schema"] == "foldcorr.multilabel/1"
+    assert json.loads(shown)["schema"] == "foldcorr.multilabel/2"
 
 
 def test_multilabel_per_label_mcc_matches_sklearn(tags):
@@ -78,7 +78,7 @@ def test_multilabel_gate_on_a_saved_run_checks_micro_macro_and_label_floors(tags
     assert [r["passed"] for r in doc["rules"]] == [True, True, False]
     gull = matthews_corrcoef(frame["y_gull"], frame["p_gull"])  # sklearn
     assert doc["failing_classes"] == [{"class": "gull", "mcc": pytest.approx(gull),
-                                       "floor": 0.99, "support": int(frame["y_gull"].sum()),
+                                       "floor": 0.99, "in_truth": int(frame["y_gull"].sum()),
                                        "rule": "class_floors"}]
 
 

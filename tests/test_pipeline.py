@@ -102,7 +102,7 @@ def test_multilabel_goes_through_the_same_call(capsys, tmp_path):
     ({"method": "bca"}, r"`method` needs `level`"),
     ({"level": 0.9, "method": "normal"}, r"`method` must be one of 'percentile', 'bca'; got 'normal'"),
     ({"undefined": "none"}, r"`undefined` must be one of 'zero', 'nan'; got 'none'"),
-    ({"top": 0}, r"`top` must be a positive whole number or None; got 0"),
+    ({"top": -1}, r"`top` must be a whole number \(0: the summary only\) or None; got -1"),
     ({"seed": "x"}, r"`seed` must be a whole number or None; got 'x'"),
     ({"prevalence": 3}, r"`prevalence` must be 'uniform', CLASS=SHARE pairs, .*; got 3"),
 ])

@@ -37,7 +37,7 @@ def _ev(top=20):
 def test_json_has_confusions_and_per_class_repair_keys():
     ev, t = _ev(top=2)
     doc = score_dict(ev)
-    assert doc["schema"] == "foldcorr.score/1"
+    assert doc["schema"] == "foldcorr.score/2"
     assert [set(c) for c in doc["confusions"]] == [{"actual", "predicted", "count", "gain"}] * 2
     ra = ev.extras["repair"]
     for entry in doc["per_class"]:
@@ -81,15 +81,22 @@ def test_text_and_markdown_show_the_section_and_the_gain_columns():
     assert "### Costliest confusions" in md and "| fix both |" in md
 
 
-def test_wide_class_table_continues_instead_of_squeezing():
+def test_wide_class_table_drops_columns_by_priority_instead_of_continuing():
+    # Issue 14: a narrow terminal loses the least important columns, named in a note; no
+    # "(continued)" table repeats the first column.
     ev, _ = _ev()
     text = render_text(score_report(ev), width=100)
     assert max(len(line) for line in text.splitlines()) <= 100
-    assert "(continued)" in text
-    for title in ("precision", "fix both", "w/o class", "top-5 folds", "most often taken for"):
-        assert title in text
+    assert "(continued)" not in text and "not shown at this width: " in text
+    dropped = text.split("not shown at this width: ")[1].split(" (all are in JSON)")[0]
+    assert "w/o class" in dropped and "MCC" not in dropped.split(", ")
+    header = next(line for line in text.splitlines() if line.startswith("class "))
+    for title in ("MCC", "drag", "shortfall share"):
+        assert title in header
     wide = render_text(score_report(ev), width=250)
-    assert "(continued)" not in wide
+    assert "(continued)" not in wide and "not shown at this width" not in wide
+    for title in ("precision", "fix both", "w/o class", "top-5 folds", "most often taken for"):
+        assert title in wide
 
 
 def test_cli_score_json_carries_every_confusion_whatever_top(tmp_path, capsys):

@@ -25,7 +25,7 @@ from functools import partial
 import numpy as np
 import xarray as xr
 
-from foldcorr.errors import UndefinedMetricWarning, check_choice
+from foldcorr.errors import DEFAULT_SEED, UndefinedMetricWarning, check_choice
 from foldcorr.metrics import ovr_mcc, rk
 from foldcorr.tensor import ACTUAL, FOLD, JOINT_DIMS, PREDICTED, ClusterCells, validate_joint
 from foldcorr.analysis.clustered import (
@@ -222,7 +222,7 @@ class PairStrata:
                 for t in self.tensors(self.strata.counts[None].astype(np.int64))]
 
 
-def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=None,
+def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=DEFAULT_SEED,
                    n_permutations: int | None = None, undefined: str = "zero",
                    keep_draws: bool = False, cluster=None) -> Comparison:
     r"""Paired comparison of two models' R_K on the same samples.
@@ -236,7 +236,8 @@ def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=
     level : float, default 0.95
         Level of the intervals, strictly between 0 and 1.
     seed : int, numpy.random.Generator or None, optional
-        Seed of the one generator used for resamples and permutations.
+        Seed of the one generator used for resamples and permutations
+        (default :data:`foldcorr.errors.DEFAULT_SEED`: the same input gives the same result).
     n_permutations : int, optional
         Random sign-flip permutations (at least 100); default ``n_resamples``.
     undefined : {"zero", "nan"}, default "zero"

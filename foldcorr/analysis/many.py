@@ -25,7 +25,7 @@ from foldcorr.analysis.compare import PairStrata, compare_cells, paired_draws
 from foldcorr.analysis.resampling import check_level, check_resamples, interval
 from foldcorr.analysis.support import thin_classes
 from foldcorr.analysis.uncertainty import bootstrap
-from foldcorr.errors import InvalidInputError, check_choice
+from foldcorr.errors import DEFAULT_SEED, InvalidInputError, check_choice
 from foldcorr.metrics import ovr_mcc, rk
 from foldcorr.tensor import CLASS, FOLD, cluster_tally, shared_classes
 
@@ -182,7 +182,7 @@ class ManyComparison:
 
 def compare_many(truth, predictions: Mapping, *, folds=None, cluster=None,
                  level: float = 0.95, n_resamples: int = 2000,
-                 n_permutations: int | None = None, seed=None,
+                 n_permutations: int | None = None, seed=DEFAULT_SEED,
                  undefined: str = "zero") -> ManyComparison:
     r"""Rank many models by R_K and compare each with the best, on the same samples.
 
@@ -203,7 +203,8 @@ def compare_many(truth, predictions: Mapping, *, folds=None, cluster=None,
     n_permutations : int, optional
         Sign-flip permutations per comparison; default ``n_resamples``.
     seed : int, numpy.random.Generator or None, optional
-        Seed of the one generator used throughout.
+        Seed of the one generator used throughout (default
+        :data:`foldcorr.errors.DEFAULT_SEED`).
     undefined : {"zero", "nan"}, default "zero"
         Convention for undefined R_K and MCC.
 

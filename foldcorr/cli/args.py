@@ -111,8 +111,9 @@ def _top(value: str):
         number = int(value)
     except ValueError:
         number = -1
-    if number < 1:
-        raise argparse.ArgumentTypeError(f"expected a positive whole number or 'all'; got {value!r}")
+    if number < 0:
+        raise argparse.ArgumentTypeError(f"expected a whole number (0: the summary only) or "
+                                         f"'all'; got {value!r}")
     return number
 
 
@@ -158,7 +159,7 @@ def _add_report_options(p: argparse.ArgumentParser) -> None:
     _add_output_options(p)
     top, undefined = ScoreOptions.default("top"), ScoreOptions.default("undefined")
     p.add_argument("--top", type=_top, default=UNSET, metavar="N|all",
-                   help=f"per-class rows shown in text and Markdown (default: {top})")
+                   help=f"per-class rows shown in text and Markdown (default: {top}; 0: the summary only)")
     p.add_argument("--undefined", choices=("zero", "nan"), default=UNSET,
                    help=f"value of 0/0 metrics: zero or nan (null in JSON; default: {undefined})")
 
@@ -225,7 +226,7 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
                         f"{ScoreOptions.DEFAULT_METHOD})")
     if "--seed" not in p._option_string_actions:  # demo's --seed seeds its data and this too
         p.add_argument("--seed", type=SEED, default=UNSET, metavar="S",
-                       help="seed of the resamples, for reproducible intervals")
+                       help="seed of the resamples (default: a fixed seed, so the same input gives the same intervals)")
     p.add_argument("--prevalence", default=UNSET, metavar="uniform|A=0.2,B=0.8|FILE.csv",
                    help="also show every pooled figure at this target class prevalence, "
                         "assuming label shift; 'uniform' shares it equally among the "
@@ -341,7 +342,7 @@ def get_parser() -> argparse.ArgumentParser:
                       help=f"bootstrap resamples for --confidence (default: 2000, at most "
                            f"{MAX_RESAMPLES:,})")
     gate.add_argument("--seed", type=SEED, default=UNSET, metavar="S",
-                      help="seed of the bootstrap for --confidence")
+                      help="seed of the bootstrap for --confidence (default: a fixed seed, so the verdict never changes between runs)")
     gate.add_argument("--undefined", choices=("zero", "nan"), default=UNSET,
                       help="value of 0/0 metrics (default: as saved, else zero); "
                            "an undefined figure fails its rule")
@@ -435,7 +436,7 @@ def get_parser() -> argparse.ArgumentParser:
                          help="sign-flip permutations (default: as many as --resamples, at most "
                               f"{MAX_RESAMPLES:,})")
     compare.add_argument("--seed", type=SEED, metavar="S",
-                         help="seed of resamples and permutations")
+                         help="seed of resamples and permutations (default: a fixed seed)")
     compare.add_argument("--plot", metavar="DIR",
                          help="also draw R_K per model (three or more models) or B - A per "
                               "class (two) into DIR as PNG and SVG (needs the 'plot' extra)")

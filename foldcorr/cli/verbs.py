@@ -401,10 +401,9 @@ def present(args, names) -> dict:
 def _console():
     from rich.console import Console
 
-    from foldcorr.report.text import PLAIN_WIDTH
+    from foldcorr.report.text import text_width
 
-    terminal = sys.stdout.isatty()
-    return Console(file=sys.stdout, width=None if terminal else PLAIN_WIDTH,
+    return Console(file=sys.stdout, width=text_width(sys.stdout),
                    no_color="NO_COLOR" in os.environ or None, highlight=False)
 
 
@@ -440,7 +439,7 @@ def emit(args, staging, result, **context) -> None:
     from foldcorr.report import document
     from foldcorr.report.documents import write
 
-    doc = document(result, **context)
+    doc = document(result, fmt=args.format, **context)
     if args.output or args.format != "text":
         write_out(staging, args.output, write(doc, args.format))
     else:

@@ -13,7 +13,7 @@ from collections.abc import Mapping
 from dataclasses import InitVar, dataclass, fields
 from typing import ClassVar
 
-from foldcorr.errors import InvalidInputError, OptionError, check_choice
+from foldcorr.errors import DEFAULT_SEED, InvalidInputError, OptionError, check_choice
 
 __all__ = ["ScoreOptions", "OPTIONS_SCHEMA", "V1_KEYS", "ANALYSIS_NAMES", "saved_options",
            "option_namer", "given_text"]
@@ -59,8 +59,7 @@ class ScoreOptions:
     undefined : {"zero", "nan"}
         Value of undefined (0/0) figures.
     top : int or None
-        Costliest confusions kept by the repair analysis and class rows shown
-        (None: all).
+        Class rows shown (None: all; 0: the short summary only).
     level : float or None
         Level of bootstrap intervals, strictly between 0 and 1; None: no intervals.
     n_resamples : int or None
@@ -69,7 +68,8 @@ class ScoreOptions:
     method : {"percentile", "bca"} or None
         Interval method; :attr:`DEFAULT_METHOD` when ``level`` is given.
     seed : int or None
-        Seed of the resamples.
+        Seed of the resamples: :data:`foldcorr.errors.DEFAULT_SEED` unless given, so
+        that the same inputs give the same intervals; None draws fresh entropy.
     prevalence : "uniform", mapping or None
         Target class prevalence of the shifted figures (a text such as
         ``"a=0.2,b=0.8"`` or a CSV file name is read into a mapping).
@@ -95,7 +95,7 @@ class ScoreOptions:
     level: float | None = None
     n_resamples: int | None = None
     method: str | None = None
-    seed: int | None = None
+    seed: int | None = DEFAULT_SEED
     prevalence: str | dict | None = None
     analyses: tuple = ANALYSIS_NAMES
     names: InitVar[Mapping | None] = None
@@ -109,8 +109,8 @@ class ScoreOptions:
         name = option_namer(names)
         check_choice(name("undefined"), self.undefined, UNDEFINED_CHOICES)
         if self.top is not None and not (isinstance(self.top, numbers.Integral)
-                                         and not isinstance(self.top, bool) and self.top >= 1):
-            raise OptionError(f"`{name('top')}` must be a positive whole number or None; "
+                                         and not isinstance(self.top, bool) and self.top >= 0):
+            raise OptionError(f"`{name('top')}` must be a whole number (0: the summary only) or None; "
                               f"got {self.top!r}")
         if self.seed is not None and not (isinstance(self.seed, numbers.Integral)
                                           and not isinstance(self.seed, bool)):

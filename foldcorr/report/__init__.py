@@ -21,12 +21,14 @@ def _load(spec: str):
     return getattr(importlib.import_module(module), name)
 
 
-def document(result, *, top: int | None = 20, **context):
+def document(result, *, top: int | None = 20, fmt: str | None = None, **context):
     """The :class:`~foldcorr.report.documents.Document` of a result.
 
-    ``top`` limits the rows shown in text, Markdown and HTML (None: all); the
-    JSON document always carries every row. ``context`` passes what a result
-    kind needs besides (e.g. the model ``names`` of a comparison, ``source``).
+    ``top`` limits the rows shown in text and Markdown (None: all). A page
+    (``fmt="html"``) shows every row; Markdown for an evaluation shows the top
+    rows and every row in a collapsible block; the JSON document always
+    carries every row. ``context`` passes what a result kind needs besides
+    (e.g. the model ``names`` of a comparison, ``source``).
 
     Examples
     --------
@@ -40,6 +42,10 @@ def document(result, *, top: int | None = 20, **context):
         from foldcorr.errors import OptionError
 
         raise OptionError(f"cannot render a {kind!r}; expected one of {sorted(DOCUMENTS)!r}")
+    if fmt == "html" and top != 0:
+        top = None
+    elif fmt == "markdown" and kind == "Evaluation" and top != 0:
+        context["brief"], top = top, None
     return _load(DOCUMENTS[kind])(result, top=top, **context)
 
 
@@ -51,11 +57,11 @@ def render(result, fmt: str = "text", *, top: int | None = 20, **context) -> str
     >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> render(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])), "json")[:32]
-    '{\\n  "schema": "foldcorr.score/1"'
+    '{\\n  "schema": "foldcorr.score/2"'
     """
     from foldcorr.report.documents import write
 
-    return write(document(result, top=top, **context), fmt)
+    return write(document(result, top=top, fmt=fmt, **context), fmt)
 
 
 def render_score(ev, fmt: str, *, top: int | None = 20) -> str:

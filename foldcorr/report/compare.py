@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from foldcorr.report.json import plain
-from foldcorr.report.tables import Column, Report, Table, format_p, format_value
+from foldcorr.report.tables import Column, Report, Table, format_interval, format_p, format_value
 from foldcorr.report.uncertainty import percent
 
 __all__ = ["COMPARE_SCHEMA", "verdict", "compare_report", "compare_dict", "compare_document"]
@@ -38,7 +38,7 @@ def verdict(c, labels=("A", "B")) -> str:
     low, high = c.ci
     lvl = percent(c.level)
     detail = (f"R_K {_m(c.rk_b)} for {b} against {_m(c.rk_a)} for {a}, difference "
-              f"{_m(c.difference)} ({lvl} CI {_m(low)} to {_m(high)}; permutation p = "
+              f"{_m(c.difference)} ({lvl} CI {format_interval(low, high)}; permutation p = "
               f"{format_p(c.p_value)})")
     if c.decided:
         winner, loser = (b, a) if c.better == "b" else (a, b)
@@ -84,9 +84,10 @@ def compare_report(c, *, labels=("A", "B"), names=None, top: int | None = 20,
         (Column("figure", "label"), Column("value", "text")),
         ((f"R_K of {a}", _m(c.rk_a)), (f"R_K of {b}", _m(c.rk_b)),
          (f"difference ({b} - {a})", _m(c.difference)),
-         (f"{lvl} paired bootstrap CI", f"{_m(low)} to {_m(high)}"),
+         (f"{lvl} paired bootstrap CI", format_interval(low, high)),
          ("permutation p-value (two-sided)", format_p(c.p_value)),
-         ("resamples / permutations", f"{c.n_resamples} / {c.n_permutations}")),
+         ("resamples / permutations", f"{c.n_resamples} / {c.n_permutations}"),
+         ("seed", "none (fresh entropy)" if c.seed is None else str(c.seed))),
         note=f"model {a} and model {b} are scored on the same samples; the interval resamples "
              f"{unit} with both predictions kept together",
     )
@@ -97,7 +98,7 @@ def compare_report(c, *, labels=("A", "B"), names=None, top: int | None = 20,
     rows = tuple(
         (_label(pc.coords["class"].values[i]), float(pc["mcc_a"].values[i]),
          float(pc["mcc_b"].values[i]), float(pc["difference"].values[i]),
-         f"{_m(pc['low'].values[i])} to {_m(pc['high'].values[i])}")
+         format_interval(pc['low'].values[i], pc['high'].values[i]))
         for i in order[:shown]
     )
     classes = Table(
@@ -105,7 +106,7 @@ def compare_report(c, *, labels=("A", "B"), names=None, top: int | None = 20,
         (Column("class", "label"), Column(f"MCC {a}", "correlation"),
          Column(f"MCC {b}", "correlation"), Column(f"{b} - {a}"),
          Column(f"{lvl} CI", "text")),
-        rows, "" if shown == k else f"{k - shown} more classes not shown (use --top all)")
+        rows, "" if shown == k else f"{k - shown} more classes not shown here; every one is in the JSON and HTML reports")
     tables = [summary, classes]
     if c.folds is not None:
         f = c.folds
@@ -116,7 +117,7 @@ def compare_report(c, *, labels=("A", "B"), names=None, top: int | None = 20,
              Column(f"{lvl} CI", "text")),
             tuple((_label(fold), float(f["rk_a"].values[i]), float(f["rk_b"].values[i]),
                    float(f["difference"].values[i]),
-                   f"{_m(f['low'].values[i])} to {_m(f['high'].values[i])}")
+                   format_interval(f['low'].values[i], f['high'].values[i]))
                   for i, fold in enumerate(f.coords["fold"].values)),
         ))
     return Report("foldcorr compare", facts, tuple(tables), c.warnings)

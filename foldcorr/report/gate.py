@@ -1,10 +1,11 @@
 """Rendering of a gate result: plain table, Markdown summary, JSON and JUnit XML.
 
 The text and Markdown forms come from one :class:`~foldcorr.report.tables.Report`,
-so they show the same rows. JSON schema ``foldcorr.gate/1``: ``schema``,
-``passed``, ``source``, ``baseline``, ``comparison``, ``rules`` (each with
-``rule``, ``value``, ``threshold``, ``op``, ``passed``, ``detail``),
-``failing_classes`` (each with ``class``, ``mcc``, ``floor``, ``support``,
+so they show the same rows. JSON schema ``foldcorr.gate/2``: ``schema``,
+``passed``, ``source``, ``baseline``, ``comparison``, ``seed``, ``rules`` (each with
+``rule``, ``figure``, ``value``, ``threshold``, ``op``, ``passed``, ``detail``,
+``where``, ``interval``; the baseline rule also ``change`` and ``change_interval``),
+``failing_classes`` (each with ``class``, ``mcc``, ``floor``, ``in_truth``,
 ``rule``) and ``warnings``. JUnit XML: one ``testsuite`` named
 ``foldcorr gate`` with one ``testcase`` per rule; a failed rule carries a
 ``failure`` element whose message is the rule's detail.
@@ -25,7 +26,7 @@ __all__ = ["GATE_SCHEMA", "gate_report", "gate_dict", "junit_xml", "gate_documen
 #: Characters XML 1.0 cannot hold even escaped (labels may carry them): shown as U+FFFD.
 _NOT_XML = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ud800-\udfff\ufffe\uffff]")
 
-GATE_SCHEMA = "foldcorr.gate/1"
+GATE_SCHEMA = "foldcorr.gate/2"
 
 
 def _verdict(passed: bool) -> str:
@@ -40,8 +41,68 @@ def _nouns(ev) -> str:
     return "labels" if ev.row_scope == "label" else "classes"
 
 
+#: What each rule checks, as the figure named in its row.
+RULE_FIGURES = {
+    "min_rk": "pooled R_K",
+    "min_micro_mcc": "pooled micro MCC",
+    "min_macro_mcc": "pooled macro MCC",
+    "min_fold_rk": "lowest fold R_K",
+    "min_class_mcc": "lowest one-vs-rest MCC",
+    "class_floors": "MCC of the classes with floors",
+    "max_marginal_mismatch": "marginal mismatch",
+    "max_drop": "R_K change from baseline (+ better)",
+}
+
+#: Classes below their floors shown in one rule row; the rest are in the floors table.
+ROW_CLASSES = 3
+
+
+def signed(value) -> str:
+    """A change with its sign (+ better, - worse), three decimals, never a negative zero.
+
+    Examples
+    --------
+    >>> signed(0.0123), signed(-0.13), signed(-0.0001)
+    ('+0.012', '-0.130', '0.000')
+    """
+    text = format_value(value, "metric")
+    return text if text in ("n/a", "0.000") or text.startswith("-") else "+" + text
+
+
+def _value(r, result: GateResult) -> str:
+    """The text of a rule's value: the figure, where it comes from, the classes below floors."""
+    if r.rule == "max_drop":
+        text = signed(-r.value)
+        if r.interval is not None:
+            text += f" ({signed(-r.interval[1])} to {signed(-r.interval[0])})"
+        return text
+    if r.rule == "class_floors":
+        below = [c for c in result.failing_classes if c.rule == r.rule]
+        if not below:
+            return f"all hold; nearest {r.where}"
+        shown = [f"{c.label!s} {format_value(c.mcc, 'metric')} < {c.floor:.3f}"
+                 for c in below[:ROW_CLASSES]]
+        more = f" and {len(below) - ROW_CLASSES} more" if len(below) > ROW_CLASSES else ""
+        return "; ".join(shown) + more
+    text = format_value(r.value, "metric")
+    return f"{text} ({r.where})" if r.where else text
+
+
+def _limit(r) -> str:
+    if r.rule == "max_drop":
+        bound = signed(-r.threshold)
+        return f"upper end >= {bound}" if r.interval is not None else f">= {bound}"
+    if r.rule == "class_floors":
+        return "each >= its floor"
+    return f"{r.op} {format_value(r.threshold, 'metric')}"
+
+
 def gate_report(result: GateResult) -> Report:
-    """The gate as a report: facts, the rules table, the classes below their floors.
+    """The gate as a report: facts, one row per rule, the classes below their floors.
+
+    Each rule row names the figure checked, its value, the limit and the
+    verdict; the change from a baseline is signed (+ better, - worse), with
+    its interval when a confidence level was given.
 
     Examples
     --------
@@ -50,8 +111,8 @@ def gate_report(result: GateResult) -> Report:
     >>> from foldcorr.gate import GateRules, check_gate
     >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
     >>> r = gate_report(check_gate(ev, GateRules(min_rk=0.5)))
-    >>> r.tables[0].rows[0][:4]
-    ('pooled R_K', 0.4780914437337574, '>= 0.500', 'FAIL')
+    >>> r.tables[0].rows[0]
+    ('pooled R_K', '0.478', '>= 0.500', 'FAIL', 'min-rk')
     """
     ev = result.evaluation
     failed = len(result.failed)
@@ -62,23 +123,28 @@ def gate_report(result: GateResult) -> Report:
     if result.baseline is not None:
         facts.append(("baseline", _source(result.baseline)))
         facts.append(("comparison", result.comparison))
-    rows = tuple((r.title, r.value, f"{r.op} {r.threshold:.3f}", _verdict(r.passed), r.detail)
-                 for r in result.rules)
-    rules = Table("Rules", (Column("rule", "label"), Column("value"), Column("threshold", "text"),
-                            Column("result", "text"), Column("detail", "text")), rows)
+    if result.seed is not None:
+        facts.append(("seed", str(result.seed)))
+    rows = tuple((RULE_FIGURES.get(r.rule, r.title), _value(r, result), _limit(r),
+                  _verdict(r.passed), r.rule.replace("_", "-")) for r in result.rules)
+    note = "; ".join(f"{RULE_FIGURES.get(r.rule, r.title)}: {r.detail}"
+                     for r in result.rules if r.detail and (not r.passed or r.interval))
+    rules = Table("Rules", (Column("checks", "text"), Column("value", "text"),
+                            Column("limit", "label"), Column("verdict", "text"),
+                            Column("rule", "text")), rows, note)
     tables = [rules]
     if result.failing_classes:
-        rows = tuple((c.label, c.mcc, c.floor, c.support, c.rule.replace("_", "-"))
+        rows = tuple((c.label, c.mcc, c.floor, c.in_truth, c.rule.replace("_", "-"))
                      for c in result.failing_classes)
         tables.append(Table(f"{_nouns(ev).capitalize()} below their floors ({len(rows)})",
                             (Column(ev.row_scope, "label"), Column("MCC", "correlation"),
-                             Column("floor"), Column("support", "count"),
+                             Column("floor"), Column("in truth", "count"),
                              Column("rule", "text")), rows))
     return Report("foldcorr gate", tuple(facts), tuple(tables), result.warnings)
 
 
 def gate_dict(result: GateResult) -> dict:
-    """The ``foldcorr.gate/1`` JSON document.
+    """The ``foldcorr.gate/2`` JSON document.
 
     Examples
     --------
@@ -88,7 +154,7 @@ def gate_dict(result: GateResult) -> dict:
     >>> ev = evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
     >>> doc = gate_dict(check_gate(ev, GateRules(min_rk=0.4)))
     >>> doc["schema"], doc["passed"], doc["rules"][0]["rule"], doc["failing_classes"]
-    ('foldcorr.gate/1', True, 'min_rk', [])
+    ('foldcorr.gate/2', True, 'min_rk', [])
     """
     ev = result.evaluation
     doc = {
@@ -97,12 +163,16 @@ def gate_dict(result: GateResult) -> dict:
         "source": ev.tensor.attrs.get("source"),
         "baseline": None if result.baseline is None else result.baseline.tensor.attrs.get("source"),
         "comparison": result.comparison or None,
-        "rules": [{"rule": r.rule, "value": r.value, "threshold": r.threshold, "op": r.op,
-                   "passed": r.passed, "detail": r.detail,
-                   "interval": None if r.interval is None else list(r.interval)}
+        "seed": result.seed,
+        "rules": [{"rule": r.rule, "figure": RULE_FIGURES.get(r.rule, r.title),
+                   "value": r.value, "threshold": r.threshold, "op": r.op,
+                   "passed": r.passed, "detail": r.detail, "where": r.where or None,
+                   "interval": None if r.interval is None else list(r.interval),
+                   **({"change": -r.value, "change_interval": None if r.interval is None
+                       else [-r.interval[1], -r.interval[0]]} if r.rule == "max_drop" else {})}
                   for r in result.rules],
         "failing_classes": [{"class": c.label, "mcc": c.mcc, "floor": c.floor,
-                             "support": c.support, "rule": c.rule}
+                             "in_truth": c.in_truth, "rule": c.rule}
                             for c in result.failing_classes],
         "warnings": list(result.warnings),
     }

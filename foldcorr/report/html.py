@@ -2,12 +2,17 @@
 
 One file, nothing fetched: the styles are inline, plots are inline SVG, and a
 small inline script makes every table sortable by clicking a column header
-(click again to reverse). It renders the same :class:`~foldcorr.report.tables.Report`
-the text and Markdown renderers take, so every section an analysis adds shows
-up here too. Each cell keeps its raw value in ``data-value`` so that sorting
-is numeric where the column is; undefined values (``n/a``) sort last.
-Correlation cells also carry a band class (good, middling, poor) that only
-repeats what the number says.
+(click again to reverse); a table of classes or labels, and any long table,
+has a box above it that keeps only the rows whose name (first column) holds
+the text typed. Headers stay in view while a long table
+scrolls. It renders the same :class:`~foldcorr.report.tables.Report` the text
+and Markdown renderers take, with every row, so every class and every section
+an analysis adds shows up here too. The verdict (of a gate) and the warnings
+come first. Each cell keeps its raw value in ``data-value`` so that sorting is
+numeric where the column is; undefined values (``n/a``) sort last.
+Correlation cells are coloured on the continuous scale of
+:func:`foldcorr.report.colours.mcc_colour`, drawn as a legend at the top; the
+colour only repeats the printed number.
 """
 
 from __future__ import annotations
@@ -16,9 +21,11 @@ import html
 import math
 import re
 
-from foldcorr.report.tables import Report, Table
+from foldcorr.report.colours import mcc_colour, scale_stops
+from foldcorr.report.tables import Report, Table, legend
 
-__all__ = ["render_html", "html_table", "svg_figures", "PLOT_CAPTIONS", "MULTILABEL_CAPTIONS"]
+__all__ = ["render_html", "html_table", "svg_figures", "scale_legend", "PLOT_CAPTIONS",
+           "MULTILABEL_CAPTIONS"]
 
 #: Captions of the plots of :mod:`foldcorr.report.plots`, by figure name, in page order.
 PLOT_CAPTIONS = {
@@ -36,7 +43,7 @@ MULTILABEL_CAPTIONS = {
 
 _CSS = """
 :root { color-scheme: light; --ink: #1d232a; --muted: #5b6672; --line: #d5dbe1;
-  --head: #eef2f5; --good: #1d6b35; --mid: #8a5a00; --poor: #a3201b; }
+  --head: #eef2f5; --pass: #135fa8; --fail: #8e3b8a; }
 * { box-sizing: border-box; }
 body { margin: 0; font: 15px/1.45 system-ui, -apple-system, "Segoe UI", sans-serif;
   color: var(--ink); background: #fff; }
@@ -47,7 +54,13 @@ dl.facts { display: flex; flex-wrap: wrap; gap: 6px 22px; margin: 0 0 12px; }
 dl.facts div { display: flex; gap: 6px; }
 dl.facts dt { color: var(--muted); }
 dl.facts dd { margin: 0; font-weight: 600; }
-.scroll { overflow-x: auto; }
+.scroll { overflow: auto; max-height: 80vh; }
+thead th { position: sticky; top: 0; z-index: 1; }
+input.filter { margin: 0 0 6px; padding: 3px 6px; font: inherit; width: 18em; }
+.verdict { font-size: 1.2em; font-weight: 700; margin: 8px 0; }
+.verdict.pass { color: var(--pass); } .verdict.fail { color: var(--fail); }
+.scale { display: flex; align-items: center; gap: 8px; color: var(--muted); margin: 8px 0; }
+.scale .bar { width: 240px; height: 12px; border: 1px solid var(--line); }
 table { border-collapse: collapse; font-variant-numeric: tabular-nums; font-size: 14px; }
 p.note, figcaption { max-width: 60em; }
 th, td { padding: 4px 10px; border-bottom: 1px solid var(--line); text-align: left;
@@ -60,11 +73,10 @@ th button:focus-visible { outline: 2px solid #2a6fb0; }
 th[aria-sort="ascending"] button::after { content: " \\25B2"; }
 th[aria-sort="descending"] button::after { content: " \\25BC"; }
 tbody tr:hover { background: #f7f9fb; }
-td.good { color: var(--good); font-weight: 600; }
-td.mid { color: var(--mid); }
-td.poor { color: var(--poor); font-weight: 600; }
-td.pass { color: var(--good); font-weight: 700; }
-td.fail { color: var(--poor); font-weight: 700; }
+td.corr { font-weight: 600; }
+td.pass { color: var(--pass); font-weight: 700; }
+td.fail { color: var(--fail); font-weight: 700; }
+p.legend { color: var(--muted); font-style: italic; margin: 4px 0 0; max-width: 60em; }
 p.note { color: var(--muted); margin: 6px 0 0; }
 ul.warnings li { margin: 4px 0; }
 figure { margin: 12px 0 20px; }
@@ -99,6 +111,16 @@ _SCRIPT = """
       else th.removeAttribute("aria-sort");
     });
   }
+  document.querySelectorAll("input.filter").forEach(function (box) {
+    var table = document.getElementById(box.getAttribute("data-table"));
+    box.addEventListener("input", function () {
+      var words = box.value.toLowerCase();
+      Array.prototype.forEach.call(table.tBodies[0].rows, function (row) {
+        var name = row.cells[0].textContent.toLowerCase();
+        row.hidden = words !== "" && name.indexOf(words) < 0;
+      });
+    });
+  });
   document.querySelectorAll("table.sortable").forEach(function (table) {
     Array.prototype.forEach.call(table.tHead.rows[0].cells, function (th, col) {
       var button = th.querySelector("button");
@@ -127,11 +149,26 @@ def _raw(value) -> str:
     return str(value)
 
 
-def _band(value) -> str:
-    from foldcorr.report.text import correlation_style
+def _colour_style(value) -> str:
+    try:
+        colour = mcc_colour(value)
+    except (TypeError, ValueError):
+        return ""
+    return f' style="color: {colour}"' if colour else ""
 
-    style = correlation_style(None if value is None else float(value))
-    return {"bold green": "good", "yellow": "mid", "bold red": "poor"}.get(style, "")
+
+def scale_legend() -> str:
+    """The colour scale of correlations drawn as a bar from -1 to 1, for the top of a page.
+
+    Examples
+    --------
+    >>> "linear-gradient(to right, #8e3b8a 0%" in scale_legend()
+    True
+    """
+    stops = ", ".join(f"{colour} {(value + 1) * 50:g}%" for value, colour in scale_stops())
+    return ('<div class="scale" id="colour-scale"><span>MCC and R_K colour: -1</span>'
+            f'<span class="bar" style="background: linear-gradient(to right, {stops})"></span>'
+            "<span>+1 (continuous; the number is always printed)</span></div>")
 
 
 def html_table(table: Table, *, table_id: str | None = None) -> str:
@@ -146,6 +183,10 @@ def html_table(table: Table, *, table_id: str | None = None) -> str:
     """
     tid = table_id or _slug(table.title)
     head = []
+    box = ""
+    if len(table.rows) > 10 or (table.columns and table.columns[0].title in ("class", "label")):
+        box = (f'<input type="search" class="filter" data-table="{tid}-table" '
+               f'placeholder="find by name" aria-label="filter {html.escape(table.title)}">')
     for col in table.columns:
         cls = ' class="num"' if col.numeric else ""
         head.append(f'<th scope="col"{cls}><button type="button">{html.escape(col.title)}'
@@ -155,21 +196,25 @@ def html_table(table: Table, *, table_id: str | None = None) -> str:
         tds = []
         for value, cell, col in zip(raw, cells, table.columns):
             classes = ["num"] if col.numeric else (["text"] if col.kind == "text" else [])
-            if col.kind == "correlation":
-                band = _band(value) if cell != "n/a" else ""
-                classes += [band] if band else []
+            style = ""
+            if col.kind == "correlation" and cell != "n/a":
+                classes.append("corr")
+                style = _colour_style(value)
             if col.kind == "text" and cell in ("PASS", "FAIL"):
                 classes.append(cell.lower())
             cls = f' class="{" ".join(classes)}"' if classes else ""
-            tds.append(f'<td{cls} data-value="{html.escape(_raw(value))}">{html.escape(cell)}'
-                       "</td>")
+            tds.append(f'<td{cls}{style} data-value="{html.escape(_raw(value))}">'
+                       f"{html.escape(cell)}</td>")
         body.append("<tr>" + "".join(tds) + "</tr>")
-    parts = [f'<section id="{tid}">', f"<h2>{html.escape(table.title)}</h2>",
+    parts = [f'<section id="{tid}">', f"<h2>{html.escape(table.title)}</h2>", box,
              '<div class="scroll">',
              f'<table class="sortable" id="{tid}-table"><thead><tr>{"".join(head)}</tr></thead>',
              "<tbody>", *body, "</tbody></table></div>"]
     if table.note:
         parts.append(f'<p class="note">{html.escape(table.note)}</p>')
+    words = legend(table.columns)
+    if words:
+        parts.append(f'<p class="legend">{html.escape(words)}</p>')
     parts.append("</section>")
     return "\n".join(parts)
 
@@ -221,10 +266,17 @@ def render_html(report: Report, *, figures=(), plots_note: str = "") -> str:
             plot_parts.append(f'<p class="note">{html.escape(plots_note)}</p>')
         plot_parts.append("</section>")
         sections.append("\n".join(plot_parts))
+    top = []
+    result = dict(report.facts).get("result", "")
+    if result:
+        verdict = "pass" if result.startswith("PASS") else "fail"
+        top.append(f'<p class="verdict {verdict}" id="verdict">{html.escape(result)}</p>')
     if report.warnings:
         items = "".join(f"<li>{html.escape(w)}</li>" for w in report.warnings)
-        sections.append(f'<section id="warnings"><h2>Warnings</h2>'
-                        f'<ul class="warnings">{items}</ul></section>')
+        top.append(f'<section id="warnings"><h2>Warnings</h2>'
+                   f'<ul class="warnings">{items}</ul></section>')
+    if any(c.kind == "correlation" for t in report.tables for c in t.columns):
+        top.append(scale_legend())
     from foldcorr._version import __version__
 
     return "\n".join([
@@ -240,9 +292,10 @@ def render_html(report: Report, *, figures=(), plots_note: str = "") -> str:
         "<main>",
         f"<h1>{html.escape(report.title)}</h1>",
         f'<dl class="facts">{facts}</dl>',
+        *top,
         *sections,
         f"<footer>foldcorr {html.escape(__version__)}; click a column header to sort "
-        "the table by it.</footer>",
+        "the table by it; type in the box above a table to find rows by name.</footer>",
         "</main>",
         f"<script>{_SCRIPT}</script>",
         "</body>",
@@ -274,8 +327,8 @@ def svg_figures(ev) -> tuple[list[tuple[str, str]], str]:
     if importlib.util.find_spec("foldcorr.report.plots") is None:
         return [], ""
     if importlib.util.find_spec("matplotlib") is None:
-        return [], ("The plots need matplotlib, from the plot extra: "
-                    "pip install 'foldcorr[plot]'")
+        return [], ("The plots need matplotlib, from the plot extra, which is not installed "
+                    "here.")
     from foldcorr.report import plots
 
     captions = {**PLOT_CAPTIONS, **(MULTILABEL_CAPTIONS if ev.kind == "multilabel" else {})}

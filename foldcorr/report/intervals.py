@@ -10,7 +10,7 @@ computes: every figure comes from a
 
 from __future__ import annotations
 
-from foldcorr.report.tables import Column, format_value
+from foldcorr.report.tables import Column, format_interval
 
 __all__ = ["KEY", "AVERAGES", "summary_columns", "class_columns", "class_note", "json"]
 
@@ -22,7 +22,7 @@ AVERAGES = ("micro_mcc", "macro_mcc", "weighted_mcc")
 
 
 def _pair(low, high) -> str:
-    return f"[{format_value(low, 'metric')}, {format_value(high, 'metric')}]"
+    return format_interval(low, high)
 
 
 def _example():

@@ -7,7 +7,7 @@ The renderers take a :class:`foldcorr.analysis.many.ManyComparison` and never co
 from __future__ import annotations
 
 from foldcorr.report.json import plain
-from foldcorr.report.tables import Column, Report, Table, format_p, format_value
+from foldcorr.report.tables import Column, Report, Table, format_interval, format_p, format_value
 from foldcorr.report.uncertainty import percent
 
 __all__ = ["MANY_SCHEMA", "many_report", "many_dict", "many_document"]
@@ -16,7 +16,7 @@ MANY_SCHEMA = "foldcorr.compare/2"
 
 
 def _interval(low, high) -> str:
-    return f"[{format_value(float(low), 'metric')}, {format_value(float(high), 'metric')}]"
+    return format_interval(float(low), float(high))
 
 
 def _py(value):

@@ -7,7 +7,7 @@ HTML: every piece of text (labels, cells, facts, notes, warnings) is data, so
 
 from __future__ import annotations
 
-from foldcorr.report.tables import Report, Table
+from foldcorr.report.tables import Report, Table, legend
 
 __all__ = ["render_markdown", "markdown_table", "escape_markdown"]
 
@@ -67,9 +67,19 @@ def markdown_table(table: Table) -> str:
     head = "| " + " | ".join(_escape(c.title) for c in table.columns) + " |"
     rule = "|" + "|".join("--:" if c.numeric else ":--" for c in table.columns) + "|"
     body = ["| " + " | ".join(_escape(c) for c in row) + " |" for row in table.cells()]
-    lines = [f"### {_escape(table.title)}", "", head, rule, *body]
+    title = table.title
+    if table.brief is not None:
+        title = title.split(" (top ")[0] + f" (top {len(table.brief)} of {len(body)})"
+    lines = [f"### {_escape(title)}", "", head, rule,
+             *(body if table.brief is None else [body[i] for i in table.brief])]
     if table.note:
         lines += ["", f"_{_escape(table.note)}_"]
+    words = legend(table.columns)
+    if words:
+        lines += ["", f"_{_escape(words)}_"]
+    if table.brief is not None and len(table.brief) < len(body):
+        lines += ["", f"<details><summary>All {len(body)} rows</summary>", "", head, rule,
+                  *body, "", "</details>"]
     return "\n".join(lines)
 
 

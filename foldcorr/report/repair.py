@@ -82,10 +82,8 @@ def confusion_table(ra, top: int | None = 20) -> Table:
     columns = (Column("#", "count"), Column("actual", "label"), Column("taken for", "label"),
                Column("count", "count"), Column("gain"))
     body = tuple((i + 1, *row) for i, row in enumerate(shown))
-    note = (f"gain: R_K after moving the cell's counts to the diagonal, minus R_K "
-            f"({_fmt(ra.rk)}); fix FN / fix FP / fix both in the class table: the same for "
-            f"all of a class's misses / false alarms / both; w/o class: R_K without the "
-            f"class's row and column, minus R_K")
+    note = (f"#: rank; count: samples in the cell; gain: R_K after moving the cell's counts to "
+            f"the diagonal, minus R_K ({_fmt(ra.rk)})")
     if not rows:
         return Table("Costliest confusions (none)", columns, body,
                      "no confusions: every sample is on the diagonal")

@@ -10,8 +10,9 @@ from foldcorr.report.tables import score_report
 __all__ = ["score_document"]
 
 
-def score_document(ev: Evaluation, *, top: int | None = 20, source: str | None = None) -> Document:
-    """The tables (cut to ``top`` rows), the complete JSON and the plots of an evaluation.
+def score_document(ev: Evaluation, *, top: int | None = 20, source: str | None = None,
+                   brief: int | None = None) -> Document:
+    """The tables (cut to ``top`` rows, ``brief`` of them marked), the complete JSON and the plots.
 
     Examples
     --------
@@ -27,4 +28,5 @@ def score_document(ev: Evaluation, *, top: int | None = 20, source: str | None =
 
         return svg_figures(ev)
 
-    return Document(score_report(ev, top=top, source=source), lambda: score_dict(ev), figures)
+    return Document(score_report(ev, top=top, source=source, brief=brief),
+                    lambda: score_dict(ev), figures)

@@ -57,7 +57,7 @@ def tables(ev, top):
                   float(p["recall"].values[i]))
                  for i in shown)
     note = "" if len(shown) == len(classes) else \
-        f"{len(classes) - len(shown)} more classes not shown (use --top all)"
+        f"{len(classes) - len(shown)} more classes not shown here; every one is in the JSON and HTML reports"
     per_class = Table(
         "Classes at the target prevalence (largest change in MCC first)",
         (Column("class", "label"), Column("share obs."), Column("share target"),
@@ -68,7 +68,7 @@ def tables(ev, top):
 
 
 def json(ev, doc) -> None:
-    """Add ``shifted`` to a ``foldcorr.score/1`` document.
+    """Add ``shifted`` to a ``foldcorr.score/2`` document.
 
     Examples
     --------

@@ -13,7 +13,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from foldcorr.report.tables import Column, Report, Table
+from foldcorr.report.tables import Column, Report, Table, format_threshold
 from foldcorr.analysis.thresholds import THRESHOLD, SweepResult
 
 __all__ = ["SWEEP_SCHEMA", "sweep_report", "sweep_dict", "curve_frame", "write_curve",
@@ -49,13 +49,13 @@ def sweep_report(result: SweepResult, *, top: int | None = 20, source: str | Non
     columns = [Column("label", "label"), Column("thresholds", "count"),
                Column("best threshold", "text"), Column("best MCC (in-sample)", "correlation")]
     if at is not None:
-        columns.append(Column(f"MCC at {at:g}", "correlation"))
+        columns.append(Column(f"MCC at {format_threshold(at)}", "correlation"))
     if result.folds is not None:
-        columns += [Column("held-out MCC (cross-fold)", "correlation"), Column("optimism")]
+        columns += [Column("mean held-out MCC (cross-fold)", "correlation"), Column("optimism")]
     shown = result.labels if top is None else result.labels[:top]
     rows = []
     for s in shown:
-        row = [_name(s.label), s.n_thresholds, f"{s.best_threshold:.6g}", s.best_mcc]
+        row = [_name(s.label), s.n_thresholds, format_threshold(s.best_threshold), s.best_mcc]
         if at is not None:
             row.append(s.mcc_at)
         if result.folds is not None:
@@ -67,7 +67,8 @@ def sweep_report(result: SweepResult, *, top: int | None = 20, source: str | Non
         note += ("; the cross-fold figure scores each fold with the threshold chosen on the other "
                  "folds, and optimism is the difference")
     if len(shown) < len(result.labels):
-        note += f"; {len(result.labels) - len(shown)} more labels not shown (use --top all)"
+        note += (f"; {len(result.labels) - len(shown)} more labels not shown here; every one is "
+                 "in the JSON and HTML reports")
     tables = [Table("Thresholds", tuple(columns), tuple(rows), note)]
     if result.folds is not None:
         fold_rows = []
@@ -75,7 +76,7 @@ def sweep_report(result: SweepResult, *, top: int | None = 20, source: str | Non
             c = s.crossfold
             for i, fold in enumerate(c.coords["fold"].values.tolist()):
                 fold_rows.append((_name(s.label), fold, int(c["n"].values[i]),
-                                  f"{float(c['threshold'].values[i]):.6g}",
+                                  format_threshold(c['threshold'].values[i]),
                                   float(c["mcc"].values[i])))
         tables.append(Table(
             "Cross-fold choice",

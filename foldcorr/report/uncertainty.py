@@ -10,7 +10,7 @@ per-class interval table, a fold statistics table, and the JSON keys
 
 from __future__ import annotations
 
-from foldcorr.report.tables import Column, Table, format_value
+from foldcorr.report.tables import Column, Table, format_interval, format_value
 
 __all__ = ["KEY", "percent", "summary_notes", "fold_columns", "tables", "json"]
 
@@ -33,14 +33,14 @@ def _pair(low, high) -> list:
 
 
 def _span(low, high) -> str:
-    return f"{format_value(float(low), 'metric')} to {format_value(float(high), 'metric')}"
+    return format_interval(float(low), float(high))
 
 
 def summary_notes(ev) -> dict:
     """The pooled R_K interval, as text beside R_K."""
     u = ev.extras[KEY]
     r = u.rk
-    how = f"{u.method}, {u.n_resamples} resamples"
+    how = f"{u.method}, {u.n_resamples} resamples, seed {u.seed}"
     if getattr(u, "n_clusters", None) is not None:
         how += f", {u.n_clusters} clusters, design effect {u.design_effect:.2f}"
     return {"rk": f"{percent(u.level)} CI {_span(r.low, r.high)} ({how})"}
@@ -76,7 +76,8 @@ def tables(ev, top) -> list:
                   Column(f"MCC {lvl} CI", "label"), Column("drag"),
                   Column(f"drag {lvl} CI", "label")), rows,
                  "" if len(shown) == len(order) else
-                 f"{len(order) - len(shown)} more classes not shown (use --top all)")]
+                 f"{len(order) - len(shown)} more classes not shown here; every one is in the JSON "
+                 "and HTML reports")]
     f = u.folds
     if f is None:
         return out
@@ -105,7 +106,7 @@ def _py(value):
 
 
 def json(ev, doc) -> None:
-    """Add the interval keys to a ``foldcorr.score/1`` document."""
+    """Add the interval keys to a ``foldcorr.score/2`` document."""
     u = ev.extras[KEY]
     doc["pooled"]["rk_ci"] = _pair(u.rk.low, u.rk.high)
     for entry in doc.get("folds") or []:
@@ -125,6 +126,7 @@ def json(ev, doc) -> None:
             "test_train_ratio": None if f is None else f.test_train_ratio,
             "pooled_rk": None if f is None else f.pooled,
             "averaged_rk": None if f is None else f.mean,
+            "pooled_minus_averaged": None if f is None else f.gap,
         })
     doc["ci"] = {"level": u.level, "method": u.method, "resamples": u.n_resamples,
                  "seed": u.seed, "clusters": getattr(u, "n_clusters", None),
