@@ -36,7 +36,7 @@ _EXPORTS = {
     "foldcorr.analysis.compare": ["compare_models", "Comparison"],
     "foldcorr.analysis.many": ["compare_many", "ManyComparison", "holm"],
     "foldcorr.tensor.cells": ["cluster_tally", "ClusterCells"],
-    "foldcorr.analysis.crossval": ["cross_tally", "rk_score", "rk_scorer"],
+    "foldcorr.analysis.crossval": ["cross_tally", "compare_estimators", "rk_score", "rk_scorer"],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
     "foldcorr.pipeline": ["score", "evaluate_with", "replay", "load_evaluation", "ScoreOptions"],
     "foldcorr.figures": ["Figure", "FIGURES"],
