@@ -23,7 +23,7 @@ Examples
 from __future__ import annotations
 
 from collections.abc import Mapping
-from typing import Any
+from typing import TYPE_CHECKING, Any, Literal, overload
 
 import numpy as np
 import xarray as xr
@@ -37,11 +37,30 @@ from foldcorr.errors import InvalidInputError, OptionError
 from foldcorr.metrics import rk
 from foldcorr.tensor import tally
 
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
+
 __all__ = ["compare_estimators", "cross_tally", "rk_score", "rk_scorer"]
 
 
-def cross_tally(estimator, X, y, *, cv=5, groups=None, classes=None, n_jobs=None,
-                params=None, return_predictions: bool = False):
+@overload
+def cross_tally(estimator: Any, X: Any, y: ArrayLike, *, cv: Any = ...,
+                groups: ArrayLike | None = ..., classes: ArrayLike | None = ...,
+                n_jobs: int | None = ..., params: dict[str, Any] | None = ...,
+                return_predictions: Literal[False] = ...) -> xr.DataArray: ...
+
+
+@overload
+def cross_tally(estimator: Any, X: Any, y: ArrayLike, *, cv: Any = ...,
+                groups: ArrayLike | None = ..., classes: ArrayLike | None = ...,
+                n_jobs: int | None = ..., params: dict[str, Any] | None = ...,
+                return_predictions: Literal[True]) -> tuple[xr.DataArray, np.ndarray]: ...
+
+
+def cross_tally(estimator: Any, X: Any, y: ArrayLike, *, cv: Any = 5,
+                groups: ArrayLike | None = None, classes: ArrayLike | None = None,
+                n_jobs: int | None = None, params: dict[str, Any] | None = None,
+                return_predictions: bool = False) -> xr.DataArray | tuple[xr.DataArray, np.ndarray]:
     """Run cross-validation and tally every held-out prediction into a fold tensor.
 
     Parameters
@@ -106,8 +125,9 @@ def cross_tally(estimator, X, y, *, cv=5, groups=None, classes=None, n_jobs=None
     return (t, np.asarray(pred)) if return_predictions else t
 
 
-def compare_estimators(estimators: Mapping[str, Any], X: Any, y: Any, *, cv: Any = 5,
-                       groups: Any = None, cluster: Any = None, n_jobs: int | None = None,
+def compare_estimators(estimators: Mapping[str, Any], X: Any, y: ArrayLike, *, cv: Any = 5,
+                       groups: ArrayLike | None = None, cluster: ArrayLike | None = None,
+                       n_jobs: int | None = None,
                        params: dict[str, Any] | None = None, level: float = 0.95,
                        n_resamples: int = 2000, n_permutations: int | None = None,
                        seed: int | np.random.Generator | None = None,
@@ -202,7 +222,8 @@ def _held_out_folds(cv, X, y, groups, classifier: bool):
     return splitter, splits, fold
 
 
-def rk_score(y_true, y_pred, *, sample_weight=None) -> float:
+def rk_score(y_true: ArrayLike, y_pred: ArrayLike, *,
+             sample_weight: ArrayLike | None = None) -> float:
     """R_K of one pair of label arrays, as a plain float (the score behind :data:`rk_scorer`).
 
     ``sample_weight`` weights each sample's count, as in scikit-learn's metrics.
