@@ -7,6 +7,8 @@ until a function that needs them is used.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from foldcorr._lazy import lazy_exports
 
 from foldcorr._version import __version__
@@ -36,7 +38,7 @@ _EXPORTS = {
     "foldcorr.analysis.compare": ["compare_models", "Comparison"],
     "foldcorr.analysis.many": ["compare_many", "ManyComparison", "holm"],
     "foldcorr.tensor.cells": ["cluster_tally", "ClusterCells"],
-    "foldcorr.analysis.crossval": ["cross_tally", "rk_score", "rk_scorer"],
+    "foldcorr.analysis.crossval": ["cross_tally", "compare_estimators", "rk_score", "rk_scorer"],
     "foldcorr.evaluation": ["Evaluation", "evaluate"],
     "foldcorr.pipeline": ["score", "evaluate_with", "replay", "load_evaluation", "ScoreOptions"],
     "foldcorr.figures": ["Figure", "FIGURES"],
@@ -58,6 +60,51 @@ _EXPORTS = {
         "MissingDependencyError", "EngineError", "UndefinedMetricWarning",
     ],
 }
+if TYPE_CHECKING:  # the names for type checkers; at run time they load on first use
+    from foldcorr.tensor import (
+        tally, tally_frame, confusion_tensor, validate_tensor, pool, ACTUAL, PREDICTED, FOLD,
+        CLASS, LABEL, joint_tally, model_tensors, multilabel_tally, indicators_from_sets,
+    )
+    from foldcorr.metrics import (
+        rk, mcc, ovr_mcc, accuracy, balanced_accuracy, cohen_kappa, recall, precision, f1,
+        macro_f1, macro_mcc, support, predicted_count, top_confusion,
+    )
+    from foldcorr.decomposition import decompose, mismatch_shares
+    from foldcorr.analysis.gains import (
+        pair_gains, class_gains, leave_class_out, costliest_confusions,
+    )
+    from foldcorr.analysis.repair import fold_stability, repair_analysis, RepairAnalysis
+    from foldcorr.analysis.resampling import resample_cells
+    from foldcorr.analysis.uncertainty import (
+        bootstrap, bootstrap_difference, summarise_uncertainty, drag, BootstrapResult, Uncertainty,
+    )
+    from foldcorr.analysis.folds import fold_statistics, FoldStatistics
+    from foldcorr.analysis.compare import compare_models, Comparison
+    from foldcorr.analysis.many import compare_many, ManyComparison, holm
+    from foldcorr.tensor.cells import cluster_tally, ClusterCells
+    from foldcorr.analysis.crossval import cross_tally, compare_estimators, rk_score, rk_scorer
+    from foldcorr.evaluation import Evaluation, evaluate
+    from foldcorr.pipeline import score, evaluate_with, replay, load_evaluation, ScoreOptions
+    from foldcorr.figures import Figure, FIGURES
+    from foldcorr.tensor.samples import Samples
+    from foldcorr.gate import GateRules, GateResult, check_gate
+    from foldcorr.sources.saved import SavedEvaluation, save_evaluation, load_saved
+    from foldcorr.report import render
+    from foldcorr.report.plots import (
+        loss_budget_figure, confusion_figure, fold_figure, figure_svg, save_plots,
+    )
+    from foldcorr.sources.dispatch import load, load_tensor, tally_dataset
+    from foldcorr.sources.stream import stream_tensor, StreamResult
+    from foldcorr.sources.where import parse_where
+    from foldcorr.analysis.thresholds import sweep, threshold_curve, SweepResult, LabelSweep
+    from foldcorr.analysis.shift import (
+        shift_prevalence, target_prevalence, shifted_figures, ShiftResult,
+    )
+    from foldcorr.errors import (
+        FoldcorrError, InvalidTensorError, InvalidInputError, OptionError, MissingDependencyError,
+        EngineError, UndefinedMetricWarning,
+    )
+
 _WHERE, __getattr__, __dir__ = lazy_exports("foldcorr", _EXPORTS, globals())
 
 __all__ = ["__version__", *_WHERE]

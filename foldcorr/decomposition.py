@@ -37,7 +37,8 @@ def _unit_roots(spread: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return np.sqrt(spread / np.where(positive, total, 1.0)), positive[..., 0]
 
 
-def mismatch_shares(actual, predicted, total, shortfall) -> np.ndarray:
+def mismatch_shares(actual: np.ndarray, predicted: np.ndarray, total: np.ndarray,
+                    shortfall: np.ndarray) -> np.ndarray:
     r"""Each class's exact share of the marginal mismatch, from margins.
 
     With :math:`a_k = p_k(s - p_k)`, :math:`b_k = t_k(s - t_k)`,
@@ -86,7 +87,7 @@ def mismatch_shares(actual, predicted, total, shortfall) -> np.ndarray:
     return np.where((has_u & has_v)[..., None], split, fallback)
 
 
-def decompose(t, *, undefined: str = "zero") -> xr.Dataset:
+def decompose(t: xr.DataArray, *, undefined: str = "zero") -> xr.Dataset:
     r"""Exact additive decomposition of R_K and of 1 - R_K into per-class terms.
 
     Parameters

@@ -444,7 +444,7 @@ def compute_figures(figures, t, *, undefined: str = "zero") -> xr.Dataset:
     return xr.Dataset(out)
 
 
-def evaluate(t, *, undefined: str = "zero") -> Evaluation:
+def evaluate(t: xr.DataArray, *, undefined: str = "zero") -> Evaluation:
     r"""Compute every figure of a confusion tensor, multiclass or multilabel.
 
     Parameters

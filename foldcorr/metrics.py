@@ -208,7 +208,7 @@ def _warn_undefined(sums: Sums, bad: np.ndarray, what: str, undefined: str, *, p
     )
 
 
-def rk(t, *, undefined: str = "zero") -> xr.DataArray:
+def rk(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     r"""Gorodkin's multiclass correlation R_K (the MCC when K = 2).
 
     Parameters
@@ -260,7 +260,7 @@ def rk(t, *, undefined: str = "zero") -> xr.DataArray:
     return _wrap(s, out, "rk")
 
 
-def mcc(t, *, undefined: str = "zero") -> xr.DataArray:
+def mcc(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     """Matthews correlation coefficient; an alias of :func:`rk` for 2 x 2 tensors.
 
     Examples
@@ -272,7 +272,7 @@ def mcc(t, *, undefined: str = "zero") -> xr.DataArray:
     return rk(t, undefined=undefined).rename("mcc")
 
 
-def ovr_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
+def ovr_mcc(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     r"""One-vs-rest MCC of every class.
 
     Parameters
@@ -309,7 +309,7 @@ def ovr_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
     return _wrap(s, out, "mcc", per_class=True)
 
 
-def accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
+def accuracy(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     """Fraction of samples on the diagonal.
 
     Examples
@@ -322,7 +322,7 @@ def accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
     return _wrap(s, _ratio(s.trace, s.total, s, "accuracy", undefined), "accuracy")
 
 
-def recall(t, *, undefined: str = "zero") -> xr.DataArray:
+def recall(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     """Per-class recall C_kk / t_k (undefined where a class has no support).
 
     Examples
@@ -336,7 +336,7 @@ def recall(t, *, undefined: str = "zero") -> xr.DataArray:
     return _wrap(s, out, "recall", per_class=True)
 
 
-def precision(t, *, undefined: str = "zero") -> xr.DataArray:
+def precision(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     """Per-class precision C_kk / p_k (undefined where a class is never predicted).
 
     Examples
@@ -350,7 +350,7 @@ def precision(t, *, undefined: str = "zero") -> xr.DataArray:
     return _wrap(s, out, "precision", per_class=True)
 
 
-def f1(t, *, undefined: str = "zero") -> xr.DataArray:
+def f1(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     """Per-class F1 = 2 C_kk / (t_k + p_k).
 
     Examples
@@ -369,7 +369,7 @@ def _present_mean(values: np.ndarray, present: np.ndarray, sums, what, undefined
     return _ratio(num, present.sum(axis=-1), sums, what, undefined)
 
 
-def balanced_accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
+def balanced_accuracy(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     """Mean recall over the classes that occur in truth.
 
     Examples
@@ -385,7 +385,7 @@ def balanced_accuracy(t, *, undefined: str = "zero") -> xr.DataArray:
     return _wrap(s, out, "balanced_accuracy")
 
 
-def macro_f1(t, *, undefined: str = "zero") -> xr.DataArray:
+def macro_f1(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     """Mean F1 over the classes that occur in truth or predictions.
 
     Examples
@@ -401,7 +401,7 @@ def macro_f1(t, *, undefined: str = "zero") -> xr.DataArray:
     return _wrap(s, _present_mean(per_class, present, s, "macro F1", undefined), "macro_f1")
 
 
-def macro_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
+def macro_mcc(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     """Mean one-vs-rest MCC over the classes that occur in truth or predictions.
 
     Examples
@@ -417,7 +417,7 @@ def macro_mcc(t, *, undefined: str = "zero") -> xr.DataArray:
     return _wrap(s, _present_mean(per_class, present, s, "macro MCC", undefined), "macro_mcc")
 
 
-def cohen_kappa(t, *, undefined: str = "zero") -> xr.DataArray:
+def cohen_kappa(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     r"""Cohen's kappa, :math:`(c s - \sum t_k p_k) / (s^2 - \sum t_k p_k)`.
 
     Examples
@@ -463,7 +463,7 @@ def count_total(t) -> xr.DataArray:
     return _count_sum(validate_tensor(t), (ACTUAL, PREDICTED)).rename("n")
 
 
-def support(t) -> xr.DataArray:
+def support(t: xr.DataArray) -> xr.DataArray:
     """Per-class count of actual samples (row sums), dims ``(..., "class")``.
 
     Examples
@@ -477,7 +477,7 @@ def support(t) -> xr.DataArray:
     return out.drop_attrs() if hasattr(out, "drop_attrs") else out
 
 
-def predicted_count(t) -> xr.DataArray:
+def predicted_count(t: xr.DataArray) -> xr.DataArray:
     """Per-class count of predictions (column sums), dims ``(..., "class")``.
 
     Examples
@@ -491,7 +491,7 @@ def predicted_count(t) -> xr.DataArray:
     return out.drop_attrs() if hasattr(out, "drop_attrs") else out
 
 
-def top_confusion(t) -> xr.Dataset:
+def top_confusion(t: xr.DataArray) -> xr.Dataset:
     """The most frequent wrong prediction of each actual class.
 
     Returns

@@ -100,3 +100,76 @@ def test_cross_tally_refuses_splits_that_do_not_test_every_sample_once():
     X, y = load_iris(return_X_y=True)
     with pytest.raises(ValueError, match="`cv` must split"):
         fc.cross_tally(KNeighborsClassifier(), X, y, cv=TimeSeriesSplit(3))
+
+
+def _wine_models():
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    return {"logistic": make_pipeline(StandardScaler(), LogisticRegression(max_iter=500)),
+            "tree": DecisionTreeClassifier(random_state=0),
+            "knn": KNeighborsClassifier()}
+
+
+def test_compare_estimators_rk_equals_matthews_corrcoef_of_cross_val_predict():
+    # reference: sklearn.metrics.matthews_corrcoef of sklearn's cross_val_predict output,
+    # pooled and per fold, on the same splits
+    X, y = load_wine(return_X_y=True)
+    cv = KFold(4, shuffle=True, random_state=2)
+    models = _wine_models()
+    res = fc.compare_estimators(models, X, y, cv=cv, n_resamples=200, seed=0)
+    preds = {m: cross_val_predict(e, X, y, cv=cv) for m, e in models.items()}
+    mcc = {m: matthews_corrcoef(y, p) for m, p in preds.items()}
+    ranked = res.ranking["model"].values.tolist()
+    assert ranked == sorted(mcc, key=lambda m: -mcc[m]) and res.best == ranked[0]
+    for m in models:
+        assert float(res.ranking["rk"].sel(model=m)) == pytest.approx(mcc[m], abs=1e-12)
+        assert float(res.ranking["gap"].sel(model=m)) == pytest.approx(
+            mcc[res.best] - mcc[m], abs=1e-12)
+        per_fold = [matthews_corrcoef(y[test], preds[m][test]) for _, test in cv.split(X)]
+        np.testing.assert_allclose(res.per_fold.sel(model=m).values, per_fold, atol=1e-12)
+
+
+def test_compare_estimators_with_an_int_cv_uses_stratified_folds():
+    # reference: cross_val_predict with the same int cv (StratifiedKFold for classifiers)
+    X, y = load_iris(return_X_y=True)
+    models = {"knn": KNeighborsClassifier(),
+              "shallow": DecisionTreeClassifier(max_depth=2, random_state=0)}
+    res = fc.compare_estimators(models, X, y, cv=5, n_resamples=200, seed=0)
+    for m, e in models.items():
+        assert float(res.ranking["rk"].sel(model=m)) == pytest.approx(
+            matthews_corrcoef(y, cross_val_predict(e, X, y, cv=5)), abs=1e-12)
+    assert res.per_fold.sizes["fold"] == 5 and res.n == 150
+
+
+def test_compare_estimators_fits_every_model_on_the_same_splits():
+    # identity: two copies of one deterministic estimator on the same splits predict the same
+    # labels, so their gap is exactly 0; an unseeded shuffled KFold redrawn per model would not
+    X, y = load_wine(return_X_y=True)
+    est = DecisionTreeClassifier(random_state=0)
+    res = fc.compare_estimators({"a": est, "b": est}, X, y, cv=KFold(5, shuffle=True),
+                                n_resamples=200, seed=0)
+    assert float(res.ranking["gap"].sel(model=res.tied[-1])) == 0.0
+    assert res.tied == ("a", "b")
+
+
+def test_compare_estimators_with_groups_and_clusters():
+    X, y = load_iris(return_X_y=True)
+    groups = np.arange(len(y)) % 10
+    res = fc.compare_estimators({"knn": KNeighborsClassifier(),
+                                 "shallow": DecisionTreeClassifier(max_depth=2,
+                                                                   random_state=0)},
+                                X, y, cv=GroupKFold(5), groups=groups, cluster=groups,
+                                n_resamples=200, seed=0)
+    assert res.n_clusters == 10 and res.per_fold.sizes["fold"] == 5
+
+
+def test_compare_estimators_refuses_fewer_than_two_estimators():
+    X, y = load_iris(return_X_y=True)
+    with pytest.raises(fc.InvalidInputError, match="`estimators` must map at least two"):
+        fc.compare_estimators({"knn": KNeighborsClassifier()}, X, y)
+    with pytest.raises(fc.OptionError, match="`cv` must split"):
+        from sklearn.model_selection import TimeSeriesSplit
+
+        fc.compare_estimators(_wine_models(), X, y, cv=TimeSeriesSplit(3))

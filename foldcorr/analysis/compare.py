@@ -222,9 +222,11 @@ class PairStrata:
                 for t in self.tensors(self.strata.counts[None].astype(np.int64))]
 
 
-def compare_models(joint, *, n_resamples: int = 2000, level: float = 0.95, seed=DEFAULT_SEED,
-                   n_permutations: int | None = None, undefined: str = "zero",
-                   keep_draws: bool = False, cluster=None) -> Comparison:
+def compare_models(joint: xr.DataArray, *, n_resamples: int = 2000, level: float = 0.95,
+                   seed: int | np.random.Generator | None = DEFAULT_SEED,
+                   n_permutations: int | None = None,
+                   undefined: str = "zero", keep_draws: bool = False,
+                   cluster: ClusterCells | None = None) -> Comparison:
     r"""Paired comparison of two models' R_K on the same samples.
 
     Parameters

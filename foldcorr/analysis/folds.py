@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 import numbers
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 import xarray as xr
@@ -18,6 +19,9 @@ from foldcorr.analysis.resampling import check_level
 from foldcorr.errors import InvalidTensorError, OptionError
 from foldcorr.metrics import rk
 from foldcorr.tensor import FOLD, validate_tensor
+
+if TYPE_CHECKING:
+    from collections.abc import Callable
 
 __all__ = ["FoldStatistics", "fold_statistics", "FOLD_TARGET"]
 
@@ -104,7 +108,8 @@ class FoldStatistics:
                 f"[{low:.4f}, {high:.4f}]")
 
 
-def fold_statistics(t, statistic=rk, *, level: float = 0.95,
+def fold_statistics(t: xr.DataArray, statistic: Callable[..., xr.DataArray] = rk, *,
+                    level: float = 0.95,
                     test_train_ratio: float | None = None) -> FoldStatistics:
     r"""Mean, spread and a Nadeau-Bengio corrected t interval of per-fold R_K.
 

@@ -123,7 +123,7 @@ def _base(m: _Margins, undefined: str):
 # the analyses
 
 
-def pair_gains(t, *, undefined: str = "zero") -> xr.DataArray:
+def pair_gains(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     r"""Gain in R_K from moving each confusion cell's counts onto the diagonal.
 
     Parameters
@@ -200,7 +200,7 @@ def _undefined_mask(dp, dt):
     return (np.maximum(dp, 0) * np.maximum(dt, 0)) == 0
 
 
-def class_gains(t, *, undefined: str = "zero") -> xr.Dataset:
+def class_gains(t: xr.DataArray, *, undefined: str = "zero") -> xr.Dataset:
     r"""Gain in R_K from fixing a class's false negatives, false positives, or both.
 
     Parameters
@@ -286,7 +286,7 @@ def class_gains(t, *, undefined: str = "zero") -> xr.Dataset:
     return xr.Dataset(out)
 
 
-def leave_class_out(t, *, undefined: str = "zero") -> xr.DataArray:
+def leave_class_out(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     r"""R_K of the tensor without class k's row and column, minus R_K.
 
     Parameters
@@ -343,7 +343,8 @@ def leave_class_out(t, *, undefined: str = "zero") -> xr.DataArray:
     return m.wrap(after - before[..., None], "leave_out_delta", (CLASS,))
 
 
-def costliest_confusions(t, *, top: int | None = 20, undefined: str = "zero") -> xr.Dataset:
+def costliest_confusions(t: xr.DataArray, *, top: int | None = 20,
+                         undefined: str = "zero") -> xr.Dataset:
     """The confusion cells whose repair would gain the most R_K, ranked.
 
     Parameters

@@ -17,6 +17,7 @@ import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from functools import partial
+from typing import TYPE_CHECKING
 
 import numpy as np
 import xarray as xr
@@ -29,13 +30,16 @@ from foldcorr.errors import DEFAULT_SEED, InvalidInputError, check_choice
 from foldcorr.metrics import ovr_mcc, rk
 from foldcorr.tensor import CLASS, FOLD, cluster_tally, shared_classes
 
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
+
 __all__ = ["ManyComparison", "compare_many", "holm"]
 
 #: Name of the dim that indexes models.
 MODEL = "model"
 
 
-def holm(p_values, *, family: int | None = None) -> np.ndarray:
+def holm(p_values: ArrayLike, *, family: int | None = None) -> np.ndarray:
     r"""Holm's step-down adjustment of p-values (family-wise error rate).
 
     Parameters
@@ -180,9 +184,11 @@ class ManyComparison:
         return html_fragment(self)
 
 
-def compare_many(truth, predictions: Mapping, *, folds=None, cluster=None,
+def compare_many(truth: ArrayLike, predictions: Mapping[str, ArrayLike], *,
+                 folds: ArrayLike | None = None, cluster: ArrayLike | None = None,
                  level: float = 0.95, n_resamples: int = 2000,
-                 n_permutations: int | None = None, seed=DEFAULT_SEED,
+                 n_permutations: int | None = None,
+                 seed: int | np.random.Generator | None = DEFAULT_SEED,
                  undefined: str = "zero") -> ManyComparison:
     r"""Rank many models by R_K and compare each with the best, on the same samples.
 

@@ -33,7 +33,7 @@ __all__ = ["fold_stability", "repair_analysis", "RepairAnalysis"]
 _DRAG_DECIMALS = 12
 
 
-def fold_stability(t, *, top: int = 5, dim: str = FOLD) -> xr.Dataset:
+def fold_stability(t: xr.DataArray, *, top: int = 5, dim: str = FOLD) -> xr.Dataset:
     """How steady each class's drag is from fold to fold.
 
     Parameters
@@ -193,7 +193,7 @@ class RepairAnalysis:
                 f"largest repair gain {float(best.max()):.4f})")
 
 
-def repair_analysis(t, *, top: int | None = 20, stability_top: int = 5,
+def repair_analysis(t: xr.DataArray, *, top: int | None = 20, stability_top: int = 5,
                     undefined: str = "zero") -> RepairAnalysis:
     """Every repair figure of a confusion tensor, pooled over folds.
 

@@ -253,7 +253,8 @@ class Strata:
                             dims=(RESAMPLE, *t.dims), coords=t.coords, name=t.name)
 
 
-def resample_cells(t, n_resamples: int, *, seed=None) -> xr.DataArray:
+def resample_cells(t: xr.DataArray, n_resamples: int, *,
+                   seed: int | np.random.Generator | None = None) -> xr.DataArray:
     r"""Bootstrap resamples of a confusion tensor, drawn cell by cell.
 
     Parameters

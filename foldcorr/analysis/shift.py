@@ -14,6 +14,7 @@ import math
 import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import xarray as xr
@@ -22,13 +23,17 @@ from foldcorr import metrics as m
 from foldcorr.errors import InvalidInputError, UndefinedMetricWarning, check_choice
 from foldcorr.tensor import ACTUAL, CLASS, FOLD, PREDICTED, validate_tensor
 
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
+
 __all__ = ["shift_prevalence", "target_prevalence", "ShiftResult", "shifted_figures"]
 
 #: Tolerance on the sum of a target prevalence.
 SUM_TOLERANCE = 1e-6
 
 
-def target_prevalence(t, prevalence) -> xr.DataArray:
+def target_prevalence(t: xr.DataArray,
+                      prevalence: str | Mapping[Any, float] | ArrayLike) -> xr.DataArray:
     """Normalise a target prevalence against the classes of a tensor.
 
     Parameters
@@ -123,7 +128,8 @@ def _share(name, value) -> float:
     return v
 
 
-def shift_prevalence(t, prevalence) -> xr.DataArray:
+def shift_prevalence(t: xr.DataArray,
+                     prevalence: str | Mapping[Any, float] | ArrayLike) -> xr.DataArray:
     r"""Reweight the rows of a confusion tensor to a target class prevalence.
 
     Parameters
@@ -241,7 +247,8 @@ class ShiftResult:
         return float(self.pooled["rk"])
 
 
-def shifted_figures(t, prevalence, *, undefined: str = "zero") -> ShiftResult:
+def shifted_figures(t: xr.DataArray, prevalence: str | Mapping[Any, float] | ArrayLike, *,
+                    undefined: str = "zero") -> ShiftResult:
     """Recompute the pooled and per-class figures at a target prevalence.
 
     Parameters

@@ -17,6 +17,7 @@ import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -29,6 +30,9 @@ from foldcorr.analysis.score_counts import (
     fp_and_mcc, mcc_counts,
 )
 from foldcorr.tensor import ACTUAL, CLASS, COUNT, PREDICTED
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = ["threshold_curve", "sweep", "LabelSweep", "SweepResult", "THRESHOLD", "CURVE_POINTS"]
 
@@ -50,7 +54,7 @@ def _curve_tensor(thresholds, tp, fp, total_pos, n) -> xr.DataArray:
                         name=COUNT)
 
 
-def threshold_curve(truth, scores, *, undefined: str = "zero") -> xr.Dataset:
+def threshold_curve(truth: ArrayLike, scores: ArrayLike, *, undefined: str = "zero") -> xr.Dataset:
     r"""Confusion counts and figures at every distinct score threshold.
 
     Parameters
@@ -302,7 +306,8 @@ class SweepResult:
                 f"{len(self.warnings)} warnings)")
 
 
-def sweep(truth, scores, *, labels: Sequence | None = None, folds=None,
+def sweep(truth: ArrayLike, scores: ArrayLike, *, labels: Sequence | None = None,
+          folds: ArrayLike | None = None,
           at: float | None = None, undefined: str = "zero") -> SweepResult:
     r"""Sweep the threshold of a score for one or many labels, with a cross-fold choice.
 

@@ -15,6 +15,7 @@ from __future__ import annotations
 import warnings
 from dataclasses import dataclass, field
 from functools import partial
+from typing import TYPE_CHECKING
 
 import numpy as np
 import xarray as xr
@@ -32,6 +33,11 @@ from foldcorr.errors import InvalidTensorError, UndefinedMetricWarning, check_ch
 from foldcorr.decomposition import decompose
 from foldcorr.metrics import ovr_mcc, rk
 from foldcorr.tensor import ACTUAL, CLASS, FOLD, PREDICTED, validate_tensor
+
+if TYPE_CHECKING:
+    from collections.abc import Callable
+
+    from foldcorr.tensor import ClusterCells
 
 __all__ = [
     "BootstrapResult",
@@ -179,9 +185,11 @@ def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_dra
 # public bootstrap functions
 
 
-def bootstrap(t, statistic=rk, *, n_resamples: int = 2000, level: float = 0.95,
-              method: str = "percentile", seed=None, keep_draws: bool = False,
-              pool: bool = True, cluster=None) -> BootstrapResult:
+def bootstrap(t: xr.DataArray, statistic: Callable[..., xr.DataArray] = rk, *,
+              n_resamples: int = 2000, level: float = 0.95, method: str = "percentile",
+              seed: int | np.random.Generator | None = None, keep_draws: bool = False,
+              pool: bool = True,
+              cluster: ClusterCells | None = None) -> BootstrapResult:
     r"""Bootstrap interval of any statistic of a confusion tensor.
 
     Parameters
@@ -286,8 +294,10 @@ def bootstrap(t, statistic=rk, *, n_resamples: int = 2000, level: float = 0.95,
                            cluster=cluster)["x"]
 
 
-def bootstrap_difference(t_a, t_b, statistic=rk, *, n_resamples: int = 2000,
-                         level: float = 0.95, method: str = "percentile", seed=None,
+def bootstrap_difference(t_a: xr.DataArray, t_b: xr.DataArray,
+                         statistic: Callable[..., xr.DataArray] = rk, *,
+                         n_resamples: int = 2000, level: float = 0.95,
+                         method: str = "percentile", seed: int | np.random.Generator | None = None,
                          keep_draws: bool = False, pool: bool = True) -> BootstrapResult:
     r"""Unpaired bootstrap interval of ``statistic(t_b) - statistic(t_a)``.
 
@@ -368,7 +378,7 @@ def bootstrap_difference(t_a, t_b, statistic=rk, *, n_resamples: int = 2000,
     )
 
 
-def drag(t, *, undefined: str = "zero") -> xr.DataArray:
+def drag(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:
     r"""Each class's drag :math:`w_k (1 - \mathrm{MCC}_k)`, as a statistic for :func:`bootstrap`.
 
     Parameters
@@ -444,10 +454,12 @@ class Uncertainty:
                 f"{float(rk.estimate):.4f} [{float(rk.low):.4f}, {float(rk.high):.4f}]")
 
 
-def summarise_uncertainty(t, *, level: float = 0.95, n_resamples: int = 2000,
-                          method: str = "percentile", seed=None,
+def summarise_uncertainty(t: xr.DataArray, *, level: float = 0.95, n_resamples: int = 2000,
+                          method: str = "percentile",
+                          seed: int | np.random.Generator | None = None,
                           undefined: str = "zero",
-                          test_train_ratio: float | None = None, cluster=None) -> Uncertainty:
+                          test_train_ratio: float | None = None,
+                          cluster: ClusterCells | None = None) -> Uncertainty:
     """Intervals for pooled R_K, per-fold R_K, per-class MCC and drag, on shared resamples.
 
     Parameters

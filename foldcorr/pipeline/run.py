@@ -12,9 +12,19 @@ from __future__ import annotations
 from collections.abc import Mapping
 from dataclasses import fields
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 from foldcorr.errors import OptionError
 from foldcorr.pipeline.options import ScoreOptions, given_text, option_namer
+
+if TYPE_CHECKING:
+    import os
+
+    import xarray as xr
+
+    from foldcorr.evaluation import Evaluation
+    from foldcorr.tensor import ClusterCells
+    from foldcorr.tensor.samples import Samples
 
 __all__ = ["TABLE_OPTIONS", "MULTILABEL_OPTIONS", "KINDS", "score", "evaluate_with",
            "load_source", "replay", "load_evaluation", "load_gate_inputs"]
@@ -98,7 +108,8 @@ KINDS = {
 }
 
 
-def evaluate_with(tensor, options: ScoreOptions | None = None, *, cluster=None):
+def evaluate_with(tensor: xr.DataArray, options: ScoreOptions | None = None, *,
+                  cluster: ClusterCells | None = None) -> Evaluation:
     """Evaluate a tensor in memory and run the analyses of ``options`` on it.
 
     Parameters
@@ -206,7 +217,8 @@ def _check_multilabel(table: dict, given: dict, name) -> None:
                           "scoring; multilabel tables are read whole, in this process")
 
 
-def score(source, *, names: Mapping | None = None, **options):
+def score(source: str | os.PathLike[str] | xr.DataArray, *,
+          names: Mapping[str, str] | None = None, **options: Any) -> Evaluation:
     """Load, tally, evaluate and analyse: what ``foldcorr score`` runs.
 
     Parameters
@@ -287,7 +299,8 @@ def _load_clustered(source, table: dict, name):
                                      if k in table and k != "weight"})
 
 
-def replay(path, *, names: Mapping | None = None, **overrides) -> tuple:
+def replay(path: str | os.PathLike[str], *, names: Mapping[str, str] | None = None,
+           **overrides: Any) -> tuple[Evaluation, ScoreOptions]:
     """Evaluate a saved evaluation again, through :func:`score`, with the options it was saved with.
 
     Parameters
@@ -331,8 +344,10 @@ def replay(path, *, names: Mapping | None = None, **overrides) -> tuple:
     return score(saved.tensor, **options.to_dict()), options
 
 
-def load_evaluation(path, *, undefined: str | None = None, id_column: str | None = None,
-                    check_table: bool = True, cluster: str | None = None, **table):
+def load_evaluation(path: str | os.PathLike[str], *, undefined: str | None = None,
+                    id_column: str | None = None, check_table: bool = True,
+                    cluster: str | None = None,
+                    **table: Any) -> tuple[Evaluation, Samples | None]:
     """Evaluation (no analyses) and per-sample records of a table or a saved evaluation.
 
     Parameters

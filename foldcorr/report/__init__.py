@@ -11,6 +11,7 @@ command line can list the formats cheaply.
 from __future__ import annotations
 
 import importlib
+from typing import Any
 
 from foldcorr.report.formats import DOCUMENTS, FORMATS, WRITERS
 
@@ -49,7 +50,8 @@ def document(result, *, top: int | None = 20, fmt: str | None = None, **context)
     return _load(DOCUMENTS[kind])(result, top=top, **context)
 
 
-def render(result, fmt: str = "text", *, top: int | None = 20, **context) -> str:
+def render(result: object, fmt: str = "text", *, top: int | None = 20,
+           **context: Any) -> str:
     """Render any result in one of :data:`FORMATS` as plain text (no colour).
 
     Examples

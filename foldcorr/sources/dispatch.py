@@ -10,6 +10,7 @@ streamed in this process, or on a Dask cluster).
 from __future__ import annotations
 
 import os
+from typing import TYPE_CHECKING, Any
 
 from foldcorr.errors import OptionError, check_choice
 from foldcorr.sources.formats import FORMATS, FileFormat
@@ -20,6 +21,15 @@ from foldcorr.sources.reading import BATCH_ROWS
 from foldcorr.sources.stream import StreamResult, stream_tensor
 from foldcorr.sources.tables import TableSpec
 from foldcorr.tensor import ACTUAL, PREDICTED
+
+if TYPE_CHECKING:
+    from collections.abc import Sequence
+
+    import pyarrow.compute as pc
+    import xarray as xr
+    from numpy.typing import ArrayLike
+
+    from foldcorr.sources.where import Where
 
 __all__ = ["load", "load_tensor", "tally_dataset", "counts_format"]
 
@@ -42,10 +52,13 @@ def counts_format(source, *, matrix: bool = False) -> FileFormat | None:
     return None if fmt is None or fmt.rows else fmt
 
 
-def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
-         weight: str | None = None, classes=None, where=None, matrix: bool = False,
-         engine: str = "local", scheduler=None, skip_bad_files: bool = False,
-         progress: bool | None = False, count: str | None = None, na_values=()):
+def load(source: Any, *, truth: str = ACTUAL, pred: str = PREDICTED,
+         fold: str | None = "auto",
+         weight: str | None = None, classes: ArrayLike | None = None,
+         where: str | Where | pc.Expression | None = None,
+         matrix: bool = False, engine: str = "local", scheduler: str | None = None,
+         skip_bad_files: bool = False, progress: bool | None = False,
+         count: str | None = None, na_values: Sequence[str] = ()) -> xr.DataArray:
     """Read any source into a confusion tensor.
 
     Prediction tables are streamed batch by batch (see
@@ -133,7 +146,7 @@ def load(source, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None
                          count=count, na_values=na_values).tensor
 
 
-def load_tensor(path, spec: TableSpec = TableSpec(), **options):
+def load_tensor(path: Any, spec: TableSpec = TableSpec(), **options: Any) -> xr.DataArray:
     """:func:`load` with the column roles given as a :class:`~foldcorr.sources.tables.TableSpec`.
 
     The name the command line uses; ``options`` are those of :func:`load`
@@ -152,11 +165,14 @@ def load_tensor(path, spec: TableSpec = TableSpec(), **options):
                 classes=spec.classes, **options)
 
 
-def tally_dataset(data, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
-                  weight: str | None = None, classes=None, where=None,
+def tally_dataset(data: Any, *, truth: str = ACTUAL, pred: str = PREDICTED,
+                  fold: str | None = "auto", weight: str | None = None,
+                  classes: ArrayLike | None = None,
+                  where: str | Where | pc.Expression | None = None,
                   skip_bad_files: bool = False, progress: bool | None = None,
-                  engine: str = "local", scheduler=None, batch_rows: int = BATCH_ROWS,
-                  count: str | None = None, na_values=()) -> StreamResult:
+                  engine: str = "local", scheduler: str | None = None,
+                  batch_rows: int = BATCH_ROWS,
+                  count: str | None = None, na_values: Sequence[str] = ()) -> StreamResult:
     """Tally a dataset on this machine (streaming) or on a Dask cluster.
 
     Parameters

@@ -32,6 +32,7 @@ import hashlib
 import json
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -43,6 +44,9 @@ from foldcorr._version import __version__
 from foldcorr.errors import InvalidInputError, OptionError
 from foldcorr.tensor.samples import Samples
 from foldcorr.tensor import ACTUAL, COUNT, FOLD, PREDICTED, validate_tensor
+
+if TYPE_CHECKING:
+    import os
 
 __all__ = [
     "SAVED_SCHEMA",
@@ -285,7 +289,8 @@ def label_codes(labels, classes, what: str) -> np.ndarray:
     return codes.astype(np.int32)
 
 
-def save_evaluation(path, tensor, *, samples: Samples | None = None, options: dict | None = None,
+def save_evaluation(path: str | os.PathLike[str], tensor: xr.DataArray, *,
+                    samples: Samples | None = None, options: dict | None = None,
                     provenance: dict | None = None) -> Path:
     """Write a confusion tensor (and optionally per-sample labels) to a NetCDF-4 file.
 
@@ -382,7 +387,7 @@ def _sample_vars(samples: Samples, t: xr.DataArray) -> dict:
     return out
 
 
-def load_saved(path) -> SavedEvaluation:
+def load_saved(path: str | os.PathLike[str]) -> SavedEvaluation:
     """Read a saved evaluation written by :func:`save_evaluation`.
 
     Parameters

@@ -23,6 +23,7 @@ import contextlib
 import sys
 from dataclasses import dataclass, field, replace
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -51,6 +52,13 @@ from foldcorr.tensor import (
 )
 from foldcorr.tensor.accumulator import BatchCheck, StreamTally
 from foldcorr.tensor.coding import arrow_kind, label_key
+
+if TYPE_CHECKING:
+    import os
+
+    from numpy.typing import ArrayLike
+
+    from foldcorr.sources.where import Where
 
 __all__ = ["StreamResult", "SkippedFiles", "FilePlan", "plan_files", "tally_files",
            "finish_tally", "raise_checks", "stream_tensor", "counted_plan"]
@@ -115,8 +123,9 @@ class SkippedFiles:
                      for name in self.files)
 
 
-def stream_tensor(path, *, truth: str = ACTUAL, pred: str = PREDICTED, fold: str | None = "auto",
-                  weight: str | None = None, classes=None, where=None,
+def stream_tensor(path: str | os.PathLike[str], *, truth: str = ACTUAL, pred: str = PREDICTED,
+                  fold: str | None = "auto", weight: str | None = None,
+                  classes: ArrayLike | None = None, where: str | Where | None = None,
                   skip_bad_files: bool = False, progress: bool | None = None,
                   batch_rows: int = BATCH_ROWS, count: str | None = None,
                   na_values=()) -> StreamResult:

@@ -13,6 +13,7 @@ specimen, recordings of one site); resampling them whole is the job of
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -22,6 +23,9 @@ from foldcorr.errors import InvalidInputError
 from foldcorr.tensor.counting import fixed_classes, sorted_codes
 from foldcorr.tensor.dims import ACTUAL, COUNT, FOLD, PREDICTED, py_value
 from foldcorr.tensor.joint import JOINT_DIMS
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = ["ClusterCells", "cluster_tally", "shared_classes"]
 
@@ -94,7 +98,9 @@ class ClusterCells:
                             name=COUNT)
 
 
-def cluster_tally(truth, *predictions, cluster, folds=None, classes=None) -> ClusterCells:
+def cluster_tally(truth: ArrayLike, *predictions: ArrayLike, cluster: ArrayLike,
+                  folds: ArrayLike | None = None,
+                  classes: ArrayLike | None = None) -> ClusterCells:
     """Count samples into nonzero cells by cluster (and fold).
 
     Parameters

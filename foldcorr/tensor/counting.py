@@ -10,6 +10,7 @@ so both word them the same way. Nothing here computes a metric.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -19,6 +20,9 @@ from foldcorr._version import __version__
 from foldcorr.errors import InvalidInputError
 from foldcorr.tensor.backing import DENSE_CELL_LIMIT, check_dense_size, count_sparse
 from foldcorr.tensor.dims import ACTUAL, COUNT, FOLD, PREDICTED, py_value, validate_tensor
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = [
     "tally",
@@ -36,7 +40,9 @@ __all__ = [
 _DIRECT_MAX = 1 << 16
 
 
-def tally(truth, pred, *, folds=None, weights=None, classes=None) -> xr.DataArray:
+def tally(truth: ArrayLike, pred: ArrayLike, *, folds: ArrayLike | None = None,
+          weights: ArrayLike | None = None,
+          classes: ArrayLike | None = None) -> xr.DataArray:
     """Count (actual, predicted) pairs into a confusion tensor.
 
     Parameters
@@ -89,7 +95,7 @@ def tally_frame(
     pred: str = PREDICTED,
     by: str | Sequence[str] | Mapping[str, str] | None = None,
     weight: str | None = None,
-    classes=None,
+    classes: ArrayLike | None = None,
 ) -> xr.DataArray:
     """Count a prediction table into a confusion tensor.
 

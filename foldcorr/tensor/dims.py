@@ -11,12 +11,16 @@ metric.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import xarray as xr
 
 from foldcorr.errors import InvalidTensorError
 from foldcorr.tensor.backing import is_sparse, sum_cells
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = [
     "ACTUAL",
@@ -51,7 +55,8 @@ def class_dims() -> tuple[str, str]:
 
 
 def confusion_tensor(
-    counts, classes, *, leading: Mapping[str, Sequence] | None = None, attrs=None
+    counts: ArrayLike, classes: ArrayLike, *, leading: Mapping[str, Sequence] | None = None,
+    attrs: Mapping[str, Any] | None = None
 ) -> xr.DataArray:
     """Wrap a numeric array of counts as a labelled confusion tensor.
 
@@ -88,7 +93,7 @@ def confusion_tensor(
     return validate_tensor(t)
 
 
-def validate_tensor(t) -> xr.DataArray:
+def validate_tensor(t: xr.DataArray) -> xr.DataArray:
     """Check a confusion tensor and return it in normal form.
 
     Normal form: dims ``(..., "actual", "predicted")`` in that order, the same

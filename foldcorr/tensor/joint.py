@@ -8,12 +8,19 @@ margin of it. Nothing here computes a metric.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 import xarray as xr
 
 from foldcorr.errors import InvalidTensorError
 from foldcorr.tensor.counting import tally_columns
 from foldcorr.tensor.dims import ACTUAL, COUNT, FOLD, PREDICTED, validate_tensor
+
+if TYPE_CHECKING:
+    from collections.abc import Sequence
+
+    from numpy.typing import ArrayLike
 
 __all__ = [
     "PREDICTED_A",
@@ -32,8 +39,9 @@ PREDICTED_B = "predicted_b"
 JOINT_DIMS = (ACTUAL, PREDICTED_A, PREDICTED_B)
 
 
-def joint_tally(truth, pred_a, pred_b, *, folds=None, classes=None,
-                names=("truth", "pred_a", "pred_b")) -> xr.DataArray:
+def joint_tally(truth: ArrayLike, pred_a: ArrayLike, pred_b: ArrayLike, *,
+                folds: ArrayLike | None = None, classes: ArrayLike | None = None,
+                names: Sequence[str] = ("truth", "pred_a", "pred_b")) -> xr.DataArray:
     """Count (actual, prediction of A, prediction of B) triples into a joint tensor.
 
     Parameters
@@ -135,7 +143,7 @@ def validate_joint(j) -> xr.DataArray:
     return j.rename(COUNT)
 
 
-def model_tensors(j) -> tuple[xr.DataArray, xr.DataArray]:
+def model_tensors(j: xr.DataArray) -> tuple[xr.DataArray, xr.DataArray]:
     """Each model's confusion tensor: the margins of the joint tensor.
 
     Examples

@@ -9,6 +9,7 @@ matrices (or one label set per sample) into it; nothing here computes a metric.
 from __future__ import annotations
 
 from collections.abc import Iterable, Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -16,6 +17,9 @@ import xarray as xr
 
 from foldcorr.errors import InvalidInputError
 from foldcorr.tensor.dims import ACTUAL, COUNT, FOLD, LABEL, PREDICTED, validate_tensor
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = ["BINARY", "multilabel_tally", "indicators_from_sets"]
 
@@ -103,8 +107,9 @@ def _indicator(values, name: str) -> tuple[np.ndarray, list | None]:
     return arr.astype(bool), names
 
 
-def multilabel_tally(truth, pred, *, labels: Sequence | None = None, folds=None,
-                     weights=None) -> xr.DataArray:
+def multilabel_tally(truth: ArrayLike | pd.DataFrame, pred: ArrayLike | pd.DataFrame, *,
+                     labels: Sequence | None = None, folds: ArrayLike | None = None,
+                     weights: ArrayLike | None = None) -> xr.DataArray:
     """Count indicator matrices into a multilabel confusion tensor.
 
     Parameters
