@@ -24,7 +24,7 @@ from functools import cached_property
 import numpy as np
 import xarray as xr
 
-from foldcorr.analysis.resampling import RESAMPLE, Strata, statistic_draws
+from foldcorr.analysis.resampling import RESAMPLE, Strata, pool_folds, statistic_draws
 from foldcorr.errors import InvalidTensorError, OptionError
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, ClusterCells, is_sparse
 
@@ -158,6 +158,10 @@ class ClusterStrata:
     def block_cells(self) -> int:
         """Cells one resampled tensor costs (see :func:`statistic_draws`)."""
         return max(self.tensor.size, self.counts.size)
+
+    def pooled(self, block: xr.DataArray) -> xr.DataArray:
+        """A block of resamples summed over ``fold`` (see :func:`statistic_draws`)."""
+        return pool_folds(block, True)
 
     def resample(self, rng: np.random.Generator, size: int) -> xr.DataArray:
         """``size`` resampled dense tensors, dims ``("resample", [fold,] *dims)``."""

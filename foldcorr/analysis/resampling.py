@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import numbers
 from dataclasses import dataclass
-from functools import partial
+from functools import cached_property, partial
 
 import numpy as np
 import xarray as xr
@@ -283,16 +283,63 @@ class Strata:
         drawn cells are stored, O(size x nonzero cells), never the K x K cells."""
         import sparse
 
-        size, strata, width = draws.shape
-        real = self.index < self.n_cells
-        flat = ((np.arange(size)[:, None, None] * strata + np.arange(strata)[None, :, None])
-                * self.n_cells + self.index[None])[:, real]
-        shape = (size, *self.tensor.shape)
-        coords = np.stack(np.unravel_index(flat.reshape(-1), shape))
+        real, base = self._cells
+        size = draws.shape[0]
+        coords = _block_coords(base, size)
         t = self.tensor
-        data = sparse.COO(coords, draws[:, real].reshape(-1), shape=shape,
+        data = sparse.COO(coords, draws[:, real].reshape(-1), shape=(size, *t.shape),
                           has_duplicates=False, sorted=True)
         return xr.DataArray(data, dims=(RESAMPLE, *t.dims), coords=t.coords, name=t.name)
+
+    def pooled(self, block: xr.DataArray) -> xr.DataArray:
+        """A block of resamples summed over ``fold``: one bincount of the drawn cells into
+        the distinct pooled cells for a sparse block (no sort), else :func:`pool_folds`."""
+        if not is_sparse(block) or FOLD not in self.lead:
+            return pool_folds(block, True)
+        import sparse
+
+        ids, cells, shape = self._pooled_cells
+        size = block.sizes[RESAMPLE]
+        n_out = cells.shape[1]
+        at = (np.arange(size)[:, None] * n_out + ids[None]).reshape(-1)
+        sums = np.bincount(at, weights=block.data.data, minlength=size * n_out)
+        coords = _block_coords(cells, size)
+        dims = [d for d in block.dims if d != FOLD]
+        data = sparse.COO(coords, np.rint(sums).astype(np.int64), shape=(size, *shape),
+                          has_duplicates=False, sorted=True)
+        return xr.DataArray(data, dims=dims, name=block.name,
+                            coords={n: c for n, c in block.coords.items() if FOLD not in c.dims})
+
+    @cached_property
+    def _cells(self):
+        """Mask of the real (not padding) entries and their coords over the tensor's dims."""
+        real = self.index < self.n_cells
+        stratum = np.nonzero(real)[0]
+        lead_shape = [self.tensor.sizes[d] for d in self.lead]
+        cell_shape = [self.tensor.sizes[d] for d in self.cell_dims]
+        lead = np.unravel_index(stratum, lead_shape) if self.lead else ()
+        base = np.vstack([*lead, *np.unravel_index(self.index[real], cell_shape)])
+        return real, base.astype(np.intp)
+
+    @cached_property
+    def _pooled_cells(self):
+        """Per real entry, its distinct cell once ``fold`` is summed; those cells' coords."""
+        _, base = self._cells
+        axis = self.tensor.dims.index(FOLD)
+        rest = np.delete(base, axis, axis=0)
+        shape = tuple(n for d, n in self.tensor.sizes.items() if d != FOLD)
+        keys = np.ravel_multi_index(tuple(rest), shape)
+        cells, ids = np.unique(keys, return_inverse=True)
+        return ids.reshape(-1), np.vstack(np.unravel_index(cells, shape)), shape
+
+
+def _block_coords(base: np.ndarray, size: int) -> np.ndarray:
+    """Coords of ``size`` copies of the cells ``base`` (dims, cells), resample index first."""
+    dims, n = base.shape
+    coords = np.empty((dims + 1, size, n), dtype=np.intp)
+    coords[0] = np.arange(size)[:, None]
+    coords[1:] = base[:, None, :]
+    return coords.reshape(dims + 1, size * n)
 
 
 def _stratum_cells(t: xr.DataArray, n_lead: int, n_cells: int):
@@ -435,7 +482,8 @@ def resample_blocks(total: int, cells: int):
 def statistic_draws(strata: Strata, rng, n, jobs) -> dict:
     """The statistic of every resample, for several statistics sharing the resamples.
 
-    ``strata`` is anything with a dense ``tensor`` and ``resample(rng, size)``
+    ``strata`` is anything with a ``tensor``, ``block_cells``, ``resample(rng, size)``
+    and ``pooled(block)``
     (:class:`Strata`, or :class:`foldcorr.analysis.clustered.ClusterStrata`). ``jobs`` maps a name to ``(statistic, pooled, label)``; each value holds
     dim ``resample`` first.
 
@@ -456,9 +504,11 @@ def statistic_draws(strata: Strata, rng, n, jobs) -> dict:
     """
     out = {name: [] for name in jobs}
     for size in resample_blocks(n, strata.block_cells):
-        block = strata.resample(rng, size)
+        views = {False: strata.resample(rng, size)}
         for name, (statistic, pooled, label) in jobs.items():
-            values = apply_statistic(statistic, pool_folds(block, pooled), label)
+            if pooled not in views:  # one pooled block serves every pooled statistic
+                views[pooled] = strata.pooled(views[False])
+            values = apply_statistic(statistic, views[pooled], label)
             if RESAMPLE not in values.dims:
                 raise OptionError(
                     f"the statistic must broadcast over leading dims; {label} dropped the "
