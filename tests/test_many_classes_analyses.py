@@ -183,3 +183,27 @@ def test_paired_comparison_on_sparse_cells_equals_the_dense_path(monkeypatch):
     assert got.difference == pytest.approx(want.difference, abs=1e-12)
     np.testing.assert_allclose(got.ci, want.ci, rtol=1e-10)
     assert got.p_value == pytest.approx(want.p_value, abs=1e-12)
+
+
+def test_json_of_every_class_is_streamed_to_the_file(tmp_path, monkeypatch):
+    # the file holds what dumps gives (json.loads of both equal, the standard library's
+    # parser), written piece by piece: dumps, which builds the whole string, is never called
+    import json
+
+    from foldcorr.cli import main
+    from foldcorr.report import json as report_json
+
+    truth, pred, folds = _codes(3_000, 300, 3, seed=12)
+    path = tmp_path / "p.csv"
+    path.write_text("actual,predicted,fold\n" + "".join(
+        f"c{t},c{p},{f}\n" for t, p, f in zip(truth, pred, folds)))
+    monkeypatch.setattr(report_json, "dumps", lambda doc: pytest.fail("dumps was called"))
+    assert main(["score", str(path), "--format", "json", "--output", str(tmp_path / "o.json")]) == 0
+    text = (tmp_path / "o.json").read_text(encoding="utf-8")
+    doc = json.loads(text)
+    assert len(doc["per_class"]) == 300 and len(doc["confusions"]) > 300
+    monkeypatch.undo()
+    from foldcorr.pipeline import score
+    from foldcorr.report.json import dumps, score_dict
+
+    assert text == dumps(score_dict(_quiet(score, str(path))))
