@@ -41,9 +41,8 @@ __all__ = [
 
 #: Counting from labels keeps a dense array up to this many cells (folds x K x K,
 #: 1 GiB of int64: K = 5,000 with 5 folds) and counts only the distinct cells above
-#: it. Dense is as fast or faster below it (``docs/many-classes.md``), and every
-#: analysis, plot and saved file takes a dense tensor; above it a dense array is
-#: what does not fit.
+#: it. Dense is as fast or faster below it (``docs/many-classes.md``), and plots
+#: and saved files take a dense tensor; above it a dense array is what does not fit.
 DENSE_CELL_LIMIT = 1 << 27
 
 
