@@ -39,7 +39,8 @@ import resource, sys, time
 PATH = sys.argv[1]
 start = time.perf_counter()
 {body}
-print(time.perf_counter() - start, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+use = resource.getrusage(resource.RUSAGE_SELF)
+print(use.ru_utime + use.ru_stime, time.perf_counter() - start, use.ru_maxrss)
 """
 
 _FLOOR = """
@@ -85,8 +86,8 @@ def child(body: str, path, env=None) -> dict:
     if done.returncode:
         return {"error": done.stderr.strip().splitlines()[-1:] or ["failed"], "s": seconds}
     out = done.stdout.split()
-    return {"s": seconds, "inside_s": float(out[-2]), "mib": float(out[-1]) / 1024,
-            "printed": out[:-2]}
+    return {"s": seconds, "cpu_s": float(out[-3]), "inside_s": float(out[-2]),
+            "mib": float(out[-1]) / 1024, "printed": out[:-3]}
 
 
 def cli(argv) -> str:
@@ -130,9 +131,10 @@ def _show(name, row, ref=None):
     if "error" in row:
         print(f"{name}: failed: {row['error'][0]}")
         return
-    text = f"{name}: {row['s']:.1f} s, {row['mib']:.0f} MiB"
+    text = f"{name}: {row['s']:.1f} s wall, {row['cpu_s']:.1f} s CPU, {row['mib']:.0f} MiB"
     if ref is not None and "s" in ref and "error" not in ref:
-        text += f" (ratio to {ref['name']} {row['s'] / ref['s']:.2f}x)"
+        text += (f" (ratio to {ref['name']} {row['s'] / ref['s']:.2f}x wall, "
+                 f"{row['cpu_s'] / ref['cpu_s']:.2f}x CPU)")
     print(text, flush=True)
 
 
