@@ -197,7 +197,8 @@ def test_a_dense_tensor_too_large_for_memory_is_refused_before_allocating():
         check_dense_size((5, 10**6, 10**6), np.int64)
 
 
-def test_score_analyses_refuse_a_tensor_too_large_to_densify():
+def test_score_analyses_run_on_a_tensor_too_large_to_densify():
+    # repair works from the nonzero cells (it used to refuse this tensor as too large)
     from foldcorr.pipeline import evaluate_with
 
     cells = sparse.COO(np.array([[0, 1, 2, 4], [0, 1, 3, 4]]), np.array([5, 3, 2, 4]),
@@ -207,5 +208,12 @@ def test_score_analyses_refuse_a_tensor_too_large_to_densify():
     assert ev.per_class.sizes["class"] == 10**5
     # the first MAX_PLACES places are named, the rest counted
     assert any(re.search(r"class=52; and 999\d\d more", w) for w in ev.warnings)
-    with pytest.raises(TensorTooLargeError, match=r"the analyses of score .* needs"):
-        evaluate_with(t)
+    ra = evaluate_with(t).extras["repair"]
+    assert is_sparse(ra.pair_gain) and ra.pair_gain.data.nnz == 1
+    # classes without samples do not change R_K: sklearn on the labels of the five classes
+    truth = np.repeat([0, 1, 2, 4], [5, 3, 2, 4])
+    pred = np.repeat([0, 1, 3, 4], [5, 3, 2, 4])
+    fixed = np.where(truth == 2, 2, pred)
+    gain = matthews_corrcoef(truth, fixed) - matthews_corrcoef(truth, pred)
+    assert ra.confusion_rows()[0][2] == 2
+    assert ra.confusion_rows()[0][3] == pytest.approx(gain, abs=1e-12)

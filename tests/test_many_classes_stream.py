@@ -6,7 +6,6 @@ import pyarrow.parquet as pq
 import pytest
 
 import foldcorr as fc
-from foldcorr.errors import TensorTooLargeError
 from foldcorr.tensor import backing, is_sparse
 from foldcorr.tensor.accumulator import StreamTally
 
@@ -56,8 +55,6 @@ def test_score_k3000_counts_sparse_from_parquet(tmp_path, monkeypatch):
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(raises=TensorTooLargeError, strict=True,
-                   reason="the repair analysis of score still makes the tensor dense")
 def test_score_k20000_two_million_text_labels(tmp_path):
     k = 20_000
     truth, pred, fold = _codes(2_000_000, k, seed=1)

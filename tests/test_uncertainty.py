@@ -25,7 +25,7 @@ import foldcorr as fc
 # `foldcorr.tensor` names both a module and a function; import the function directly
 from foldcorr.tensor import confusion_tensor, tally
 from foldcorr.errors import InvalidTensorError, OptionError, UndefinedMetricWarning
-from foldcorr.analysis.resampling import jackknife_moments
+from foldcorr.analysis.intervals import jackknife_moments
 
 
 def _labels(rng, n, k, acc):

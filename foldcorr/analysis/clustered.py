@@ -24,11 +24,11 @@ from functools import cached_property
 import numpy as np
 import xarray as xr
 
-from foldcorr.analysis.resampling import RESAMPLE, Strata, statistic_draws
+from foldcorr.analysis.resampling import RESAMPLE, Strata, pool_folds, statistic_draws
 from foldcorr.errors import InvalidTensorError, OptionError
-from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, ClusterCells
+from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, ClusterCells, is_sparse
 
-__all__ = ["ClusterStrata", "scatter", "design_effect", "same_samples", "CLUSTER_RK",
+__all__ = ["ClusterStrata", "scatter", "scatter_sparse", "design_effect", "same_samples", "CLUSTER_RK",
            "cluster_strata", "check_cells", "dense_cells", "cluster_notes"]
 
 
@@ -44,6 +44,28 @@ def scatter(draws: np.ndarray, index: np.ndarray, n_out: int) -> np.ndarray:
     at = (np.arange(size)[:, None] * n_out + index[None, :]).ravel()
     flat = np.bincount(at, weights=draws.ravel(), minlength=size * n_out)
     return np.rint(flat).astype(np.int64).reshape(size, n_out)
+
+
+def scatter_sparse(draws: np.ndarray, index: np.ndarray, shape) -> object:
+    """:func:`scatter` into a ``sparse.COO`` of shape (size, *shape): only the cells drawn
+    into are stored, O(size x rows log) work, never size x prod(shape) cells.
+
+    Examples
+    --------
+    >>> scatter_sparse(np.array([[1, 2, 3]]), np.array([0, 1, 0]), (2,)).todense().tolist()
+    [[4, 2]]
+    """
+    import sparse
+
+    size = draws.shape[0]
+    n_out = int(np.prod(shape, dtype=np.int64))
+    at = (np.arange(size, dtype=np.int64)[:, None] * n_out + index[None, :]).ravel()
+    keep = draws.ravel() != 0
+    cells, inverse = np.unique(at[keep], return_inverse=True)
+    counts = np.bincount(inverse.reshape(-1), weights=draws.ravel()[keep], minlength=len(cells))
+    full = (size, *shape)
+    return sparse.COO(np.stack(np.unravel_index(cells, full)), np.rint(counts).astype(np.int64),
+                      shape=full, has_duplicates=False, sorted=True)
 
 
 @dataclass(frozen=True)
@@ -131,6 +153,15 @@ class ClusterStrata:
         totals = counts.sum(axis=1)
         out = rng.multinomial(totals, counts / totals[:, None], size=(size, len(folds)))
         return out[:, row, pos]
+
+    @property
+    def block_cells(self) -> int:
+        """Cells one resampled tensor costs (see :func:`statistic_draws`)."""
+        return max(self.tensor.size, self.counts.size)
+
+    def pooled(self, block: xr.DataArray) -> xr.DataArray:
+        """A block of resamples summed over ``fold`` (see :func:`statistic_draws`)."""
+        return pool_folds(block, True)
 
     def resample(self, rng: np.random.Generator, size: int) -> xr.DataArray:
         """``size`` resampled dense tensors, dims ``("resample", [fold,] *dims)``."""
@@ -251,7 +282,7 @@ def check_cells(cluster, dims) -> ClusterCells:
 
 
 def dense_cells(t: xr.DataArray) -> ClusterCells:
-    """The nonzero cells of a dense tensor (dims ``([fold,] *class dims)``), one cluster.
+    """The nonzero cells of a tensor (dims ``([fold,] *class dims)``, either backing), one cluster.
 
     Examples
     --------
@@ -262,14 +293,22 @@ def dense_cells(t: xr.DataArray) -> ClusterCells:
     """
     dims = tuple(d for d in t.dims if d != FOLD)
     lead = [FOLD] if FOLD in t.dims else []
-    values = t.transpose(*lead, *dims).values.reshape(-1)
     size = t.sizes[dims[0]] ** len(dims)
-    flat = np.flatnonzero(values)
+    data = t.transpose(*lead, *dims).data
+    if is_sparse(data):  # the stored cells, in C order
+        keep = data.data != 0
+        flat = np.ravel_multi_index(tuple(data.coords[:, keep]), data.shape)
+        order = np.argsort(flat, kind="stable")
+        flat, values = flat[order], data.data[keep][order]
+    else:
+        values = np.asarray(data).reshape(-1)
+        flat = np.flatnonzero(values)
+        values = values[flat]
     return ClusterCells(
         dims=dims, classes=t.coords[dims[0]].values.tolist(),
         folds=t.coords[FOLD].values.tolist() if lead else None,
         clusters=np.array([0], dtype=object), cluster=np.zeros(len(flat), np.int64),
-        fold=flat // size, cell=flat % size, count=values[flat].astype(np.int64))
+        fold=flat // size, cell=flat % size, count=values.astype(np.int64))
 
 
 def cluster_notes(strata: ClusterStrata) -> tuple[str, ...]:

@@ -27,13 +27,16 @@ import xarray as xr
 
 from foldcorr.errors import DEFAULT_SEED, UndefinedMetricWarning, check_choice
 from foldcorr.metrics import ovr_mcc, rk
-from foldcorr.tensor import ACTUAL, FOLD, JOINT_DIMS, PREDICTED, ClusterCells, validate_joint
+from foldcorr.tensor import (ACTUAL, FOLD, JOINT_DIMS, PREDICTED, ClusterCells, pool,
+                             validate_joint)
 from foldcorr.analysis.clustered import (
     ClusterStrata, check_cells, cluster_notes, dense_cells, same_samples, scatter,
+    scatter_sparse,
 )
 from foldcorr.analysis.support import blank_thin_classes, thin_classes, thin_note
+from foldcorr.analysis.intervals import interval
 from foldcorr.analysis.resampling import (
-    RESAMPLE, check_level, check_resamples, interval, resample_blocks, whole_counts,
+    RESAMPLE, check_level, check_resamples, resample_blocks, whole_counts,
 )
 
 __all__ = ["Comparison", "compare_models", "compare_cells", "PairStrata", "paired_draws",
@@ -206,14 +209,25 @@ class PairStrata:
         base = (self.strata.fold * k + self.actual) * k
         pa, pb = (self.a, self.b) if flip is None else \
             (np.where(flip, self.b, self.a), np.where(flip, self.a, self.b))
-        shape = (size, *([folds] if self.lead else []), k, k)
+        shape = (*([folds] if self.lead else []), k, k)
         dims = (RESAMPLE, *self.lead, ACTUAL, PREDICTED)
-        return [xr.DataArray(scatter(draws, base + pred, folds * k * k).reshape(shape),
+        if self.sparse:
+            return [xr.DataArray(scatter_sparse(draws, base + pred, shape), dims=dims,
+                                 coords=self.coords) for pred in (pa, pb)]
+        return [xr.DataArray(scatter(draws, base + pred, folds * k * k).reshape(size, *shape),
                              dims=dims, coords=self.coords) for pred in (pa, pb)]
+
+    @property
+    def sparse(self) -> bool:
+        """Whether resampled tensors are sparse: when the joint rows are fewer than a
+        quarter of the cells of both models' tensors (many classes)."""
+        return 4 * len(self.strata.counts) < self.strata.cells.n_folds * self.k * self.k
 
     @property
     def block_cells(self) -> int:
         """Cells one resample occupies while drawn: rows, or both models' tensors."""
+        if self.sparse:
+            return 4 * len(self.strata.counts)
         return max(len(self.strata.counts), 2 * self.strata.cells.n_folds * self.k * self.k)
 
     def observed(self):
@@ -345,7 +359,7 @@ def compare_cells(cells: ClusterCells, *, clustered: bool, n_resamples: int = 20
     notes: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", UndefinedMetricWarning)
-        pa, pb = (t_a.sum(FOLD), t_b.sum(FOLD)) if FOLD in t_a.dims else (t_a, t_b)
+        pa, pb = (pool(t_a), pool(t_b)) if FOLD in t_a.dims else (t_a, t_b)
         rk_a, rk_b = float(stat_rk(pa)), float(stat_rk(pb))
         mcc_a, mcc_b = stat_mcc(pa), stat_mcc(pb)
         fold_a = stat_rk(t_a) if FOLD in t_a.dims else None
@@ -417,7 +431,7 @@ def paired_draws(pair: PairStrata, rng, n, stat_rk, stat_mcc):
     rks, mccs, folds = [], [], []
     for size in resample_blocks(n, pair.block_cells):
         ta, tb = pair.tensors(pair.strata.draw(rng, size))
-        pa, pb = (ta.sum(FOLD), tb.sum(FOLD)) if lead else (ta, tb)
+        pa, pb = (pool(ta), pool(tb)) if lead else (ta, tb)
         rks.append(stat_rk(pb) - stat_rk(pa))
         if stat_mcc is not None:
             mccs.append(stat_mcc(pb) - stat_mcc(pa))
@@ -451,6 +465,8 @@ def permutation_draws(pair: PairStrata, rng, n, stat_rk) -> np.ndarray:
     code, inverse = np.unique(strata.cell, return_inverse=True)
     pooled = np.bincount(inverse, weights=strata.counts, minlength=len(code)).astype(np.int64)
     i, a, b = code // (k * k), (code // k) % k, code % k
+    if pair.sparse:
+        return _sparse_flips(rng, n, stat_rk, (i, a, b, pooled), k, pair.coords)
     off = a != b
     i, a, b, counts = i[off], a[off], b[off], pooled[off]
     t_a, t_b = pair.observed()
@@ -469,6 +485,24 @@ def permutation_draws(pair: PairStrata, rng, n, stat_rk) -> np.ndarray:
     return np.concatenate(out) if out else np.zeros(0)
 
 
+def _sparse_flips(rng, n, stat_rk, rows, k, coords) -> np.ndarray:
+    """Sign-flip permutations as sparse tensors of the joint rows: the same binomial draws
+    as the dense path, O(rows) per permutation instead of O(K^2)."""
+    i, a, b, counts = rows
+    off = np.flatnonzero(a != b)
+    coords = {ACTUAL: coords[ACTUAL], PREDICTED: coords[PREDICTED]}
+    dims = (RESAMPLE, ACTUAL, PREDICTED)
+    out = []
+    for size in resample_blocks(n, 4 * len(counts)):
+        swapped = np.zeros((size, len(counts)), np.int64)
+        swapped[:, off] = rng.binomial(counts[off], 0.5, size=(size, len(off)))
+        kept = np.concatenate([counts[None] - swapped, swapped], axis=1)
+        ta, tb = (xr.DataArray(scatter_sparse(kept, np.r_[i * k + x, i * k + y], (k, k)),
+                               dims=dims, coords=coords) for x, y in ((a, b), (b, a)))
+        out.append((stat_rk(tb) - stat_rk(ta)).values)
+    return np.concatenate(out) if out else np.zeros(0)
+
+
 def _cluster_flips(pair: PairStrata, rng, n, stat_rk) -> np.ndarray:
     """Permutations that swap the two predictions of whole clusters."""
     strata = pair.strata
@@ -478,6 +512,6 @@ def _cluster_flips(pair: PairStrata, rng, n, stat_rk) -> np.ndarray:
         draws = np.broadcast_to(strata.counts, (size, len(strata.counts)))
         ta, tb = pair.tensors(draws, flip=flip[:, strata.unit])
         if pair.lead:
-            ta, tb = ta.sum(FOLD), tb.sum(FOLD)
+            ta, tb = pool(ta), pool(tb)
         out.append((stat_rk(tb) - stat_rk(ta)).values)
     return np.concatenate(out)

@@ -23,7 +23,8 @@ import numpy as np
 import xarray as xr
 
 from foldcorr.analysis.compare import PairStrata, compare_cells, paired_draws
-from foldcorr.analysis.resampling import check_level, check_resamples, interval
+from foldcorr.analysis.intervals import interval
+from foldcorr.analysis.resampling import check_level, check_resamples
 from foldcorr.analysis.support import thin_classes
 from foldcorr.analysis.uncertainty import bootstrap
 from foldcorr.errors import DEFAULT_SEED, InvalidInputError, check_choice

@@ -132,7 +132,8 @@ class RepairAnalysis:
     rk : float
         Pooled R_K the gains are measured from (under ``undefined``).
     pair_gain : xarray.DataArray
-        Pooled :func:`pair_gains`, dims ``(actual, predicted)``.
+        Pooled :func:`pair_gains`, dims ``(actual, predicted)``; sparse (only
+        the nonzero off-diagonal cells stored) when the tensor is sparse.
     per_class : xarray.Dataset
         Dim ``class``: ``gain_fix_fn``, ``gain_fix_fp``, ``gain_fix_both``,
         ``leave_out_delta`` (pooled), and with folds ``top_folds``,
@@ -246,7 +247,7 @@ def repair_analysis(t: xr.DataArray, *, top: int | None = 20, stability_top: int
         gains = pair_gains(pooled, undefined=undefined)
         per_class = class_gains(pooled, undefined=undefined)
         per_class["leave_out_delta"] = leave_class_out(pooled, undefined=undefined)
-        confusions = costliest_confusions(pooled, top=top, undefined=undefined)
+        confusions = costliest_confusions(pooled, top=top, undefined=undefined, gains=gains)
     for w in caught:
         if issubclass(w.category, UndefinedMetricWarning):
             notes.append(f"repair: {w.message}")

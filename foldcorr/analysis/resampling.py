@@ -6,8 +6,11 @@ the tensor directly, O(B * nnz) work instead of O(B * N), with exactly the
 distribution of per-sample resampling. Each slice over the leading dims (each
 fold, each label, ...) is a stratum, drawn on its own and keeping its own total;
 the statistic is then applied once to a whole block of resampled tensors, since
-every metric broadcasts over leading dims. Percentile and BCa intervals are read
-off the draws; BCa's jackknife acceleration costs one statistic per nonzero cell.
+every metric broadcasts over leading dims. A block of resamples is a sparse
+tensor of the drawn cells when most cells are empty, so the statistic rebuilds
+margins and trace with one bincount per block: O(B * (nnz + F * K)) time and
+memory bounded by the block size. Percentile and BCa intervals are read off
+the draws in :mod:`foldcorr.analysis.intervals`.
 
 Weighted tensors are refused, whatever their values: the cells no longer say
 how many samples they hold (see :func:`whole_counts`).
@@ -21,7 +24,7 @@ from __future__ import annotations
 
 import numbers
 from dataclasses import dataclass
-from functools import partial
+from functools import cached_property, partial
 
 import numpy as np
 import xarray as xr
@@ -33,13 +36,12 @@ from foldcorr.errors import (
     OptionError,
     UndefinedMetricWarning,
 )
-from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, py_value, validate_tensor
+from foldcorr.tensor import ACTUAL, FOLD, PREDICTED, is_sparse, pool, py_value, validate_tensor
 
 __all__ = [
     "RESAMPLE", "METHODS", "check_level", "check_resamples",
     "whole_counts", "Strata", "resample_cells", "resample_blocks", "statistic_label", "apply_statistic",
-    "pool_folds", "statistic_draws", "normal_cdf", "normal_ppf", "interval", "draw_notes",
-    "jackknife_moments",
+    "pool_folds", "statistic_draws", "where_label",
 ]
 
 #: Name of the leading dim that indexes bootstrap resamples.
@@ -91,7 +93,15 @@ def check_resamples(n_resamples, *, name: str = "n_resamples", minimum: int = MI
     return int(n_resamples)
 
 
-def _where(t: xr.DataArray, index) -> str:
+def where_label(t: xr.DataArray, index) -> str:
+    """``dim=value`` of each dim of ``t`` at ``index``, for messages.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import tally
+    >>> where_label(tally([0, 1], [0, 1], folds=[1, 2]), (1,))
+    'fold=2'
+    """
     parts = []
     for dim, i in zip(t.dims, index):
         value = t.coords[dim].values[i] if dim in t.coords else i
@@ -152,9 +162,8 @@ def whole_counts(t, *, what: str = "the bootstrap") -> xr.DataArray:
             f"{what} resamples samples, so it needs whole counts; this tensor holds "
             f"weighted sums ({reason}). Score without sample weights to get intervals"
         )
-    values = np.asarray(t.values)
-    if values.dtype != np.int64:
-        t = t.copy(data=values.astype(np.int64))
+    if t.dtype != np.int64:
+        t = t.copy(data=t.data.astype(np.int64))
     return t
 
 
@@ -163,15 +172,20 @@ def _weighted_reason(t: xr.DataArray) -> str | None:
     column = t.attrs.get("weight_column")
     if column:
         return f"it was tallied with the weight column {column!r}"
-    values = np.asarray(t.values)
-    if np.issubdtype(values.dtype, np.floating):
+    if np.issubdtype(t.dtype, np.floating):
+        if is_sparse(t):
+            values, coords = t.data.data, t.data.coords
+        else:
+            values = np.asarray(t.values).reshape(-1)
+            coords = None
         frac = values != np.round(values)
-        cells = np.argwhere(frac) if frac.any() else np.argwhere(values != 0)
+        cells = np.flatnonzero(frac) if frac.any() else np.flatnonzero(values != 0)
         at = ""
         if len(cells):
-            index = tuple(cells[0])
-            at = f", e.g. {py_value(values[index])!r} at {_where(t, index)}"
-        return (f"{values.dtype} counts{at}, as a weighted tally has; if these are plain "
+            index = (tuple(coords[:, cells[0]]) if coords is not None
+                     else np.unravel_index(cells[0], t.shape))
+            at = f", e.g. {py_value(values[cells[0]])!r} at {where_label(t, index)}"
+        return (f"{t.dtype} counts{at}, as a weighted tally has; if these are plain "
                 "sample counts, give them an integer dtype with .astype('int64')")
     return None
 
@@ -209,27 +223,41 @@ class Strata:
     def of(cls, t: xr.DataArray, cell_dims) -> Strata:
         lead = tuple(d for d in t.dims if d not in cell_dims)
         t = t.transpose(*lead, *cell_dims)
+        lead_shape = tuple(t.sizes[d] for d in lead)
         n_cells = int(np.prod([t.sizes[d] for d in cell_dims]))
-        flat = t.values.reshape(-1, n_cells)
-        totals = flat.sum(axis=1)
+        stratum, cell, count = _stratum_cells(t, len(lead), n_cells)
+        strata = int(np.prod(lead_shape, dtype=np.int64))
+        totals = np.bincount(stratum, weights=count, minlength=strata)
         if (totals == 0).any():
             s = int(np.flatnonzero(totals == 0)[0])
-            index = np.unravel_index(s, [t.sizes[d] for d in lead]) if lead else ()
-            where = _where(t, index) if lead else "the whole tensor"
+            index = np.unravel_index(s, lead_shape) if lead else ()
+            where = where_label(t, index) if lead else "the whole tensor"
             raise InvalidTensorError(
                 f"cannot resample: {where} holds no samples; drop that slice first"
             )
-        nonzero = flat > 0
-        width = max(int(nonzero.sum(axis=1).max()), 1)
-        order = np.argsort(~nonzero, axis=1, kind="stable")[:, :width]
-        keep = np.take_along_axis(nonzero, order, axis=1)
-        counts = np.where(keep, np.take_along_axis(flat, order, axis=1), 0)
-        index = np.where(keep, order, n_cells)
-        return cls(t, lead, tuple(cell_dims), index, counts.astype(np.int64))
+        per = np.bincount(stratum, minlength=strata)
+        width = max(int(per.max(initial=0)), 1)
+        pos = np.arange(len(stratum)) - np.repeat(np.cumsum(per) - per, per)
+        index = np.full((strata, width), n_cells, dtype=np.int64)
+        counts = np.zeros((strata, width), dtype=np.int64)
+        index[stratum, pos] = cell
+        counts[stratum, pos] = count
+        return cls(t, lead, tuple(cell_dims), index, counts)
 
     @property
     def n_cells(self) -> int:
         return int(np.prod([self.tensor.sizes[d] for d in self.cell_dims]))
+
+    @property
+    def block_cells(self) -> int:
+        """Cells one resampled tensor costs: its nonzero cells when drawn sparse."""
+        return self.counts.size if self.sparse else max(self.tensor.size, self.counts.size)
+
+    @property
+    def sparse(self) -> bool:
+        """Whether resamples are sparse tensors: a sparse tensor, or under a quarter of
+        the cells of some stratum nonzero (so the dense cells would be mostly zeros)."""
+        return is_sparse(self.tensor) or 4 * self.index.shape[1] <= self.n_cells
 
     def draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
         """Multinomial draws of every stratum's cells, shape (size, strata, width)."""
@@ -238,8 +266,10 @@ class Strata:
         return rng.multinomial(totals, probs, size=(size, len(totals)))
 
     def resample(self, rng: np.random.Generator, size: int) -> xr.DataArray:
-        """``size`` resampled tensors (the protocol :func:`statistic_draws` asks for)."""
-        return self.dense(self.draw(rng, size))
+        """``size`` resampled tensors (the protocol :func:`statistic_draws` asks for):
+        dense, or sparse with the drawn cells only (see :attr:`sparse`)."""
+        draws = self.draw(rng, size)
+        return self.sparse_block(draws) if self.sparse else self.dense(draws)
 
     def dense(self, draws: np.ndarray) -> xr.DataArray:
         """Scatter draws back into full tensors with a leading ``resample`` dim."""
@@ -251,6 +281,86 @@ class Strata:
         t = self.tensor
         return xr.DataArray(out[..., : self.n_cells].reshape(shape),
                             dims=(RESAMPLE, *t.dims), coords=t.coords, name=t.name)
+
+    def sparse_block(self, draws: np.ndarray) -> xr.DataArray:
+        """Draws as one ``sparse.COO`` tensor with a leading ``resample`` dim: only the
+        drawn cells are stored, O(size x nonzero cells), never the K x K cells."""
+        import sparse
+
+        real, base = self._cells
+        size = draws.shape[0]
+        coords = _block_coords(base, size)
+        t = self.tensor
+        data = sparse.COO(coords, draws[:, real].reshape(-1), shape=(size, *t.shape),
+                          has_duplicates=False, sorted=True)
+        return xr.DataArray(data, dims=(RESAMPLE, *t.dims), coords=t.coords, name=t.name)
+
+    def pooled(self, block: xr.DataArray) -> xr.DataArray:
+        """A block of resamples summed over ``fold``: one bincount of the drawn cells into
+        the distinct pooled cells for a sparse block (no sort), else :func:`pool_folds`."""
+        if not is_sparse(block) or FOLD not in self.lead:
+            return pool_folds(block, True)
+        import sparse
+
+        ids, cells, shape = self._pooled_cells
+        size = block.sizes[RESAMPLE]
+        n_out = cells.shape[1]
+        at = (np.arange(size)[:, None] * n_out + ids[None]).reshape(-1)
+        sums = np.bincount(at, weights=block.data.data, minlength=size * n_out)
+        coords = _block_coords(cells, size)
+        dims = [d for d in block.dims if d != FOLD]
+        data = sparse.COO(coords, np.rint(sums).astype(np.int64), shape=(size, *shape),
+                          has_duplicates=False, sorted=True)
+        return xr.DataArray(data, dims=dims, name=block.name,
+                            coords={n: c for n, c in block.coords.items() if FOLD not in c.dims})
+
+    @cached_property
+    def _cells(self):
+        """Mask of the real (not padding) entries and their coords over the tensor's dims."""
+        real = self.index < self.n_cells
+        stratum = np.nonzero(real)[0]
+        lead_shape = [self.tensor.sizes[d] for d in self.lead]
+        cell_shape = [self.tensor.sizes[d] for d in self.cell_dims]
+        lead = np.unravel_index(stratum, lead_shape) if self.lead else ()
+        base = np.vstack([*lead, *np.unravel_index(self.index[real], cell_shape)])
+        return real, base.astype(np.intp)
+
+    @cached_property
+    def _pooled_cells(self):
+        """Per real entry, its distinct cell once ``fold`` is summed; those cells' coords."""
+        _, base = self._cells
+        axis = self.tensor.dims.index(FOLD)
+        rest = np.delete(base, axis, axis=0)
+        shape = tuple(n for d, n in self.tensor.sizes.items() if d != FOLD)
+        keys = np.ravel_multi_index(tuple(rest), shape)
+        cells, ids = np.unique(keys, return_inverse=True)
+        return ids.reshape(-1), np.vstack(np.unravel_index(cells, shape)), shape
+
+
+def _block_coords(base: np.ndarray, size: int) -> np.ndarray:
+    """Coords of ``size`` copies of the cells ``base`` (dims, cells), resample index first."""
+    dims, n = base.shape
+    coords = np.empty((dims + 1, size, n), dtype=np.intp)
+    coords[0] = np.arange(size)[:, None]
+    coords[1:] = base[:, None, :]
+    return coords.reshape(dims + 1, size * n)
+
+
+def _stratum_cells(t: xr.DataArray, n_lead: int, n_cells: int):
+    """Stratum, flat cell and count of every nonzero cell, sorted by stratum then cell."""
+    data = t.data
+    if is_sparse(data):
+        keep = data.data != 0
+        coords = data.coords[:, keep]
+        lead_shape, cell_shape = data.shape[:n_lead], data.shape[n_lead:]
+        stratum = (np.ravel_multi_index(tuple(coords[:n_lead]), lead_shape) if n_lead
+                   else np.zeros(coords.shape[1], np.int64))
+        cell = np.ravel_multi_index(tuple(coords[n_lead:]), cell_shape)
+        order = np.lexsort((cell, stratum))
+        return stratum[order], cell[order], data.data[keep][order].astype(np.int64)
+    flat = np.asarray(data).reshape(-1, n_cells)
+    stratum, cell = np.nonzero(flat)
+    return stratum, cell, flat[stratum, cell].astype(np.int64)
 
 
 def resample_cells(t: xr.DataArray, n_resamples: int, *,
@@ -355,7 +465,7 @@ def pool_folds(x: xr.DataArray, pooled: bool) -> xr.DataArray:
     >>> pool_folds(tally([0, 1, 1], [0, 1, 0], folds=[1, 1, 2]), True).dims
     ('actual', 'predicted')
     """
-    return x.sum(FOLD) if pooled and FOLD in x.dims else x
+    return pool(x) if pooled else x
 
 
 def resample_blocks(total: int, cells: int):
@@ -377,7 +487,8 @@ def resample_blocks(total: int, cells: int):
 def statistic_draws(strata: Strata, rng, n, jobs) -> dict:
     """The statistic of every resample, for several statistics sharing the resamples.
 
-    ``strata`` is anything with a dense ``tensor`` and ``resample(rng, size)``
+    ``strata`` is anything with a ``tensor``, ``block_cells``, ``resample(rng, size)``
+    and ``pooled(block)``
     (:class:`Strata`, or :class:`foldcorr.analysis.clustered.ClusterStrata`). ``jobs`` maps a name to ``(statistic, pooled, label)``; each value holds
     dim ``resample`` first.
 
@@ -397,10 +508,12 @@ def statistic_draws(strata: Strata, rng, n, jobs) -> dict:
     (('resample',), 5)
     """
     out = {name: [] for name in jobs}
-    for size in resample_blocks(n, max(strata.tensor.size, strata.counts.size)):
-        block = strata.resample(rng, size)
+    for size in resample_blocks(n, strata.block_cells):
+        views = {False: strata.resample(rng, size)}
         for name, (statistic, pooled, label) in jobs.items():
-            values = apply_statistic(statistic, pool_folds(block, pooled), label)
+            if pooled not in views:  # one pooled block serves every pooled statistic
+                views[pooled] = strata.pooled(views[False])
+            values = apply_statistic(statistic, views[pooled], label)
             if RESAMPLE not in values.dims:
                 raise OptionError(
                     f"the statistic must broadcast over leading dims; {label} dropped the "
@@ -409,193 +522,4 @@ def statistic_draws(strata: Strata, rng, n, jobs) -> dict:
             out[name].append(values)
     return {name: xr.concat(parts, RESAMPLE) for name, parts in out.items()}
 
-
-def normal_cdf(x):
-    """The standard normal distribution function Phi.
-
-    Examples
-    --------
-    >>> float(normal_cdf(0.0))
-    0.5
-    """
-    from scipy.special import ndtr
-
-    return ndtr(x)
-
-
-def normal_ppf(x):
-    """The standard normal quantile function, the inverse of :func:`normal_cdf`.
-
-    Examples
-    --------
-    >>> round(float(normal_ppf(0.975)), 4)
-    1.96
-    """
-    from scipy.special import ndtri
-
-    return ndtri(x)
-
-
-def _quantile_at(sorted_draws: np.ndarray, q: np.ndarray) -> np.ndarray:
-    """Per-element quantiles (linear interpolation) of draws sorted along axis 0."""
-    b = sorted_draws.shape[0]
-    pos = np.clip(q, 0.0, 1.0) * (b - 1)
-    lo = np.floor(pos).astype(np.int64)
-    hi = np.minimum(lo + 1, b - 1)
-    frac = pos - lo
-    below = np.take_along_axis(sorted_draws, lo[None], axis=0)[0]
-    above = np.take_along_axis(sorted_draws, hi[None], axis=0)[0]
-    return below + frac * (above - below)
-
-
-def interval(draws: xr.DataArray, estimate: xr.DataArray, level: float, method: str,
-             moments=None):
-    """Percentile or BCa interval ends of draws, and where they are undefined.
-
-    ``draws`` holds dim ``resample`` plus the dims of ``estimate``; ``method``
-    is ``"percentile"`` or ``"bca"`` (see
-    :func:`foldcorr.analysis.uncertainty.bootstrap`), the latter with
-    ``moments = (num, den)`` of :func:`jackknife_moments` shaped like the
-    estimate. Returns ``(low, high, undefined)``: numpy arrays shaped like the
-    estimate, NaN (and True) where a draw or the estimate is NaN or the BCa
-    level is undefined.
-
-    Examples
-    --------
-    >>> import xarray as xr
-    >>> draws = xr.DataArray([0.1 * i for i in range(11)], dims="resample")
-    >>> low, high, bad = interval(draws, xr.DataArray(0.5), 0.8, "percentile")
-    >>> round(float(low), 2), round(float(high), 2), bool(bad)
-    (0.1, 0.9, False)
-    """
-    d = draws.transpose(RESAMPLE, *estimate.dims).values.astype(float)
-    est = np.asarray(estimate.values, dtype=float)
-    b = d.shape[0]
-    undefined = np.isnan(d).any(axis=0) | np.isnan(est)
-    d_sorted = np.sort(np.where(np.isnan(d), 0.0, d), axis=0)
-    alpha = 1.0 - level
-    if method == "percentile":
-        q_lo = np.full(est.shape, alpha / 2)
-        q_hi = np.full(est.shape, 1 - alpha / 2)
-    else:
-        num, den = moments
-        with np.errstate(divide="ignore", invalid="ignore"):
-            accel = np.where(den > 0, num / (6.0 * den**1.5), 0.0)
-        accel = np.nan_to_num(accel)
-        share = ((d < est).sum(axis=0) + (d <= est).sum(axis=0)) / (2.0 * b)
-        z0 = normal_ppf(np.clip(share, 0.5 / b, 1 - 0.5 / b))
-        bounds = []
-        for z in (normal_ppf(alpha / 2), normal_ppf(1 - alpha / 2)):
-            bounds.append(normal_cdf(z0 + (z0 + z) / (1 - accel * (z0 + z))))
-        q_lo, q_hi = bounds
-        # a (z0 + z) at or beyond 1 leaves the adjusted level undefined
-        undefined = undefined | ~np.isfinite(q_lo) | ~np.isfinite(q_hi)
-        q_lo, q_hi = np.nan_to_num(q_lo, nan=0.5), np.nan_to_num(q_hi, nan=0.5)
-    low = _quantile_at(d_sorted, np.asarray(q_lo, float))
-    high = _quantile_at(d_sorted, np.asarray(q_hi, float))
-    low = np.where(undefined, np.nan, low)
-    high = np.where(undefined, np.nan, high)
-    return low, high, undefined
-
-
-def draw_notes(label: str, caught, undefined_mask, estimate, n) -> tuple[str, ...]:
-    """Plain-language notes on undefined values met while bootstrapping ``label``.
-
-    ``caught`` are the warnings recorded while drawing, ``undefined_mask`` the
-    mask of :func:`interval` and ``n`` the number of resamples.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> import xarray as xr
-    >>> draw_notes("R_K", [], np.array(True), xr.DataArray(0.0), 100)
-    ('bootstrap of R_K: undefined (NaN) in resamples or estimate; no interval given there',)
-    """
-    notes = []
-    if undefined_mask.any():
-        if estimate.dims:
-            index = np.argwhere(undefined_mask)[0]
-            where = " at " + _where(estimate, index)
-            more = int(undefined_mask.sum()) - 1
-            where += f" and {more} more" if more else ""
-        else:
-            where = ""
-        notes.append(f"bootstrap of {label}: undefined (NaN) in resamples or estimate{where}; "
-                     "no interval given there")
-    elif any(issubclass(w.category, UndefinedMetricWarning) for w in caught):
-        notes.append(f"bootstrap of {label}: undefined (0/0) in some of the {n} resamples; "
-                     "those resamples count as 0 (undefined='zero'), so the interval mixes "
-                     "them in")
-    return tuple(notes)
-
-
-def jackknife_moments(t: xr.DataArray, statistic, pooled: bool, estimate, label: str):
-    """Jackknife moments (num, den) of the BCa acceleration, O(nnz) statistic evaluations.
-
-    Deleting any one sample of a cell gives the same tensor, so the jackknife
-    runs over the nonzero cells of the statistic's input, each weighted by its
-    count. Each stratum (fold, when resampling is stratified) contributes
-    ``sum w U^3 / n^3`` and ``sum w U^2 / n^2`` with ``U = (n - 1)(mean - theta)``
-    (the multi-sample form of Efron & Tibshirani 1993, section 14.3). The
-    acceleration of :func:`interval` is ``num / (6 den^1.5)``.
-
-    Raises
-    ------
-    OptionError
-        When the statistic drops a leading dim of its input.
-
-    Examples
-    --------
-    >>> from foldcorr.metrics import rk
-    >>> from foldcorr.tensor import confusion_tensor
-    >>> t = confusion_tensor([[3, 1], [0, 4]], [0, 1])
-    >>> num, den = jackknife_moments(t, rk, True, rk(t), "R_K")
-    >>> float(den) > 0
-    True
-    """
-    by_fold = pooled and FOLD in t.dims
-    x = pool_folds(t, pooled)
-    xlead = tuple(d for d in x.dims if d not in (ACTUAL, PREDICTED))
-    dropped = [d for d in xlead if d not in estimate.dims]
-    if dropped:
-        raise OptionError(
-            f"method='bca' needs a statistic that keeps the leading dims {list(xlead)!r}; "
-            f"{label} drops {dropped!r}; use method='percentile'"
-        )
-    strata = Strata.of(x, (ACTUAL, PREDICTED))
-    s, width = strata.index.shape
-    k2 = strata.n_cells
-    xflat = np.concatenate([x.values.reshape(s, k2), np.zeros((s, 1), np.int64)], axis=1)
-    present = strata.counts > 0
-    if by_fold:
-        tf = t.transpose(FOLD, *xlead, ACTUAL, PREDICTED).values.reshape(t.sizes[FOLD], s, k2)
-        tf = np.concatenate([tf, np.zeros((t.sizes[FOLD], s, 1), np.int64)], axis=2)
-        index = np.broadcast_to(strata.index, tf.shape[:1] + strata.index.shape)
-        weights = np.take_along_axis(tf, index, axis=2)
-    else:
-        weights = strata.counts[None]
-    thetas = []
-    start = 0
-    for size in resample_blocks(width, x.size):
-        rows = np.arange(start, start + size)
-        block = np.repeat(xflat[None], size, axis=0)
-        cols = strata.index[:, rows].T
-        block[np.arange(size)[:, None], np.arange(s)[None, :], cols] -= present[:, rows].T
-        block = block[..., :k2].reshape(size, *x.shape)
-        jx = xr.DataArray(block, dims=("jack", *x.dims), coords=x.coords)
-        thetas.append(apply_statistic(statistic, jx, label))
-        start += size
-    theta = xr.concat(thetas, "jack")
-    lead_shape = [x.sizes[d] for d in xlead]
-    w = xr.DataArray(weights.reshape(weights.shape[0], *lead_shape, width).astype(float),
-                     dims=("stratum", *xlead, "jack"),
-                     coords={d: x.coords[d] for d in xlead if d in x.coords})
-    n = w.sum("jack")
-    safe = n.where(n > 0, 1.0)
-    mean = (w * theta).sum("jack") / safe
-    u = (n - 1) * (mean - theta)
-    num = ((w * u**3).sum("jack") / safe**3).where(n > 0, 0.0).sum("stratum")
-    den = ((w * u**2).sum("jack") / safe**2).where(n > 0, 0.0).sum("stratum")
-    num, den = xr.broadcast(num, den, estimate)[:2]
-    return num, den
 

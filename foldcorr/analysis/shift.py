@@ -21,7 +21,8 @@ import xarray as xr
 
 from foldcorr import metrics as m
 from foldcorr.errors import InvalidInputError, UndefinedMetricWarning, check_choice
-from foldcorr.tensor import ACTUAL, CLASS, FOLD, PREDICTED, validate_tensor
+from foldcorr.tensor import (ACTUAL, CLASS, PREDICTED, cell_sums, is_sparse, nonzero_cells, pool,
+                             validate_tensor)
 
 if TYPE_CHECKING:
     from numpy.typing import ArrayLike
@@ -113,7 +114,21 @@ def target_prevalence(t: xr.DataArray,
 
 def _support(t: xr.DataArray) -> np.ndarray:
     """Samples of each actual class, summed over every leading dim (tensor order)."""
-    return np.asarray(t.values).reshape(-1, t.sizes[ACTUAL], t.sizes[PREDICTED]).sum(axis=(0, 2))
+    return cell_sums(t)[1].reshape(-1, t.sizes[ACTUAL]).sum(axis=0)
+
+
+def _scale_rows(t: xr.DataArray, scale: np.ndarray) -> xr.DataArray:
+    """The tensor in float64 with row (..., i) multiplied by ``scale[..., i]``, same backing."""
+    if not is_sparse(t):
+        return t.copy(data=t.values.astype(np.float64) * scale[..., None])
+    import sparse
+
+    lead, actual, _, count = nonzero_cells(t)
+    factor = scale.reshape(-1, t.sizes[ACTUAL])[lead, actual]
+    data = t.data
+    keep = data.data != 0
+    return t.copy(data=sparse.COO(data.coords[:, keep], count * factor, shape=data.shape,
+                                  has_duplicates=False, sorted=True))
 
 
 def _share(name, value) -> float:
@@ -179,8 +194,7 @@ def shift_prevalence(t: xr.DataArray,
     """
     t = validate_tensor(t)
     pi = target_prevalence(t, prevalence).values
-    cells = t.values.astype(np.float64)
-    rows = cells.sum(axis=-1)
+    rows = cell_sums(t)[1]
     total = rows.sum(axis=-1, keepdims=True)
     missing = (rows == 0) & (pi > 0)
     if missing.any():
@@ -200,7 +214,7 @@ def shift_prevalence(t: xr.DataArray,
             f"share {share!r}; give it share 0 or pool the folds first")
     with np.errstate(divide="ignore", invalid="ignore"):
         scale = np.where(rows > 0, pi * total / np.where(rows > 0, rows, 1.0), 0.0)
-    out = t.copy(data=cells * scale[..., None])
+    out = _scale_rows(t, scale)
     out.attrs["prevalence_shift"] = ",".join(f"{c}={p:.6g}" for c, p in
                                              zip(t.coords[ACTUAL].values.tolist(), pi))
     return out
@@ -271,7 +285,8 @@ def shifted_figures(t: xr.DataArray, prevalence: str | Mapping[Any, float] | Arr
 
     Notes
     -----
-    Folds are pooled before the reweighting, so a class missing from one
+    The reweighting keeps the backing: a sparse tensor is scaled at its
+    nonzero cells, O(nonzero cells + K). Folds are pooled before the reweighting, so a class missing from one
     fold does not block the shift; per-fold figures are not recomputed.
 
     Examples
@@ -284,8 +299,9 @@ def shifted_figures(t: xr.DataArray, prevalence: str | Mapping[Any, float] | Arr
     """
     check_choice("undefined", undefined, m.UNDEFINED_CHOICES)
     t = validate_tensor(t)
-    pooled_t = t.sum(FOLD, keep_attrs=True) if FOLD in t.dims else t
-    rows = pooled_t.sum(PREDICTED).rename({ACTUAL: CLASS}).astype(np.float64)
+    pooled_t = pool(t)
+    rows = xr.DataArray(cell_sums(pooled_t)[1], dims=CLASS,
+                        coords={CLASS: pooled_t.coords[ACTUAL].values})
     observed = (rows / float(rows.sum())).rename("observed_prevalence")
     shifted = shift_prevalence(pooled_t, prevalence)
     notes: list[str] = []

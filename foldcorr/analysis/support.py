@@ -19,7 +19,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from foldcorr.tensor import ACTUAL, CLASS, PREDICTED
+from foldcorr.tensor import ACTUAL, CLASS, PREDICTED, cell_sums, pool
 
 __all__ = ["MIN_CLASS_SUPPORT", "thin_classes", "blank_thin_classes", "thin_note"]
 
@@ -43,8 +43,8 @@ def thin_classes(t: xr.DataArray, minimum: int = MIN_CLASS_SUPPORT) -> np.ndarra
     >>> thin_classes(tally([0] * 6 + [1] * 6, [0] * 6 + [1] * 6)).tolist()
     [True, True]
     """
-    c = t.sum([d for d in t.dims if d not in (ACTUAL, PREDICTED)]).values
-    support, predicted, correct = c.sum(axis=1), c.sum(axis=0), np.diagonal(c)
+    lead = [d for d in t.dims if d not in (ACTUAL, PREDICTED)]
+    correct, support, predicted = cell_sums(pool(t, lead))  # either backing
     return (support < minimum) | (correct < 1) | (support + predicted - 2 * correct < 1)
 
 

@@ -25,9 +25,10 @@ from foldcorr.analysis.clustered import (
 )
 from foldcorr.analysis.folds import FoldStatistics, fold_statistics
 from foldcorr.analysis.support import blank_thin_classes, thin_classes, thin_note
+from foldcorr.analysis.intervals import draw_notes, interval, jackknife_moments
 from foldcorr.analysis.resampling import (
-    METHODS, RESAMPLE, Strata, apply_statistic, check_level, check_resamples, draw_notes,
-    interval, jackknife_moments, pool_folds, statistic_draws, statistic_label, whole_counts,
+    METHODS, RESAMPLE, Strata, apply_statistic, check_level, check_resamples, pool_folds,
+    statistic_draws, statistic_label, whole_counts,
 )
 from foldcorr.errors import InvalidTensorError, UndefinedMetricWarning, check_choice
 from foldcorr.decomposition import decompose

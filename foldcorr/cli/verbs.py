@@ -431,17 +431,23 @@ def emit(args, staging, result, **context) -> None:
 
     Plain text without ``--output`` goes through a rich console (colour only on
     a terminal, never with ``NO_COLOR``); everything else is the text of
-    :func:`foldcorr.report.render`, written by :func:`write_out`. A file is
+    :func:`foldcorr.report.render`, written by
+    :func:`foldcorr.report.documents.write_to` (JSON piece by piece). A file is
     staged in ``staging`` (a :class:`foldcorr._files.Staging`) and appears
     only when the whole run succeeded. ``context`` is what the result's
     document takes (``top``, ``names``, ``source``).
     """
     from foldcorr.report import document
-    from foldcorr.report.documents import write
+    from foldcorr.report.documents import write_to
 
     doc = document(result, fmt=args.format, **context)
     if args.output or args.format != "text":
-        write_out(staging, args.output, write(doc, args.format))
+        # JSON goes out piece by piece: no string of the whole document at many classes
+        if args.output and args.output != "-":
+            with staging.writing(args.output) as tmp, open(tmp, "w", encoding="utf-8") as fh:
+                write_to(doc, args.format, fh)
+        else:
+            write_to(doc, args.format, sys.stdout)
     else:
         from foldcorr.report.text import render_rich
 

@@ -41,19 +41,20 @@ _SPEC_KEYS = ("truth", "pred", "fold", "weight", "classes")
 # ----------------------------------------------------------------------------
 # analyses: each is (evaluation, options, samples) -> evaluation, unchanged when not
 # asked for; samples holds per-sample data beside the tensor (``cluster``: ClusterCells).
-# The analyses still need every cell, so a sparse tensor is made dense for them here
-# (refused with a TensorTooLargeError when it would not fit in memory).
+# Repair, shift and intervals work from the nonzero cells, so a sparse tensor stays sparse;
+# only intervals over clusters take dense cells (refused with a TensorTooLargeError when
+# they would not fit in memory).
 
-#: Arrays of the tensor's size an analysis holds at once (cells in float64, moved cells,
-#: gains, counterfactual margins): an estimate from the repair analysis, the largest.
-ANALYSIS_COPIES = 6
+#: Arrays of the tensor's size the clustered intervals hold at once (the tensor and
+#: one block of resampled tensors, with room for the statistics' sums).
+ANALYSIS_COPIES = 3
 
 
 def _dense(ev):
     from foldcorr.tensor import as_dense
 
     return as_dense(ev.tensor, copies=ANALYSIS_COPIES,
-                    what="the analyses of score (repair, shift, intervals) on a tensor")
+                    what="intervals over clusters on a tensor")
 
 
 def _skipped_files(ev, options, samples):
@@ -69,7 +70,7 @@ def _shift(ev, options, samples):
         return ev
     from foldcorr.analysis.shift import shifted_figures
 
-    return ev.with_extra("shifted", shifted_figures(_dense(ev), options.prevalence,
+    return ev.with_extra("shifted", shifted_figures(ev.tensor, options.prevalence,
                                                     undefined=ev.undefined))
 
 
@@ -77,7 +78,7 @@ def _repair(ev, options, samples):
     from foldcorr.analysis.repair import repair_analysis
 
     # complete: every confusion is ranked and kept (JSON carries them all); reports cut to --top
-    return ev.with_extra("repair", repair_analysis(_dense(ev), top=None,
+    return ev.with_extra("repair", repair_analysis(ev.tensor, top=None,
                                                    undefined=options.undefined))
 
 
@@ -96,8 +97,10 @@ def _intervals(ev, options, samples):
 
     key, module, name = _INTERVALS[ev.kind]
     compute = getattr(importlib.import_module(module), name)
-    more = {} if samples.get("cluster") is None else {"cluster": samples["cluster"]}
-    return ev.with_extra(key, compute(_dense(ev), **settings, **more, undefined=ev.undefined))
+    if samples.get("cluster") is None:
+        return ev.with_extra(key, compute(ev.tensor, **settings, undefined=ev.undefined))
+    return ev.with_extra(key, compute(_dense(ev), **settings, cluster=samples["cluster"],
+                                      undefined=ev.undefined))
 
 
 #: Per tensor kind: its analyses, in the order they run (one evaluation serves every kind).

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 from foldcorr.report.tables import Report
 
-__all__ = ["Document", "write", "write_text", "write_json", "write_markdown",
+__all__ = ["Document", "write", "write_to", "write_text", "write_json", "write_markdown",
            "write_html"]
 
 
@@ -86,3 +86,22 @@ def write(doc: Document, fmt: str) -> str:
     check_choice("format", fmt, FORMATS)
     module, name = WRITERS[fmt].split(":")
     return getattr(importlib.import_module(module), name)(doc)
+
+
+def write_to(doc: Document, fmt: str, out) -> None:
+    """Write a Document in ``fmt`` to a text stream; JSON piece by piece, never one string.
+
+    Examples
+    --------
+    >>> import io
+    >>> out = io.StringIO()
+    >>> write_to(Document(Report("t", (), ()), lambda: {"schema": "x"}), "json", out)
+    >>> out.getvalue()
+    '{\\n  "schema": "x"\\n}\\n'
+    """
+    if fmt == "json":
+        from foldcorr.report.json import dump
+
+        dump(doc.make_json(), out)
+    else:
+        out.write(write(doc, fmt))

@@ -25,7 +25,7 @@ from foldcorr.evaluation import Evaluation
 from foldcorr.figures import MULTILABEL, PER_FOLD, POOLED
 from foldcorr.report.sections import hooks
 
-__all__ = ["SCORE_SCHEMA", "MULTILABEL_SCHEMA", "score_dict", "dumps", "plain", "pooled_figures",
+__all__ = ["SCORE_SCHEMA", "MULTILABEL_SCHEMA", "score_dict", "dumps", "dump", "plain", "pooled_figures",
            "fold_rows", "row_entries"]
 
 SCORE_SCHEMA = "foldcorr.score/2"
@@ -172,3 +172,24 @@ def dumps(doc: dict) -> str:
     '{\\n  "a": 1\\n}\\n'
     """
     return json.dumps(plain(doc), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def dump(doc: dict, out) -> None:
+    """Write :func:`dumps` of a document to a text stream piece by piece.
+
+    The text equals :func:`dumps`, but no string of the whole document is
+    built: the encoder's pieces go straight to ``out``, so a document of
+    every class at many classes costs memory for its values, not for its text.
+
+    Examples
+    --------
+    >>> import io
+    >>> out = io.StringIO()
+    >>> dump({"a": [1, 2]}, out)
+    >>> out.getvalue() == dumps({"a": [1, 2]})
+    True
+    """
+    encoder = json.JSONEncoder(indent=2, ensure_ascii=False, allow_nan=False)
+    for piece in encoder.iterencode(plain(doc)):
+        out.write(piece)
+    out.write("\n")

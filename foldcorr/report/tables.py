@@ -341,7 +341,8 @@ def class_table(ev: Evaluation, top: int | None = 20, *, brief: int | None = Non
     listed = chosen(top)
     shown = len(listed)
     figures = ev.figures(dim)
-    keys = [_py(d.coords[dim].values[i]) for i in listed]
+    labels = d.coords[dim].values  # once: an Arrow-backed index converts on every access
+    keys = [_py(labels[i]) for i in listed]
     rows = [(key, *(figure_cell(d, i, fig) for fig in figures)) for i, key in zip(listed, keys)]
     columns = (Column(dim, "label"), *(figure_column(fig) for fig in figures))
     columns, rows = _extra_columns(ev, "class_columns", columns, rows, keys, figures=figures,

@@ -36,13 +36,13 @@ __all__ = [
     "cell_sums",
     "integer_sums",
     "top_off_diagonal",
+    "nonzero_cells",
 ]
 
 #: Counting from labels keeps a dense array up to this many cells (folds x K x K,
 #: 1 GiB of int64: K = 5,000 with 5 folds) and counts only the distinct cells above
-#: it. Dense is as fast or faster below it (``docs/many-classes.md``), and every
-#: analysis, plot and saved file takes a dense tensor; above it a dense array is
-#: what does not fit.
+#: it. Dense is as fast or faster below it (``docs/many-classes.md``), and plots
+#: and saved files take a dense tensor; above it a dense array is what does not fit.
 DENSE_CELL_LIMIT = 1 << 27
 
 
@@ -392,3 +392,37 @@ def top_off_diagonal(t: xr.DataArray):
     count[rows[first]] = vals[first]
     index[count <= 0] = 0
     return index.reshape(data.shape[:-1]), count.reshape(data.shape[:-1])
+
+
+def nonzero_cells(t: xr.DataArray):
+    """The nonzero cells of a tensor, in C order, for either backing.
+
+    Parameters
+    ----------
+    t : xarray.DataArray
+        A tensor in normal form (dims ``(..., "actual", "predicted")``).
+
+    Returns
+    -------
+    lead, actual, predicted, count : numpy.ndarray
+        One entry per nonzero cell: the flat index of its slice over the
+        leading dims (0 without leading dims), its row and column, and its
+        count (the tensor's dtype). O(nonzero cells) for a sparse tensor,
+        one scan of the cells for a dense one.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> [a.tolist() for a in nonzero_cells(confusion_tensor([[3, 1], [0, 4]], ["a", "b"]))]
+    [[0, 0, 0], [0, 0, 1], [0, 1, 1], [3, 1, 4]]
+    """
+    data = t.data
+    if is_sparse(data):
+        rows, _, _ = _row_keys(data)
+        k = data.shape[-1]
+        keep = data.data != 0
+        return rows[keep] // k, data.coords[-2][keep], data.coords[-1][keep], data.data[keep]
+    k = data.shape[-1]
+    flat = np.asarray(data).reshape(-1, k, k)
+    lead, actual, predicted = np.nonzero(flat)
+    return lead, actual, predicted, flat[lead, actual, predicted]

@@ -14,6 +14,7 @@ import numpy as np
 import xarray as xr
 
 from foldcorr.errors import InvalidTensorError
+from foldcorr.tensor.backing import DENSE_CELL_LIMIT, is_sparse, sum_cells
 from foldcorr.tensor.counting import tally_columns
 from foldcorr.tensor.dims import ACTUAL, COUNT, FOLD, PREDICTED, validate_tensor
 
@@ -74,7 +75,9 @@ def joint_tally(truth: ArrayLike, pred_a: ArrayLike, pred_b: ArrayLike, *,
     Counted by :func:`foldcorr.tensor.tally_columns`: one factorisation codes
     the three columns over one class list, and one ``numpy.bincount`` over
     ``((fold K + actual) K + a) K + b`` counts them.
-    The tensor is dense: K^3 cells per fold.
+    The tensor is dense while folds x K^3 stays within
+    :data:`~foldcorr.tensor.DENSE_CELL_LIMIT` cells; above it only the joint
+    cells seen are stored (a ``sparse.COO``, at most one per sample).
 
     Examples
     --------
@@ -87,7 +90,7 @@ def joint_tally(truth: ArrayLike, pred_a: ArrayLike, pred_b: ArrayLike, *,
     columns = {ACTUAL: (names[0], truth), PREDICTED_A: (names[1], pred_a),
                PREDICTED_B: (names[2], pred_b)}
     leading = {} if folds is None else {FOLD: folds}
-    return tally_columns(columns, leading=leading, classes=classes)
+    return tally_columns(columns, leading=leading, classes=classes, sparse_above=DENSE_CELL_LIMIT)
 
 
 def validate_joint(j) -> xr.DataArray:
@@ -133,11 +136,11 @@ def validate_joint(j) -> xr.DataArray:
                 f"the class coordinates of {ACTUAL!r} and {d!r} differ: {ref.tolist()!r} "
                 f"and {got.tolist()!r}")
     j = j.assign_coords({d: ref for d in JOINT_DIMS})
-    values = np.asarray(j.values)
+    values = j.data.data if is_sparse(j) else np.asarray(j.values)
     if not np.issubdtype(values.dtype, np.number) or (values < 0).any():
         raise InvalidTensorError("joint counts must be non-negative numbers")
     if not np.issubdtype(values.dtype, np.floating):
-        j = j.copy(data=values.astype(np.int64, copy=False))
+        j = j.copy(data=j.data.astype(np.int64, copy=False))
     elif not np.isfinite(values).all():
         raise InvalidTensorError("joint counts must be finite")
     return j.rename(COUNT)
@@ -154,6 +157,6 @@ def model_tensors(j: xr.DataArray) -> tuple[xr.DataArray, xr.DataArray]:
     ([[1, 1], [0, 1]], [[2, 0], [1, 0]])
     """
     j = validate_joint(j)
-    a = j.sum(PREDICTED_B).rename({PREDICTED_A: PREDICTED})
-    b = j.sum(PREDICTED_A).rename({PREDICTED_B: PREDICTED})
+    a = sum_cells(j, PREDICTED_B).rename({PREDICTED_A: PREDICTED})
+    b = sum_cells(j, PREDICTED_A).rename({PREDICTED_B: PREDICTED})
     return validate_tensor(a), validate_tensor(b)
