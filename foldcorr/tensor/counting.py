@@ -41,8 +41,7 @@ _DIRECT_MAX = 1 << 16
 
 
 def tally(truth: ArrayLike, pred: ArrayLike, *, folds: ArrayLike | None = None,
-          weights: ArrayLike | None = None,
-          classes: ArrayLike | None = None) -> xr.DataArray:
+          weights: ArrayLike | None = None, classes: ArrayLike | None = None) -> xr.DataArray:
     """Count (actual, predicted) pairs into a confusion tensor.
 
     Parameters
@@ -364,20 +363,12 @@ def unknown_label_message(name: str, row: int, value, n_bad: int, labels) -> str
     >>> unknown_label_message("actual", 0, None, 1, ["cat"])
     "column 'actual' row 1: label nan is not among the classes ['cat'] (1 rows outside them)"
     """
-    if _is_missing(value):
-        value = float("nan")
+    if value is None or (pd.api.types.is_scalar(value) and bool(pd.isna(value))):
+        value = float("nan")  # None, NaN or pandas' NA: shown alike whatever the reader
     labels = list(labels)
     shown = ", ".join(repr(c) for c in labels[:10]) + (", ..." if len(labels) > 10 else "")
     return (f"column {name!r} row {row + 1}: label {value!r} is not among the classes "
             f"[{shown}] ({n_bad} rows outside them)")
-
-
-def _is_missing(value) -> bool:
-    """None, NaN or pandas' NA (which has no truth value): shown as ``nan`` whatever the reader."""
-    try:
-        return value is None or bool(value != value)
-    except (TypeError, ValueError):
-        return True
 
 
 def bad_weight_message(row: int, value) -> str:
