@@ -42,7 +42,7 @@ def test_json_matches_reference(capsys, table):
     code, out, err = run(capsys, "score", path, "--format", "json")
     assert code == 0
     doc = json.loads(out)
-    assert doc["schema"] == "foldcorr.score/1"
+    assert doc["schema"] == "foldcorr.score/2"
     y, p = df.actual, df.predicted
     pooled = doc["pooled"]
     assert abs(pooled["rk"] - matthews_corrcoef(y, p)) < 1e-12
@@ -111,7 +111,7 @@ def test_output_file_is_written_whole(capsys, table, tmp_path):
     out_file = tmp_path / "score.json"
     code, out, _ = run(capsys, "score", path, "--format", "json", "--output", out_file)
     assert code == 0 and out == ""
-    assert json.loads(out_file.read_text())["schema"] == "foldcorr.score/1"
+    assert json.loads(out_file.read_text())["schema"] == "foldcorr.score/2"
     assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
 
 

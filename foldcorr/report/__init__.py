@@ -51,7 +51,7 @@ def render(result, fmt: str = "text", *, top: int | None = 20, **context) -> str
     >>> from foldcorr.tensor import confusion_tensor
     >>> from foldcorr.evaluation import evaluate
     >>> render(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])), "json")[:32]
-    '{\\n  "schema": "foldcorr.score/1"'
+    '{\\n  "schema": "foldcorr.score/2"'
     """
     from foldcorr.report.documents import write
 

@@ -4,7 +4,7 @@ The keys of figures come from :data:`foldcorr.figures.FIGURES`, so JSON
 carries what the text tables show, and always every class, label and fold
 (``--top`` limits rows of text, Markdown and HTML only).
 
-``foldcorr.score/1`` keys: ``schema``, ``source``, ``n``, ``classes``,
+``foldcorr.score/2`` keys: ``schema``, ``source``, ``n``, ``classes``,
 ``undefined``, ``pooled``, ``folds``, ``fold_summary``, ``per_class`` and
 ``warnings``. ``foldcorr.multilabel/1`` keys: ``schema``, ``source``,
 ``undefined``, ``labels``, ``n``, ``micro_mcc``, ``macro_mcc``,
@@ -28,7 +28,7 @@ from foldcorr.report.sections import hooks
 __all__ = ["SCORE_SCHEMA", "MULTILABEL_SCHEMA", "score_dict", "dumps", "plain", "pooled_figures",
            "fold_rows", "row_entries"]
 
-SCORE_SCHEMA = "foldcorr.score/1"
+SCORE_SCHEMA = "foldcorr.score/2"
 MULTILABEL_SCHEMA = "foldcorr.multilabel/1"
 
 
@@ -113,7 +113,7 @@ def row_entries(ev: Evaluation) -> list[dict]:
 
 
 def score_dict(ev: Evaluation) -> dict:
-    """The JSON document of an evaluation: ``foldcorr.score/1`` or, multilabel, ``MULTILABEL_SCHEMA``.
+    """The JSON document of an evaluation: ``foldcorr.score/2`` or, multilabel, ``MULTILABEL_SCHEMA``.
 
     Examples
     --------
@@ -121,7 +121,7 @@ def score_dict(ev: Evaluation) -> dict:
     >>> from foldcorr.evaluation import evaluate
     >>> doc = score_dict(evaluate(confusion_tensor([[6, 2], [1, 3]], ["p", "n"])))
     >>> doc["schema"], doc["n"], round(doc["pooled"]["rk"], 6), doc["folds"]
-    ('foldcorr.score/1', 12, 0.478091, [])
+    ('foldcorr.score/2', 12, 0.478091, [])
     >>> from foldcorr.tensor import multilabel_tally
     >>> ml = score_dict(evaluate(multilabel_tally([[1, 0], [0, 1]], [[1, 0], [1, 1]],
     ...                                            labels=["gull", "tern"])))

@@ -68,7 +68,7 @@ def tables(ev, top):
 
 
 def json(ev, doc) -> None:
-    """Add ``shifted`` to a ``foldcorr.score/1`` document.
+    """Add ``shifted`` to a ``foldcorr.score/2`` document.
 
     Examples
     --------

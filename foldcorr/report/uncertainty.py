@@ -105,7 +105,7 @@ def _py(value):
 
 
 def json(ev, doc) -> None:
-    """Add the interval keys to a ``foldcorr.score/1`` document."""
+    """Add the interval keys to a ``foldcorr.score/2`` document."""
     u = ev.extras[KEY]
     doc["pooled"]["rk_ci"] = _pair(u.rk.low, u.rk.high)
     for entry in doc.get("folds") or []:
