@@ -182,8 +182,8 @@ def group_split(t, mapping: Mapping, *, other=None, undefined: str = "zero") -> 
     .. math:: \text{inside} = \tfrac12\big[(R_I - R_\emptyset) + (1 - R_B)\big], \qquad
               \text{between} = \tfrac12\big[(R_B - R_\emptyset) + (1 - R_I)\big],
 
-    which add up to :math:`1 - R_K` exactly. Either part can be negative when
-    repairing one kind of confusion alone lowers R_K.
+    which add up to :math:`1 - R_K` exactly (should repairing one kind of
+    confusion alone ever lower R_K, its part is negative).
 
     Examples
     --------
