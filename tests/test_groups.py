@@ -195,10 +195,15 @@ def test_cli_groups_missing_class_is_one_line_exit_2(tmp_path, capsys):
 
 def test_demo_with_the_invented_plankton_groups(tmp_path, capsys):
     # fixtures/plankton_groups.csv is an invented grouping of the demo's invented taxa
+    saved = tmp_path / "demo.nc"
     assert main(["demo", "--out", str(tmp_path), "--samples", "3000", "--groups",
-                 str(FIXTURES / "plankton_groups.csv"), "--format", "json"]) == 0
-    out = capsys.readouterr().out
-    doc = json.loads(out[: out.rindex("}") + 1])
+                 str(FIXTURES / "plankton_groups.csv"), "--format", "json",
+                 "--output", str(tmp_path / "d.json"), "--save", str(saved)]) == 0
+    doc = json.loads((tmp_path / "d.json").read_text())
     assert [e["level"] for e in doc["groups"]] == ["group", "living"]
     for entry in doc["groups"]:
         assert abs(sum(g["share"] for g in entry["groups"]) - (1 - doc["pooled"]["rk"])) < 1e-9
+    capsys.readouterr()
+    # a saved evaluation keeps its groups: show renders the same document
+    assert main(["show", str(saved), "--format", "json"]) == 0
+    assert json.loads(capsys.readouterr().out)["groups"] == doc["groups"]

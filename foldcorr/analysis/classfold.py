@@ -36,11 +36,11 @@ def move_spread(n_classes: int) -> int:
 
 
 def _ranks(values: np.ndarray) -> np.ndarray:
-    """1 for the largest value along the last axis; ties share the best rank."""
+    """1 for the largest value along the last axis; ties share the worst rank."""
     rows = values.reshape(-1, values.shape[-1])
     out = np.empty(rows.shape, dtype=np.int64)
     for i, row in enumerate(rows):
-        out[i] = 1 + np.searchsorted(np.sort(-row), -row, side="left")
+        out[i] = np.searchsorted(np.sort(-row), -row, side="right")
     return out.reshape(values.shape)
 
 
@@ -61,8 +61,10 @@ def class_by_fold(t, *, undefined: str = "zero") -> xr.Dataset:
     xarray.Dataset
         Dims ``(fold, class)``: ``mcc``, ``shortfall_share`` (of that fold's
         1 - R_K, see :func:`foldcorr.decomposition.decompose`) and ``rank``
-        (1 for the largest share in the fold; shares are rounded to 12
-        decimals first, so that rounding noise does not break ties). Dim
+        (1 for the largest share in the fold; ties share the worst rank, so
+        that classes without any cost in a fold sit at the bottom together;
+        shares are rounded to 12 decimals first, so that rounding noise does
+        not break ties). Dim
         ``class``: ``rank_best``, ``rank_worst``, and ``moves`` (rank spread
         at least :func:`move_spread` of K).
 
@@ -77,7 +79,7 @@ def class_by_fold(t, *, undefined: str = "zero") -> xr.Dataset:
     >>> t = tally(list("aabbcc") * 2, list("abbbca") + list("aabcbc"), folds=[1] * 6 + [2] * 6)
     >>> cf = class_by_fold(t)
     >>> cf["rank"].values.tolist(), cf["mcc"].round(3).values.tolist()[0]
-    ([[1, 2, 3], [3, 1, 1]], [0.25, 0.707, 0.632])
+    ([[1, 2, 3], [3, 2, 2]], [0.25, 0.707, 0.632])
     """
     t = validate_tensor(t)
     if FOLD not in t.dims:

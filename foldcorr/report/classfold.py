@@ -42,7 +42,7 @@ def rank_column(ev) -> list:
     >>> from foldcorr.tensor import tally
     >>> t = tally(list("aabbcc") * 2, list("abbbca") + list("aabcbc"), folds=[1] * 6 + [2] * 6)
     >>> [(c.title, v) for c, v in rank_column(evaluate(t))]
-    [('fold ranks', {'a': '1-3 steady', 'b': '1-2 steady', 'c': '1-3 steady'})]
+    [('fold ranks', {'a': '1-3 steady', 'b': '2 steady', 'c': '2-3 steady'})]
     """
     cf = ev.per_class_fold
     if cf is None:
@@ -61,7 +61,7 @@ def class_fold_table(ev, top: int | None = 20) -> Table | None:
     >>> from foldcorr.tensor import tally
     >>> t = tally(list("aabbcc") * 2, list("abbbca") + list("aabcbc"), folds=[1] * 6 + [2] * 6)
     >>> class_fold_table(evaluate(t)).cells()[0]
-    ['b', '0.71 / .110', '0.25 / .250', '1-2 steady']
+    ['b', '0.71 / .110', '0.25 / .250', '2 steady']
     """
     cf = ev.per_class_fold
     if cf is None:
