@@ -258,8 +258,8 @@ class Evaluation:
     @property
     def rank_words(self) -> str:
         """How :meth:`ranked` orders the rows, in words (``"shortfall share"``, ...)."""
-        return "cost" if self.kind == fg.MULTILABEL and self.rank_by == "share" else \
-            RANK_BY[self.rank_by][1]
+        cost = self.kind == fg.MULTILABEL and self.rank_by == "share"
+        return "cost" if cost else RANK_BY[self.rank_by][1]
 
     def _gains(self) -> np.ndarray:
         """Per-class gain from repairing all of a class's errors, in tensor order."""

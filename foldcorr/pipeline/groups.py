@@ -54,7 +54,16 @@ class GroupLevel:
 
     @property
     def rk(self) -> float:
-        """Group-level R_K (pooled over folds)."""
+        """Group-level R_K (pooled over folds).
+
+        Examples
+        --------
+        >>> from foldcorr.evaluation import evaluate
+        >>> from foldcorr.tensor import confusion_tensor
+        >>> ev = evaluate(confusion_tensor([[5, 1, 0], [2, 4, 1], [0, 1, 6]], ["a", "b", "c"]))
+        >>> round(evaluate_groups(ev, {"a": 1, "b": 1, "c": 2}).levels[0].rk, 4)
+        0.7802
+        """
         return self.evaluation.rk
 
 
@@ -82,6 +91,14 @@ class ClassGroups:
         ------
         KeyError
             When there is no such level.
+
+        Examples
+        --------
+        >>> from foldcorr.evaluation import evaluate
+        >>> from foldcorr.tensor import confusion_tensor
+        >>> ev = evaluate(confusion_tensor([[5, 1, 0], [2, 4, 1], [0, 1, 6]], ["a", "b", "c"]))
+        >>> evaluate_groups(ev, {"genus": {"a": 1, "b": 1, "c": 2}}).level("genus").members
+        {1: ['a', 'b'], 2: ['c']}
         """
         for level in self.levels:
             if level.name == name:

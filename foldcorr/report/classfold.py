@@ -95,7 +95,18 @@ def _share(value: float) -> str:
 
 
 def json(ev, doc: dict) -> None:
-    """Add ``per_class_fold``: every class, in class-table order (see docs/json.md)."""
+    """Add ``per_class_fold``: every class, in class-table order (see docs/json.md).
+
+    Examples
+    --------
+    >>> from foldcorr.evaluation import evaluate
+    >>> from foldcorr.tensor import tally
+    >>> t = tally(list("aabbcc") * 2, list("abbbca") + list("aabcbc"), folds=[1] * 6 + [2] * 6)
+    >>> doc = {}
+    >>> json(evaluate(t), doc)
+    >>> [(e["class"], e["rank_best"], e["rank_worst"]) for e in doc["per_class_fold"]]
+    [('b', 2, 2), ('c', 2, 3), ('a', 1, 3)]
+    """
     cf = ev.per_class_fold
     if cf is None:
         return

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from foldcorr.report.tables import Column, Table, format_value
 
-__all__ = ["KEY", "tables", "json", "summary_notes", "GROUP_FIGURES"]
+__all__ = ["KEY", "tables", "json", "levels_table", "level_table", "GROUP_FIGURES"]
 
 #: Extras key of this section.
 KEY = "groups"
@@ -29,11 +29,6 @@ def _interval_text(level) -> str:
         return ""
     return (f"[{format_value(float(res.low), 'metric')}, "
             f"{format_value(float(res.high), 'metric')}]")
-
-
-def summary_notes(ev) -> dict:
-    """Nothing beside the pooled figures: the group levels have their own table."""
-    return {}
 
 
 def levels_table(ev) -> Table:
@@ -72,7 +67,19 @@ def levels_table(ev) -> Table:
 
 
 def level_table(ev, level, top: int | None = 20) -> Table:
-    """The groups of one level, by their share of 1 - R_K, with the group-level figures."""
+    """The groups of one level, by their share of 1 - R_K, with the group-level figures.
+
+    Examples
+    --------
+    >>> from foldcorr.evaluation import evaluate
+    >>> from foldcorr.pipeline.groups import evaluate_groups
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> t = confusion_tensor([[5, 1, 0], [2, 4, 1], [0, 1, 6]], ["cat", "lynx", "dog"])
+    >>> ev = evaluate(t)
+    >>> ev = ev.with_extra("groups", evaluate_groups(ev, {"cat": "f", "lynx": "f", "dog": "c"}))
+    >>> [row[:2] for row in level_table(ev, ev.extras["groups"].levels[0]).rows]
+    [('f', 2), ('c', 1)]
+    """
     from foldcorr.report.tables import figure_cell, figure_column
 
     group_ev = level.evaluation
@@ -101,13 +108,39 @@ def _members(ev, level) -> dict:
 
 
 def tables(ev, top: int | None = 20) -> list:
-    """The levels table and one table of groups per level."""
+    """The levels table and one table of groups per level.
+
+    Examples
+    --------
+    >>> from foldcorr.evaluation import evaluate
+    >>> from foldcorr.pipeline.groups import evaluate_groups
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> t = confusion_tensor([[5, 1, 0], [2, 4, 1], [0, 1, 6]], ["cat", "lynx", "dog"])
+    >>> ev = evaluate(t)
+    >>> ev = ev.with_extra("groups", evaluate_groups(ev, {"cat": "f", "lynx": "f", "dog": "c"}))
+    >>> [table.title for table in tables(ev)]
+    ['Class groups', 'Groups (group) by share of 1 - R_K']
+    """
     result = ev.extras[KEY]
     return [levels_table(ev), *(level_table(ev, level, top) for level in result.levels)]
 
 
 def json(ev, doc: dict) -> None:
-    """Add ``groups``: one entry per level (see docs/json.md)."""
+    """Add ``groups``: one entry per level (see docs/json.md).
+
+    Examples
+    --------
+    >>> from foldcorr.evaluation import evaluate
+    >>> from foldcorr.pipeline.groups import evaluate_groups
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> t = confusion_tensor([[5, 1, 0], [2, 4, 1], [0, 1, 6]], ["cat", "lynx", "dog"])
+    >>> ev = evaluate(t)
+    >>> ev = ev.with_extra("groups", evaluate_groups(ev, {"cat": "f", "lynx": "f", "dog": "c"}))
+    >>> doc = {}
+    >>> json(ev, doc)
+    >>> [g["group"] for g in doc["groups"][0]["groups"]], round(doc["groups"][0]["rk"], 4)
+    (['f', 'c'], 0.7802)
+    """
     out = []
     for level in ev.extras[KEY].levels:
         group_ev = level.evaluation
