@@ -12,6 +12,9 @@ import importlib.util
 import warnings
 
 __all__ = [
+    "undefined_places",
+    "places_text",
+    "Recorder",
     "FoldcorrError",
     "InvalidTensorError",
     "InvalidInputError",
@@ -125,6 +128,79 @@ def check_choice(name: str, value, allowed) -> None:
     if value not in allowed:
         listed = ", ".join(repr(a) for a in allowed)
         raise OptionError(f"`{name}` must be one of {listed}; got {value!r}")
+
+
+def undefined_places(caught, *, skip=("resample",)) -> dict:
+    """Where recorded undefined-value warnings happened: dim -> labels, in order of first report.
+
+    Reads the ``places`` that the metrics attach to each
+    :class:`UndefinedMetricWarning` (dims in ``skip`` left out).
+
+    Examples
+    --------
+    >>> w = UndefinedMetricWarning("one-vs-rest MCC is undefined")
+    >>> w.places = {"resample": [0, 4], "class": ["cod", "hake"]}
+    >>> with warnings.catch_warnings(record=True) as caught:
+    ...     warnings.simplefilter("always")
+    ...     warnings.warn(w)
+    >>> undefined_places(caught)
+    {'class': ['cod', 'hake']}
+    """
+    out: dict = {}
+    for w in caught:
+        for dim, labels in getattr(w.message, "places", {}).items():
+            if dim not in skip:
+                out.setdefault(dim, {}).update(dict.fromkeys(labels))
+    return {dim: list(labels) for dim, labels in out.items()}
+
+
+def places_text(places: dict, *, most: int = 5) -> str:
+    """Places of :func:`undefined_places` in words, e.g. ``"class 'cod', 'hake'; fold 2"``.
+
+    Examples
+    --------
+    >>> places_text({"class": ["cod", "hake"], "fold": [2]})
+    "class 'cod', 'hake'; fold 2"
+    >>> places_text({"class": list(range(8))}, most=3)
+    'class 0, 1, 2 and 5 more'
+    """
+    parts = []
+    for dim, labels in places.items():
+        shown = ", ".join(repr(v) for v in labels[:most])
+        more = f" and {len(labels) - most} more" if len(labels) > most else ""
+        parts.append(f"{dim} {shown}{more}")
+    return "; ".join(parts)
+
+
+class Recorder:
+    """A statistic that records its own undefined-value warnings, apart from other statistics.
+
+    Several statistics computed on the same resamples each get a recorder, so
+    that a warning of one (a per-class MCC) is never attributed to another (R_K).
+
+    Examples
+    --------
+    >>> def stat(x):
+    ...     warnings.warn("undefined", UndefinedMetricWarning)
+    ...     return x
+    >>> rec = Recorder(stat)
+    >>> rec(3), len(rec.caught)
+    (3, 1)
+    """
+
+    def __init__(self, statistic):
+        self.statistic = statistic
+        self.caught: list = []
+
+    def __call__(self, *args, **kwargs):
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", UndefinedMetricWarning)
+            out = self.statistic(*args, **kwargs)
+        self.caught.extend(w for w in caught if issubclass(w.category, UndefinedMetricWarning))
+        for w in caught:
+            if not issubclass(w.category, UndefinedMetricWarning):
+                warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+        return out
 
 
 def collect_undefined(notes: list, context: str, compute):

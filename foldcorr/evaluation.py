@@ -10,6 +10,7 @@ gate take that object; they never compute.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -19,14 +20,24 @@ import xarray as xr
 from foldcorr import figures as fg
 from foldcorr import metrics as m
 from foldcorr.decomposition import FLAGS
-from foldcorr.errors import InvalidTensorError, check_choice, collect_undefined
+from foldcorr.errors import (InvalidTensorError, UndefinedMetricWarning, check_choice,
+                             collect_undefined)
 from foldcorr.tensor import ACTUAL, CLASS, FOLD, LABEL, PREDICTED, pool, py_value, validate_tensor
 
-__all__ = ["Evaluation", "FoldSummary", "FRAME_KINDS", "evaluate", "tensor_kind", "compute_figures"]
+__all__ = ["Evaluation", "FoldSummary", "FRAME_KINDS", "RANK_BY", "evaluate", "tensor_kind",
+           "compute_figures"]
 
 #: Accuracy at or above this while R_K is below ACCURACY_HIDES_RK gets a warning.
 ACCURACY_LOOKS_GOOD = 0.9
 ACCURACY_HIDES_RK = 0.5
+
+#: Orders of the class table: ``--rank-by`` name -> (figure key, words, largest first).
+#: ``share`` is the shortfall share of a class (the cost of a label); ``gain`` the gain in
+#: R_K from repairing every error of the class (the repair analysis's ``gain_fix_both``).
+RANK_BY = {"share": (None, "shortfall share", True), "mcc": ("mcc", "MCC, lowest first", False),
+           "recall": ("recall", "recall, lowest first", False),
+           "precision": ("precision", "precision, lowest first", False),
+           "gain": ("gain_fix_both", "gain from repairing all their errors", True)}
 
 #: What each scope's undefined values are called in the warnings.
 CONTEXT = {fg.POOLED: "pooled", fg.PER_CLASS: "pooled", fg.PER_LABEL: "per label",
@@ -107,6 +118,11 @@ class Evaluation:
     per_label : xarray.Dataset or None
         Multilabel: dim ``label``, the per-label figures of the registry,
         sorted by ``cost``, largest first. None for a multiclass tensor.
+    rank_by : str
+        Order of :meth:`ranked`, a key of :data:`RANK_BY` (default ``"share"``).
+    per_class_fold : xarray.Dataset or None
+        Multiclass with folds: :func:`foldcorr.analysis.classfold.class_by_fold`
+        (per-class MCC, shortfall share and rank in each fold); else None.
     """
 
     tensor: xr.DataArray
@@ -119,6 +135,8 @@ class Evaluation:
     extras: dict = field(default_factory=dict)
     kind: str = fg.MULTICLASS
     per_label: xr.Dataset | None = None
+    rank_by: str = "share"
+    per_class_fold: xr.Dataset | None = None
 
     @property
     def row_scope(self) -> str:
@@ -201,10 +219,17 @@ class Evaluation:
         """
         return _number(self.pooled[name])
 
-    def ranked(self) -> xr.Dataset:
-        """The row table in report order: classes by shortfall share, labels by cost, largest first.
+    def ranked(self, by: str | None = None) -> xr.Dataset:
+        """The row table in report order, by :attr:`rank_by` unless ``by`` names another.
 
-        Ties keep tensor order.
+        ``"share"``: by shortfall share (labels by cost), largest first; ``"mcc"``, ``"recall"``,
+        ``"precision"``: lowest first (undefined last); ``"gain"``: by the gain in R_K from
+        repairing all the class's errors, largest first (multiclass). Ties keep tensor order.
+
+        Raises
+        ------
+        OptionError
+            An unknown order, or ``"gain"`` of a multilabel evaluation.
 
         Examples
         --------
@@ -212,15 +237,46 @@ class Evaluation:
         >>> ev = evaluate(confusion_tensor([[6, 0], [3, 3]], ["p", "n"]))
         >>> ev.ranked()["class"].values.tolist()
         ['p', 'n']
+        >>> t = confusion_tensor([[9, 1, 0], [2, 1, 0], [0, 0, 30]], ["a", "b", "c"])
+        >>> evaluate(t).ranked("recall")["class"].values.tolist()
+        ['b', 'a', 'c']
         """
+        by = self.rank_by if by is None else by
+        _check_rank_by(self.kind, by)
         rows = self.rows
-        key = fg.RANKED_BY[self.row_scope]
-        order = np.argsort(-rows[key].fillna(0.0).values, kind="stable")
+        key, _, largest_first = RANK_BY[by]
+        if by == "gain":
+            values = self._gains()
+        else:
+            values = rows[fg.RANKED_BY[self.row_scope] if key is None else key].values
+        values = np.asarray(values, dtype=float)
+        fill = -np.inf if largest_first else np.inf
+        keyed = np.where(np.isnan(values), fill, values)
+        order = np.argsort(-keyed if largest_first else keyed, kind="stable")
         return rows.isel({self.row_scope: order})
 
+    @property
+    def rank_words(self) -> str:
+        """How :meth:`ranked` orders the rows, in words (``"shortfall share"``, ...)."""
+        cost = self.kind == fg.MULTILABEL and self.rank_by == "share"
+        return "cost" if cost else RANK_BY[self.rank_by][1]
+
+    def _gains(self) -> np.ndarray:
+        """Per-class gain from repairing all of a class's errors, in tensor order."""
+        repair = self.extras.get("repair")
+        if repair is not None:
+            return repair.per_class["gain_fix_both"].sel({CLASS: self.classes}).values
+        from foldcorr.analysis.gains import class_gains
+        from foldcorr.tensor.backing import as_dense
+
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", UndefinedMetricWarning)
+            gains = class_gains(as_dense(pool(self.tensor)), undefined=self.undefined)
+        return gains["gain_fix_both"].values
+
     def by_drag(self) -> xr.Dataset:
-        """The per-class table in report order (:meth:`ranked`): by shortfall share, largest first."""
-        return self.ranked()
+        """The per-class table by shortfall share, largest first (``ranked("share")``)."""
+        return self.ranked("share")
 
     def with_extra(self, name: str, value) -> Evaluation:
         """A copy with one more section in :attr:`extras` (and its warnings, if it has any).
@@ -444,7 +500,7 @@ def compute_figures(figures, t, *, undefined: str = "zero") -> xr.Dataset:
     return xr.Dataset(out)
 
 
-def evaluate(t: xr.DataArray, *, undefined: str = "zero") -> Evaluation:
+def evaluate(t: xr.DataArray, *, undefined: str = "zero", rank_by: str = "share") -> Evaluation:
     r"""Compute every figure of a confusion tensor, multiclass or multilabel.
 
     Parameters
@@ -456,6 +512,8 @@ def evaluate(t: xr.DataArray, *, undefined: str = "zero") -> Evaluation:
     undefined : {"zero", "nan"}, default "zero"
         Convention for undefined values; every undefined value is also named
         in ``Evaluation.warnings``.
+    rank_by : {"share", "mcc", "recall", "precision", "gain"}, default "share"
+        Order of the class (or label) table, see :meth:`Evaluation.ranked`.
 
     Returns
     -------
@@ -492,6 +550,7 @@ def evaluate(t: xr.DataArray, *, undefined: str = "zero") -> Evaluation:
     check_choice("undefined", undefined, m.UNDEFINED_CHOICES)
     t = validate_tensor(t)
     kind = tensor_kind(t)
+    _check_rank_by(kind, rank_by)
     if kind == fg.MULTILABEL:
         t = t.transpose(*[d for d in (FOLD, LABEL) if d in t.dims], ACTUAL, PREDICTED)
     notes: list[str] = []
@@ -504,11 +563,15 @@ def evaluate(t: xr.DataArray, *, undefined: str = "zero") -> Evaluation:
     pooled = run(fg.POOLED, pooled_t)
     row_scope = fg.PER_LABEL if kind == fg.MULTILABEL else fg.PER_CLASS
     rows = run(row_scope, pooled_t)
-    folds = summary = None
+    folds = summary = by_fold = None
     if FOLD in t.dims:
         folds = run(fg.PER_FOLD, t)
         if "rk" in folds:
             summary = FoldSummary.of(folds["rk"].values)
+        if kind == fg.MULTICLASS:
+            from foldcorr.analysis.classfold import class_by_fold
+
+            by_fold = class_by_fold(t, undefined=undefined)
     if kind == fg.MULTILABEL:
         order = np.argsort(-rows["cost"].values, kind="stable")
         rows = rows.isel({LABEL: order})
@@ -525,7 +588,18 @@ def evaluate(t: xr.DataArray, *, undefined: str = "zero") -> Evaluation:
         undefined=undefined,
         kind=kind,
         per_label=rows if kind == fg.MULTILABEL else None,
+        rank_by=rank_by,
+        per_class_fold=by_fold,
     )
+
+
+def _check_rank_by(kind: str, by: str) -> None:
+    check_choice("rank_by", by, tuple(RANK_BY))
+    if kind == fg.MULTILABEL and by == "gain":
+        from foldcorr.errors import OptionError
+
+        raise OptionError("`rank_by` 'gain' applies to classes; rank labels by share, mcc, "
+                          "recall or precision")
 
 
 def _flag_notes(per_class: xr.Dataset) -> list[str]:

@@ -60,12 +60,13 @@ RULE_TITLES = {
     "class_floors": "MCC above class floors",
     "max_marginal_mismatch": "marginal mismatch",
     "max_drop": "drop in R_K from baseline",
+    "min_group_rk": "R_K of class groups",
 }
 
 #: The rules each kind of evaluation can be held to.
 RULES_BY_KIND = {
     "multiclass": ("min_rk", "min_macro_mcc", "min_fold_rk", "min_class_mcc", "class_floors",
-                   "max_marginal_mismatch", "max_drop"),
+                   "max_marginal_mismatch", "max_drop", "min_group_rk"),
     "multilabel": ("min_micro_mcc", "min_macro_mcc", "min_class_mcc", "class_floors"),
 }
 #: Rules that compare a pooled figure with a lower bound: rule -> figure key.
@@ -99,6 +100,13 @@ class GateRules:
     seed : int or None
         Seed of the bootstrap (:data:`foldcorr.errors.DEFAULT_SEED` unless given, so
         that a gate gives the same verdict on every run).
+    min_group_rk : mapping or None
+        Level of class groups -> lower bound of the R_K of the tensor merged
+        by that level's groups (a key None: every level).
+    groups : mapping or None
+        Level -> (class -> group), as ``foldcorr.sources.groups.read_groups`` reads them.
+    groups_other : str or None
+        The group of classes missing from a level (else they are an error).
     """
 
     min_rk: float | None = None
@@ -113,6 +121,9 @@ class GateRules:
     allow_new_classes: bool = False
     n_resamples: int = 2000
     seed: int | None = DEFAULT_SEED
+    min_group_rk: Mapping | None = None
+    groups: Mapping | None = None
+    groups_other: str | None = None
 
     def __post_init__(self):
         for name in ("min_rk", "min_micro_mcc", "min_macro_mcc", "min_fold_rk", "min_class_mcc",
@@ -123,6 +134,8 @@ class GateRules:
         if self.confidence is not None and not (0 < self.confidence < 1):
             raise OptionError(f"`confidence` must lie strictly between 0 and 1; "
                               f"got {self.confidence!r}")
+        if self.min_group_rk is not None:
+            _check_group_rule(self.min_group_rk, self.groups)
         if self.n_resamples < 1:
             raise OptionError(f"`n_resamples` must be at least 1; got {self.n_resamples!r}")
 
@@ -321,7 +334,7 @@ def check_gate(ev: Evaluation, rules: GateRules, *, baseline: Evaluation | None 
     if rules.empty:
         raise OptionError("the gate has no rules; give at least one of --min-rk, "
                           "--min-micro-mcc, --min-macro-mcc, --min-fold-rk, --min-class-mcc, "
-                          "--class-floors, --max-marginal-mismatch, --baseline")
+                          "--class-floors, --max-marginal-mismatch, --min-group-rk, --baseline")
     _check_kind(ev, rules)
     if rules.max_drop is not None and baseline is None:
         raise OptionError("`max_drop` needs a baseline to compare with")
@@ -355,11 +368,45 @@ def check_gate(ev: Evaluation, rules: GateRules, *, baseline: Evaluation | None 
         rule, comparison, more = _drop_rule(ev, baseline, rules, samples, baseline_samples)
         out.append(rule)
         notes.extend(more)
+    if rules.min_group_rk is not None:
+        out.append(_group_rule(ev, rules))
     short.sort(key=_furthest_below_first)  # across rules, as documented in docs/json.md
     return GateResult(passed=all(r.passed for r in out), rules=tuple(out),
                       failing_classes=tuple(short), evaluation=ev, baseline=baseline,
                       comparison=comparison, warnings=tuple(dict.fromkeys(notes)),
                       seed=rules.seed if any(r.interval is not None for r in out) else None)
+
+
+def _check_group_rule(bounds: Mapping, groups: Mapping | None) -> None:
+    if not groups:
+        raise OptionError("`min_group_rk` needs class groups (`groups`, --groups FILE)")
+    for level, bound in bounds.items():
+        if level is not None and level not in groups:
+            raise OptionError(f"`min_group_rk` names the level {level!r}; the groups have "
+                              f"levels {list(groups)!r}")
+        if not (isinstance(bound, (int, float)) and math.isfinite(bound)):
+            raise OptionError(f"`min_group_rk` must be finite numbers; got {bound!r}")
+
+
+def _group_rule(ev: Evaluation, rules: GateRules) -> RuleResult:
+    """The level of groups whose R_K lies lowest against its bound decides the rule."""
+    from foldcorr.analysis.groups import merge_classes
+
+    bounds = dict(rules.min_group_rk)
+    if None in bounds:
+        every = bounds.pop(None)
+        bounds = {level: bounds.get(level, every) for level in rules.groups}
+    pooled = pool(ev.tensor)
+    values = {level: _quiet_rk(merge_classes(pooled, rules.groups[level],
+                                             other=rules.groups_other), ev.undefined)
+              for level in bounds}
+    margins = {lv: (v - bounds[lv]) if math.isfinite(v) else -math.inf
+               for lv, v in values.items()}
+    worst = min(margins, key=margins.get)
+    detail = "; ".join(f"{lv} {_f(values[lv])} (at least {bounds[lv]:g})" for lv in bounds)
+    return RuleResult("min_group_rk", values[worst], bounds[worst], ">=",
+                      all(_holds(values[lv], bounds[lv], ">=") for lv in bounds),
+                      f"R_K of the classes merged by group: {detail}")
 
 
 def _check_kind(ev: Evaluation, rules: GateRules) -> None:

@@ -201,11 +201,12 @@ def _warn_undefined(sums: Sums, bad: np.ndarray, what: str, undefined: str, *, p
     if len(spots) > MAX_PLACES:
         where += f"; and {len(spots) - MAX_PLACES} more"
     value = "0.0" if undefined == "zero" else "NaN"
-    warnings.warn(
-        f"{what} is undefined (0/0) at {where}; reported as {value} (undefined={undefined!r})",
-        UndefinedMetricWarning,
-        stacklevel=stacklevel,
-    )
+    warning = UndefinedMetricWarning(
+        f"{what} is undefined (0/0) at {where}; reported as {value} (undefined={undefined!r})")
+    # where, by dim: the labels at which any value is undefined (read by undefined_places)
+    warning.places = {n: [py_value(v) for v in np.asarray(lab)[np.unique(spots[:, i])]]
+                      for i, (n, lab) in enumerate(zip(names, labels))}
+    warnings.warn(warning, stacklevel=stacklevel)
 
 
 def rk(t: xr.DataArray, *, undefined: str = "zero") -> xr.DataArray:

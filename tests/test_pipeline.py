@@ -146,7 +146,8 @@ def test_saved_options_are_named_and_versioned(capsys, table, tmp_path):
     stored = load_saved(out).options
     assert stored == {"options_schema": OPTIONS_SCHEMA, "undefined": "zero", "top": 20,
                       "level": 0.9, "n_resamples": 200, "method": "percentile", "seed": 4,
-                      "prevalence": "uniform", "analyses": list(ScoreOptions().analyses)}
+                      "prevalence": "uniform", "rank_by": "share", "groups": None,
+                      "groups_other": None, "analyses": list(ScoreOptions().analyses)}
     assert run(capsys, "show", out, "--format", "json")[1] == printed
     ev, options = foldcorr.replay(out)
     assert render_score(ev, "json") == printed and options.level == 0.9

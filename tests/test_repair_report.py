@@ -44,7 +44,7 @@ def test_json_has_confusions_and_per_class_repair_keys():
         label = entry["class"]
         for key in ("gain_fix_fn", "gain_fix_fp", "gain_fix_both", "leave_out_delta"):
             assert entry[key] == pytest.approx(float(ra.per_class[key].sel({"class": label})))
-        assert entry["top5_folds"] == int(ra.per_class["top_folds"].sel({"class": label}))
+        assert "top5_folds" not in entry  # replaced by per_class_fold (issue 17)
     # the costliest confusion of the document is the largest pair gain of the pooled tensor
     gains = repair_gains.pair_gains(t.sum("fold"))
     best = doc["confusions"][0]
@@ -53,10 +53,10 @@ def test_json_has_confusions_and_per_class_repair_keys():
                                                          predicted=best["predicted"])))
 
 
-def test_json_without_folds_has_null_fold_counts():
+def test_json_without_folds_has_null_fold_figures():
     t = confusion_tensor([[5, 1], [2, 6]], ["a", "b"])
     doc = score_dict(evaluate(t).with_extra("repair", repair.repair_analysis(t)))
-    assert doc["per_class"][0]["top5_folds"] is None
+    assert doc["per_class"][0]["drag_fold_sd"] is None
     json.dumps(doc, allow_nan=False)
 
 
@@ -76,7 +76,7 @@ def test_text_and_markdown_show_the_section_and_the_gain_columns():
     assert "Costliest confusions (top 1 by repair gain)" in titles
     classes = next(t for t in report.tables if t.title.startswith("Classes by shortfall share"))
     assert [c.title for c in classes.columns][-6:] == [
-        "fix FN", "fix FP", "fix both", "w/o class", "top-5 folds", "most often taken for"]
+        "fix FN", "fix FP", "fix both", "w/o class", "fold ranks", "most often taken for"]
     md = render_score(ev, "markdown", top=3)
     assert "### Costliest confusions" in md and "| fix both |" in md
 
@@ -106,7 +106,8 @@ def test_cli_score_json_carries_every_confusion_whatever_top(tmp_path, capsys):
     doc = json.loads(capsys.readouterr().out)
     assert len(doc["confusions"]) == 20 and doc["repair"]["confusions_top"] is None
     assert {"gain_fix_fn", "gain_fix_fp", "gain_fix_both", "leave_out_delta",
-            "top5_folds"} <= set(doc["per_class"][0])
+            "drag_fold_sd"} <= set(doc["per_class"][0])
+    assert {"class", "rank_best", "rank_worst", "moves", "folds"} == set(doc["per_class_fold"][0])
     assert main(["score", str(path), "--format", "json", "--top", "all"]) == 0
     doc = json.loads(capsys.readouterr().out)
     assert len(doc["confusions"]) == 20  # every non-empty off-diagonal cell of 5 classes

@@ -25,7 +25,8 @@ from functools import partial
 import numpy as np
 import xarray as xr
 
-from foldcorr.errors import DEFAULT_SEED, UndefinedMetricWarning, check_choice
+from foldcorr.errors import (DEFAULT_SEED, Recorder, UndefinedMetricWarning, check_choice,
+                             places_text, undefined_places)
 from foldcorr.metrics import ovr_mcc, rk
 from foldcorr.tensor import (ACTUAL, FOLD, JOINT_DIMS, PREDICTED, ClusterCells, pool,
                              validate_joint)
@@ -368,19 +369,27 @@ def compare_cells(cells: ClusterCells, *, clustered: bool, n_resamples: int = 20
         notes.append(f"comparison: {w.message}")
     difference = rk_b - rk_a
     extra, point_notes = {}, bool(notes)
+    # each statistic records its own undefined values, so that each note names its own
+    drawn = {"R_K": Recorder(stat_rk), "one-vs-rest MCC": Recorder(stat_mcc),
+             "R_K under permutation": Recorder(stat_rk)}
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", UndefinedMetricWarning)
-        d_rk, d_mcc, d_fold = paired_draws(pair, rng, n, stat_rk, stat_mcc)
-        perm = permutation_draws(pair, rng, n_perm, stat_rk)
+        d_rk, d_mcc, d_fold = paired_draws(pair, rng, n, drawn["R_K"], drawn["one-vs-rest MCC"])
+        perm = permutation_draws(pair, rng, n_perm, drawn["R_K under permutation"])
         if clustered:
             iid = paired_draws(PairStrata.of(cells, clustered=False), rng, n, stat_rk, None)[0]
             var_iid = float(np.nanvar(iid.values))
             extra = {"n_clusters": cells.n_clusters, "design_effect": (
                 float(np.nanvar(d_rk.values)) / var_iid if var_iid > 0 else float("nan"))}
             notes.extend(cluster_notes(pair.strata))
-    if caught and not point_notes:
-        notes.append("comparison: R_K or MCC undefined (0/0) in some resamples or "
-                     f"permutations; they count as {'0' if undefined == 'zero' else 'NaN'}")
+    if not point_notes:
+        value = '0' if undefined == 'zero' else 'NaN'
+        for what, rec in drawn.items():
+            if rec.caught:
+                places = places_text(undefined_places(rec.caught, skip=("resample", "permutation")))
+                notes.append(f"comparison: {what} undefined (0/0) in some "
+                             f"{'permutations' if 'permutation' in what else 'resamples'}"
+                             f"{f' at {places}' if places else ''}; they count as {value}")
     tol = 1e-12 * max(1.0, abs(difference))
     p_value = (1 + int(np.sum(np.abs(perm) >= abs(difference) - tol))) / (1 + n_perm)
     est = xr.DataArray(difference)

@@ -30,7 +30,8 @@ from foldcorr.analysis.resampling import (
     METHODS, RESAMPLE, Strata, apply_statistic, check_level, check_resamples, pool_folds,
     statistic_draws, statistic_label, whole_counts,
 )
-from foldcorr.errors import InvalidTensorError, UndefinedMetricWarning, check_choice
+from foldcorr.errors import (InvalidTensorError, Recorder, UndefinedMetricWarning, check_choice,
+                             places_text, undefined_places)
 from foldcorr.decomposition import decompose
 from foldcorr.metrics import ovr_mcc, rk
 from foldcorr.tensor import ACTUAL, CLASS, FOLD, PREDICTED, validate_tensor
@@ -129,6 +130,12 @@ def _like(estimate: xr.DataArray, values: np.ndarray, suffix: str) -> xr.DataArr
     return estimate.copy(data=np.asarray(values, dtype=float)).rename(name)
 
 
+def _placed(label: str, caught) -> str:
+    """A statistic's label with the classes and folds where it was undefined, if any."""
+    places = places_text(undefined_places(caught))
+    return f"{label} ({places})" if places else label
+
+
 def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_draws,
                     cluster=None):
     """Bootstrap several statistics on the same resamples of ``t``.
@@ -148,13 +155,17 @@ def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_dra
     jobs = {name: (stat, bool(pooled), statistic_label(stat)) for name, (stat, pooled) in jobs.items()}
     estimates = {name: apply_statistic(stat, pool_folds(t, pooled), label)
                  for name, (stat, pooled, label) in jobs.items()}
+    # each statistic records its own undefined values: a per-class MCC's are never R_K's
+    recorders = {name: Recorder(stat) for name, (stat, _, _) in jobs.items()}
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", UndefinedMetricWarning)
-        draws = statistic_draws(strata, rng, n, jobs)
+        draws = statistic_draws(strata, rng, n, {
+            name: (recorders[name], pooled, label) for name, (_, pooled, label) in jobs.items()})
         moments = {}
         if method == "bca":
             for name, (stat, pooled, label) in jobs.items():
-                moments[name] = jackknife_moments(t, stat, pooled, estimates[name], label)
+                moments[name] = jackknife_moments(t, recorders[name], pooled, estimates[name],
+                                                  label)
         if cluster is not None:
             clusters = {"n_clusters": strata.n_units, "design_effect": design_effect(
                 t, draws.pop(CLUSTER_RK), rk, rng, n)}
@@ -173,7 +184,8 @@ def _bootstrap_many(t, jobs: dict, *, n_resamples, level, method, seed, keep_dra
             high=blank_thin_classes(_like(est, high, "high"), thin),
             level=level, method=method, n_resamples=n,
             draws=draws[name].transpose(RESAMPLE, *est.dims) if keep_draws else None,
-            pooled=pooled, warnings=draw_notes(label, caught, undefined, est, n)
+            pooled=pooled, warnings=draw_notes(_placed(label, recorders[name].caught),
+                                               recorders[name].caught, undefined, est, n)
             + thin_note(t.coords[ACTUAL].values.tolist(), thin, "per-class intervals") + notes,
             **clusters,
         )
@@ -368,7 +380,7 @@ def bootstrap_difference(t_a: xr.DataArray, t_b: xr.DataArray,
                    (dna + dnb).transpose(*estimate.dims).values)
     diff = db - da
     low, high, undefined = interval(diff, estimate, level, method, mom)
-    notes = draw_notes(label, caught, undefined, estimate, n)
+    notes = draw_notes(_placed(label, caught), caught, undefined, estimate, n)
     for note in notes:
         warnings.warn(note, UndefinedMetricWarning, stacklevel=2)
     return BootstrapResult(

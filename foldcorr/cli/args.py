@@ -83,6 +83,21 @@ RK_LIMIT = _limit(-1.0, 1.0, "R_K")
 MCC_LIMIT = _limit(-1.0, 1.0, "MCC")
 DROP_LIMIT = _limit(-2.0, 2.0, "a difference of two R_K values")
 MISMATCH_LIMIT = _limit(0.0, 1.0, "the marginal mismatch term")
+
+
+def group_limits(value: str) -> dict:
+    """``X`` (every level of groups) or ``LEVEL=X[,LEVEL=X...]``: level (None: every) -> bound.
+
+    Examples
+    --------
+    >>> group_limits("0.8"), group_limits("genus=0.7, family=0.9")
+    ({None: 0.8}, {'genus': 0.7, 'family': 0.9})
+    """
+    out = {}
+    for part in value.split(","):
+        level, _, bound = part.strip().rpartition("=")
+        out[level.strip() or None] = RK_LIMIT(bound.strip())
+    return out
 RESAMPLES = _count(1, MAX_RESAMPLES)
 SEED = _count(0, 2**63 - 1)
 
@@ -231,6 +246,14 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
                    help="also show every pooled figure at this target class prevalence, "
                         "assuming label shift; 'uniform' shares it equally among the "
                         "classes that have samples (see docs/shift.md)")
+    p.add_argument("--rank-by", choices=("share", "mcc", "recall", "precision", "gain"),
+                   default=UNSET, help="order of the class table: share of 1 - R_K (default), "
+                                       "lowest MCC, recall or precision, or largest repair gain")
+    p.add_argument("--groups", default=UNSET, metavar="FILE.csv",
+                   help="class groups, CSV class,group[,more levels]: R_K and the class table "
+                        "at each level, and 1 - R_K split inside/between groups")
+    p.add_argument("--groups-other", default=UNSET, metavar="NAME",
+                   help="put classes missing from --groups in this group (else an error)")
 
 
 def _column_list(value: str) -> tuple:
@@ -327,6 +350,13 @@ def get_parser() -> argparse.ArgumentParser:
                             ">= its floor")
     rules.add_argument("--max-marginal-mismatch", type=MISMATCH_LIMIT, metavar="X",
                        help="marginal mismatch term must be <= X (X in [0, 1])")
+    rules.add_argument("--min-group-rk", type=group_limits, metavar="X|LEVEL=X,...",
+                       help="R_K of the classes merged by --groups must be >= X at every level, "
+                            "or at the levels named (multiclass)")
+    gate.add_argument("--groups", metavar="FILE.csv",
+                      help="class groups for --min-group-rk: CSV class,group[,more levels]")
+    gate.add_argument("--groups-other", metavar="NAME",
+                      help="put classes missing from --groups in this group (else an error)")
     rules.add_argument("--baseline", metavar="FILE",
                        help="baseline to compare with (a saved .nc, or a prediction table)")
     rules.add_argument("--max-drop", type=DROP_LIMIT, metavar="D",

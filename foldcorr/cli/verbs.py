@@ -209,12 +209,19 @@ def run_gate(args, staging) -> int:
         table_source(args, args.path), args.baseline, undefined=getattr(args, "undefined", None),
         id_column=args.id_column, cluster=args.cluster, **table)
     floors = read_class_floors(args.class_floors, ev.row_names) if args.class_floors else None
+    if (args.groups or args.groups_other) and args.min_group_rk is None:
+        raise OptionError("`--groups` and `--groups-other` of gate serve `--min-group-rk`; "
+                          "give it too")
+    from foldcorr.sources.groups import read_groups
+
     rules = GateRules(
         min_rk=args.min_rk, min_micro_mcc=args.min_micro_mcc, min_macro_mcc=args.min_macro_mcc,
         min_fold_rk=args.min_fold_rk, min_class_mcc=args.min_class_mcc,
         class_floors=floors, max_marginal_mismatch=args.max_marginal_mismatch,
         max_drop=(args.max_drop if args.max_drop is not None else 0.0) if args.baseline else None,
         allow_new_classes=args.allow_new_classes, confidence=args.confidence,
+        min_group_rk=args.min_group_rk, groups=read_groups(args.groups) if args.groups else None,
+        groups_other=args.groups_other,
         **{"n_resamples" if k == "resamples" else k: v for k, v in given.items()},
     )
     result = check_gate(ev, rules, baseline=baseline, samples=samples,
@@ -230,7 +237,7 @@ def run_gate(args, staging) -> int:
 #: Options naming a file a verb writes (each verb has some of them).
 TARGET_OPTIONS = ("output", "save", "junit", "markdown", "curve")
 #: Options naming a file a verb reads.
-INPUT_OPTIONS = ("path", "path_b", "baseline", "class_floors")
+INPUT_OPTIONS = ("path", "path_b", "baseline", "class_floors", "groups")
 
 
 def check_targets(args) -> None:

@@ -19,13 +19,15 @@ __all__ = ["ScoreOptions", "OPTIONS_SCHEMA", "V1_KEYS", "ANALYSIS_NAMES", "saved
            "option_namer", "given_text"]
 
 #: Version of the options stored in saved evaluations (files without one hold version 1).
-OPTIONS_SCHEMA = 2
+OPTIONS_SCHEMA = 3
+#: Versions of stored options read as they are (3 added ``rank_by``, ``groups``, ``groups_other``).
+SAME_KEYS = (2, 3)
 #: Version-1 keys (command-line names) of stored options, mapped to option names;
 #: the others (``plot``: a drawing, not a figure) are dropped.
 V1_KEYS = {"undefined": "undefined", "top": "top", "ci": "level", "resamples": "n_resamples",
            "ci_method": "method", "seed": "seed", "prevalence": "prevalence"}
 #: Analyses that :func:`foldcorr.pipeline.evaluate_with` can run, in the order they run.
-ANALYSIS_NAMES = ("skipped_files", "shift", "repair", "intervals")
+ANALYSIS_NAMES = ("skipped_files", "shift", "repair", "intervals", "groups")
 
 
 def option_namer(names: Mapping | None):
@@ -73,6 +75,14 @@ class ScoreOptions:
     prevalence : "uniform", mapping or None
         Target class prevalence of the shifted figures (a text such as
         ``"a=0.2,b=0.8"`` or a CSV file name is read into a mapping).
+    rank_by : {"share", "mcc", "recall", "precision", "gain"}
+        Order of the class table (:data:`foldcorr.evaluation.RANK_BY`).
+    groups : str, mapping or None
+        Class groups: a CSV file (``class,group[,more levels]``), a mapping
+        class -> group, or a mapping level -> (class -> group); normalised to
+        the last form.
+    groups_other : str or None
+        The group of classes the groups leave out (without it they are an error).
     analyses : tuple of str
         Analyses to run, among :data:`ANALYSIS_NAMES` (each runs only when its
         options ask for it: intervals need ``level``, the shift needs
@@ -97,6 +107,9 @@ class ScoreOptions:
     method: str | None = None
     seed: int | None = DEFAULT_SEED
     prevalence: str | dict | None = None
+    rank_by: str = "share"
+    groups: str | dict | None = None
+    groups_other: str | None = None
     analyses: tuple = ANALYSIS_NAMES
     names: InitVar[Mapping | None] = None
 
@@ -108,6 +121,10 @@ class ScoreOptions:
 
         name = option_namer(names)
         check_choice(name("undefined"), self.undefined, UNDEFINED_CHOICES)
+        check_choice(name("rank_by"), self.rank_by, ("share", "mcc", "recall", "precision", "gain"))
+        if self.groups_other is not None and self.groups is None:
+            raise OptionError(f"`{name('groups_other')}` needs `{name('groups')}`; got "
+                              f"{given_text(name('groups_other'), self.groups_other)} without it")
         if self.top is not None and not (isinstance(self.top, numbers.Integral)
                                          and not isinstance(self.top, bool) and self.top >= 0):
             raise OptionError(f"`{name('top')}` must be a whole number (0: the summary only) or None; "
@@ -120,6 +137,7 @@ class ScoreOptions:
             check_choice(name("analyses"), analysis, ANALYSIS_NAMES)
         normal = {"analyses": tuple(a for a in ANALYSIS_NAMES if a in analyses),
                   "prevalence": _prevalence(self.prevalence, name("prevalence")),
+                  "groups": _groups(self.groups, name("groups")),
                   **self._intervals(name)}
         for key, value in normal.items():
             object.__setattr__(self, key, value)
@@ -200,13 +218,13 @@ class ScoreOptions:
         >>> ScoreOptions.from_saved({"options_schema": 9})
         Traceback (most recent call last):
         ...
-        foldcorr.errors.InvalidInputError: saved evaluation: its options are of options schema 9, which this version of foldcorr reads only up to 2; read it with a newer foldcorr
+        foldcorr.errors.InvalidInputError: saved evaluation: its options are of options schema 9, which this version of foldcorr reads only up to 3; read it with a newer foldcorr
         """
         stored = dict(stored)
         version = stored.pop("options_schema", 1)
         if version == 1:
             stored = {V1_KEYS[k]: v for k, v in stored.items() if k in V1_KEYS}
-        elif version != OPTIONS_SCHEMA:
+        elif version not in SAME_KEYS:
             raise InvalidInputError(
                 f"{source}: its options are of options schema {version!r}, which this version of "
                 f"foldcorr reads only up to {OPTIONS_SCHEMA}; read it with a newer foldcorr")
@@ -232,12 +250,28 @@ def _prevalence(value, name: str):
     return read_prevalence(value)
 
 
+def _groups(value, name: str):
+    """Class groups as level -> (class -> group), read from a CSV file when given a name."""
+    if value is None:
+        return None
+    if isinstance(value, (str, bytes)) or hasattr(value, "__fspath__"):
+        from foldcorr.sources.groups import read_groups
+
+        return read_groups(value)
+    if not isinstance(value, Mapping) or not value:
+        raise OptionError(f"`{name}` must be a CSV file, a mapping of class to group or of "
+                          f"level to such a mapping; got {value!r}")
+    if all(isinstance(v, Mapping) for v in value.values()):
+        return {str(level): dict(groups) for level, groups in value.items()}
+    return {"group": dict(value)}
+
+
 def saved_options(options: ScoreOptions) -> dict:
     """What a saved evaluation stores of its options: :meth:`ScoreOptions.to_dict` and a version.
 
     Examples
     --------
     >>> saved_options(ScoreOptions())["options_schema"]
-    2
+    3
     """
     return {"options_schema": OPTIONS_SCHEMA, **options.to_dict()}

@@ -103,10 +103,19 @@ def _intervals(ev, options, samples):
                                       undefined=ev.undefined))
 
 
+def _groups(ev, options, samples):
+    if options.groups is None:
+        return ev
+    from foldcorr.pipeline.groups import evaluate_groups
+
+    return ev.with_extra("groups", evaluate_groups(ev, options.groups, other=options.groups_other,
+                                                   intervals=options.interval_settings()))
+
+
 #: Per tensor kind: its analyses, in the order they run (one evaluation serves every kind).
 KINDS = {
     "multiclass": (("skipped_files", _skipped_files), ("shift", _shift), ("repair", _repair),
-                   ("intervals", _intervals)),
+                   ("intervals", _intervals), ("groups", _groups)),
     "multilabel": (("intervals", _intervals),),
 }
 
@@ -140,7 +149,7 @@ def evaluate_with(tensor: xr.DataArray, options: ScoreOptions | None = None, *,
     options = ScoreOptions() if options is None else options
     from foldcorr.evaluation import evaluate
 
-    ev = evaluate(tensor, undefined=options.undefined)
+    ev = evaluate(tensor, undefined=options.undefined, rank_by=options.rank_by)
     for name, step in KINDS[ev.kind]:
         if name in options.analyses:
             ev = step(ev, options, {"cluster": cluster})

@@ -3,7 +3,8 @@
 Hooks (see :mod:`foldcorr.report.sections`): repair-gain columns in the
 per-class table, a "costliest confusions" table, and the JSON keys
 ``confusions`` and ``per_class[].gain_fix_fn``, ``gain_fix_fp``,
-``gain_fix_both``, ``leave_out_delta``, ``top5_folds`` (plus ``drag_fold_sd``).
+``gain_fix_both``, ``leave_out_delta`` (plus ``drag_fold_sd``); with folds the class
+table also shows each class's ``fold ranks`` (:func:`foldcorr.report.classfold.rank_column`).
 Nothing here computes: every figure comes from a
 :class:`foldcorr.analysis.repair.RepairAnalysis`.
 """
@@ -12,6 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from foldcorr.report.classfold import rank_column
 from foldcorr.report.tables import Column, Table
 
 __all__ = ["KEY", "class_columns", "tables", "json", "confusion_table", "render_rich"]
@@ -59,11 +61,7 @@ def class_columns(ev) -> list:
     for name, title in _GAIN_COLUMNS:
         values = ra.per_class[name].values
         out.append((Column(title), {lab: float(v) for lab, v in zip(labels, values)}))
-    if "top_folds" in ra.per_class:
-        values = ra.per_class["top_folds"].values
-        out.append((Column(f"top-{ra.stability_top} folds", "count"),
-                    {lab: int(v) for lab, v in zip(labels, values)}))
-    return out
+    return out + rank_column(ev)
 
 
 def confusion_table(ra, top: int | None = 20) -> Table:
@@ -141,8 +139,6 @@ def json(ev, doc: dict) -> None:
             continue
         for name, _ in _GAIN_COLUMNS:
             entry[name] = _number(pc[name].values[i])
-        entry["top5_folds" if ra.stability_top == 5 else f"top{ra.stability_top}_folds"] = (
-            int(pc["top_folds"].values[i]) if folds else None)
         entry["drag_fold_sd"] = _number(pc["drag_sd"].values[i]) if folds else None
 
 

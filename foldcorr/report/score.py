@@ -2,7 +2,10 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 from foldcorr.evaluation import Evaluation
+from foldcorr.report import classfold
 from foldcorr.report.documents import Document
 from foldcorr.report.json import score_dict
 from foldcorr.report.tables import score_report
@@ -28,5 +31,15 @@ def score_document(ev: Evaluation, *, top: int | None = 20, source: str | None =
 
         return svg_figures(ev)
 
-    return Document(score_report(ev, top=top, source=source, brief=brief),
-                    lambda: score_dict(ev), figures)
+    report = score_report(ev, top=top, source=source, brief=brief)
+    by_fold = classfold.class_fold_table(ev, top) if top != 0 else None
+    if by_fold is not None:  # right after the class table
+        at = next(i for i, t in enumerate(report.tables) if t.title.startswith("Classes by")) + 1
+        report = replace(report, tables=(*report.tables[:at], by_fold, *report.tables[at:]))
+
+    def json_doc():
+        doc = score_dict(ev)
+        classfold.json(ev, doc)
+        return doc
+
+    return Document(report, json_doc, figures)

@@ -38,6 +38,7 @@ SECTIONS: dict[str, str] = {
     "repair": "foldcorr.report.repair",
     "shifted": "foldcorr.report.shift",
     "intervals": "foldcorr.report.intervals",
+    "groups": "foldcorr.report.groups",
 }
 
 

@@ -355,7 +355,8 @@ def class_table(ev: Evaluation, top: int | None = 20, *, brief: int | None = Non
     if top is not None and shown > min(top, k):
         notes.append(f"{shown - min(top, k)} flagged {words['unit']} listed beyond the top {top}")
     rows_brief = None if brief is None else tuple(listed.index(i) for i in chosen(brief))
-    return Table(f"{words['rows']} (top {shown} of {k})", columns, tuple(rows),
+    title = f"{words['rows'].split(' by ')[0]} by {ev.rank_words}"
+    return Table(f"{title} (top {shown} of {k})", columns, tuple(rows),
                  "; ".join(n for n in notes if n), brief=rows_brief)
 
 
