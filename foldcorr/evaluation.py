@@ -18,14 +18,14 @@ import pandas as pd
 import xarray as xr
 
 from foldcorr import figures as fg
+from foldcorr.figures import compute_figures, tensor_kind
 from foldcorr import metrics as m
 from foldcorr.decomposition import FLAGS
 from foldcorr.errors import (InvalidTensorError, UndefinedMetricWarning, check_choice,
                              collect_undefined)
 from foldcorr.tensor import ACTUAL, CLASS, FOLD, LABEL, PREDICTED, pool, py_value, validate_tensor
 
-__all__ = ["Evaluation", "FoldSummary", "FRAME_KINDS", "RANK_BY", "evaluate", "tensor_kind",
-           "compute_figures"]
+__all__ = ["Evaluation", "FoldSummary", "FRAME_KINDS", "RANK_BY", "evaluate"]
 
 #: Accuracy at or above this while R_K is below ACCURACY_HIDES_RK gets a warning.
 ACCURACY_LOOKS_GOOD = 0.9
@@ -442,62 +442,6 @@ class Evaluation:
 def _number(value) -> float:
     v = float(value)
     return int(v) if v.is_integer() and abs(v) < 2**53 and value.dtype.kind in "iu" else v
-
-
-def tensor_kind(t) -> str:
-    """The kind of a validated tensor: multilabel when it has a ``label`` dim, else multiclass.
-
-    Raises
-    ------
-    InvalidTensorError
-        When a dim other than ``fold`` (and ``label``) leads, or a ``label``
-        tensor's class coordinates are not ``[False, True]``.
-
-    Examples
-    --------
-    >>> from foldcorr.tensor import confusion_tensor
-    >>> tensor_kind(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
-    'multiclass'
-    """
-    lead = {d for d in t.dims if d not in (ACTUAL, PREDICTED)}
-    if LABEL in lead:
-        classes = t.coords[ACTUAL].values.tolist()
-        if classes != [False, True]:
-            raise InvalidTensorError(
-                f"a multilabel tensor has class coordinates [False, True]; got {classes!r}")
-        if lead - {FOLD, LABEL}:
-            raise InvalidTensorError(
-                f"select or pool the dims {sorted(lead - {FOLD, LABEL})!r} first; accepted dims "
-                "are (fold, label, actual, predicted)")
-        return fg.MULTILABEL
-    if lead - {FOLD}:
-        raise InvalidTensorError(
-            f"evaluate takes dims (fold, actual, predicted); select or pool "
-            f"{[d for d in t.dims if d in lead - {FOLD}]!r} first")
-    return fg.MULTICLASS
-
-
-def compute_figures(figures, t, *, undefined: str = "zero") -> xr.Dataset:
-    """Compute registry figures on one tensor; figures sharing a computation run it once.
-
-    Examples
-    --------
-    >>> from foldcorr.figures import MULTICLASS, PER_CLASS, figures_of
-    >>> from foldcorr.tensor import confusion_tensor
-    >>> t = confusion_tensor([[6, 2], [1, 3]], ["p", "n"])
-    >>> compute_figures(figures_of(MULTICLASS, PER_CLASS), t)["in_truth"].values.tolist()
-    [8, 4]
-    """
-    done: dict = {}
-    out: dict = {}
-    for f in figures:
-        if f.compute not in done:
-            done[f.compute] = f.compute(t, undefined=undefined)
-        value = done[f.compute] if f.part is None else done[f.compute][f.part]
-        parts = value.data_vars if isinstance(value, xr.Dataset) else {f.key: value.rename(f.key)}
-        out.update({k: v.drop_attrs() if hasattr(v, "drop_attrs") else v
-                    for k, v in parts.items()})
-    return xr.Dataset(out)
 
 
 def evaluate(t: xr.DataArray, *, undefined: str = "zero", rank_by: str = "share") -> Evaluation:

@@ -24,10 +24,11 @@ import xarray as xr
 
 from foldcorr import metrics as m
 from foldcorr.decomposition import class_flags, decompose
-from foldcorr.errors import UndefinedMetricWarning
-from foldcorr.tensor import ACTUAL, CLASS, LABEL, PREDICTED
+from foldcorr.errors import InvalidTensorError, UndefinedMetricWarning
+from foldcorr.tensor import ACTUAL, CLASS, FOLD, LABEL, PREDICTED
 
 __all__ = [
+    "tensor_kind", "compute_figures",
     "MULTICLASS", "MULTILABEL", "KINDS", "POOLED", "PER_FOLD", "PER_CLASS", "PER_LABEL",
     "SCOPES", "STYLES", "Figure", "FIGURES", "RANKED_BY", "BUDGETED", "figures_of", "sample_count", "micro_mcc",
     "label_macro_mcc", "weighted_mcc",
@@ -315,3 +316,59 @@ RANKED_BY = {PER_CLASS: "shortfall_share", PER_LABEL: "cost"}
 #: The pooled figure whose shortfall from 1 the row drags add up to (with the
 #: marginal mismatch for multiclass), per kind: the figure of the loss budget.
 BUDGETED = {MULTICLASS: "rk", MULTILABEL: "macro_mcc"}
+
+
+def tensor_kind(t) -> str:
+    """The kind of a validated tensor: multilabel when it has a ``label`` dim, else multiclass.
+
+    Raises
+    ------
+    InvalidTensorError
+        When a dim other than ``fold`` (and ``label``) leads, or a ``label``
+        tensor's class coordinates are not ``[False, True]``.
+
+    Examples
+    --------
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> tensor_kind(confusion_tensor([[6, 2], [1, 3]], ["p", "n"]))
+    'multiclass'
+    """
+    lead = {d for d in t.dims if d not in (ACTUAL, PREDICTED)}
+    if LABEL in lead:
+        classes = t.coords[ACTUAL].values.tolist()
+        if classes != [False, True]:
+            raise InvalidTensorError(
+                f"a multilabel tensor has class coordinates [False, True]; got {classes!r}")
+        if lead - {FOLD, LABEL}:
+            raise InvalidTensorError(
+                f"select or pool the dims {sorted(lead - {FOLD, LABEL})!r} first; accepted dims "
+                "are (fold, label, actual, predicted)")
+        return MULTILABEL
+    if lead - {FOLD}:
+        raise InvalidTensorError(
+            f"evaluate takes dims (fold, actual, predicted); select or pool "
+            f"{[d for d in t.dims if d in lead - {FOLD}]!r} first")
+    return MULTICLASS
+
+
+def compute_figures(figures, t, *, undefined: str = "zero") -> xr.Dataset:
+    """Compute registry figures on one tensor; figures sharing a computation run it once.
+
+    Examples
+    --------
+    >>> from foldcorr.figures import MULTICLASS, PER_CLASS, figures_of
+    >>> from foldcorr.tensor import confusion_tensor
+    >>> t = confusion_tensor([[6, 2], [1, 3]], ["p", "n"])
+    >>> compute_figures(figures_of(MULTICLASS, PER_CLASS), t)["in_truth"].values.tolist()
+    [8, 4]
+    """
+    done: dict = {}
+    out: dict = {}
+    for f in figures:
+        if f.compute not in done:
+            done[f.compute] = f.compute(t, undefined=undefined)
+        value = done[f.compute] if f.part is None else done[f.compute][f.part]
+        parts = value.data_vars if isinstance(value, xr.Dataset) else {f.key: value.rename(f.key)}
+        out.update({k: v.drop_attrs() if hasattr(v, "drop_attrs") else v
+                    for k, v in parts.items()})
+    return xr.Dataset(out)

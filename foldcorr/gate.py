@@ -529,8 +529,12 @@ def _drop_rule(ev, baseline, rules: GateRules, samples, baseline_samples):
         passed = _holds(drop, rules.max_drop, "<=")
         return RuleResult("max_drop", drop, rules.max_drop, "<=", passed,
                           f"{head}; drop {_f(drop)}"), "plain", notes
-    low, high, how, more = _drop_interval(ev, baseline, shared, rules, samples,
-                                          baseline_samples)
+    from foldcorr.analysis.drop import drop_interval
+
+    low, high, how, more = drop_interval(baseline.tensor, ev.tensor, shared,
+                                         baseline_samples=baseline_samples, samples=samples,
+                                         n_resamples=rules.n_resamples, level=rules.confidence,
+                                         seed=rules.seed)
     passed = not (math.isfinite(low) and low > rules.max_drop)
     if not (math.isfinite(low) and math.isfinite(high)):
         passed = _holds(drop, rules.max_drop, "<=")
@@ -541,71 +545,3 @@ def _drop_rule(ev, baseline, rules: GateRules, samples, baseline_samples):
     return (RuleResult("max_drop", drop, rules.max_drop, "<=", passed, detail,
                        interval=(low, high)),
             how.split()[0], notes + more)
-
-
-def _drop_interval(ev, baseline, shared, rules: GateRules, samples, baseline_samples):
-    """Bootstrap interval (low, high) of the drop, how it was made, and notes.
-
-    Paired (the joint tensor of both runs' predictions on the same samples,
-    resampled together) when both sides carry the same samples; otherwise
-    each tensor is resampled on its own.
-    """
-    notes: list[str] = []
-    if samples is not None and baseline_samples is not None:
-        order, reason = align_samples(baseline_samples, samples)
-        clustered = samples.cluster is not None or baseline_samples.cluster is not None
-        if order is None and clustered:
-            raise InvalidInputError("clusters are resampled over the samples both runs share, "
-                                    f"but the runs cannot be paired: {reason}")
-        if order is None:
-            notes.append(f"unpaired comparison: {reason}")
-        else:
-            return _paired_drop(baseline_samples, samples, order, shared, rules, notes)
-    elif samples is not None or baseline_samples is not None:
-        notes.append("unpaired comparison: only one side carries sample ids")
-    from foldcorr.analysis.uncertainty import bootstrap_difference
-
-    def cut(t):
-        return t.sel({ACTUAL: shared, PREDICTED: shared})
-
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UndefinedMetricWarning)
-        res = bootstrap_difference(cut(baseline.tensor), cut(ev.tensor), m.rk,
-                                   n_resamples=rules.n_resamples, level=rules.confidence,
-                                   seed=rules.seed)
-    low, high = -float(res.high), -float(res.low)
-    how = f"unpaired bootstrap of both tensors, {rules.n_resamples} resamples"
-    return low, high, how, notes + list(res.warnings)
-
-
-def _paired_drop(baseline_samples: Samples, samples: Samples, order, shared, rules: GateRules,
-                 notes: list):
-    """The paired interval of the drop (whole clusters resampled when the samples carry them)."""
-    from foldcorr.analysis.compare import compare_models
-    from foldcorr.tensor import cluster_tally, joint_tally
-
-    truth = baseline_samples.actual
-    pred_a, pred_b = baseline_samples.predicted, samples.predicted[order]
-    known = set(shared)
-    keep = np.array([a in known and x in known and y in known
-                     for a, x, y in zip(truth.tolist(), pred_a.tolist(), pred_b.tolist())],
-                    dtype=bool)
-    folds = None if baseline_samples.fold is None else baseline_samples.fold[keep]
-    clusters = (samples.cluster[order] if samples.cluster is not None
-                else baseline_samples.cluster)
-    columns = (truth[keep], pred_a[keep], pred_b[keep])
-    cells = None if clusters is None else cluster_tally(*columns, cluster=clusters[keep],
-                                                        folds=folds, classes=shared)
-    joint = joint_tally(*columns, folds=folds, classes=shared) if cells is None \
-        else cells.tensor()
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UndefinedMetricWarning)
-        comp = compare_models(joint, n_resamples=rules.n_resamples, level=rules.confidence,
-                              seed=rules.seed, cluster=cells)
-    low, high = -float(comp.ci[1]), -float(comp.ci[0])
-    how = (f"paired bootstrap on {int(keep.sum())} shared samples, "
-           f"{rules.n_resamples} resamples")
-    if clusters is not None:
-        how += (f", {comp.n_clusters} clusters resampled whole, design effect "
-                f"{comp.design_effect:.2f}")
-    return low, high, how, notes + list(comp.warnings)

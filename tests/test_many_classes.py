@@ -15,7 +15,7 @@ from sklearn.metrics import (accuracy_score, balanced_accuracy_score, cohen_kapp
 
 import foldcorr as fc
 from foldcorr.errors import FoldcorrError, TensorTooLargeError, UndefinedMetricWarning
-from foldcorr.evaluation import compute_figures
+from foldcorr.figures import compute_figures
 from foldcorr.figures import MULTICLASS, SCOPES, figures_of
 from foldcorr.tensor import (as_dense, cell_sums, check_dense_size, confusion_tensor,
                              count_codes, is_sparse, pool, sum_cells, tally, tally_columns,
