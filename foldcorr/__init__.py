@@ -66,12 +66,12 @@ _EXPORTS = {
 }
 if TYPE_CHECKING:  # the names for type checkers; at run time they load on first use
     from foldcorr.tensor import (
-        tally, tally_frame, confusion_tensor, validate_tensor, pool, ACTUAL, PREDICTED, FOLD,
-        CLASS, LABEL, joint_tally, model_tensors, multilabel_tally, indicators_from_sets,
+        tally, tally_frame, confusion_tensor, validate_tensor, pool, ACTUAL, PREDICTED, FOLD, CLASS,
+        LABEL, joint_tally, model_tensors, multilabel_tally, indicators_from_sets,
     )
     from foldcorr.metrics import (
-        rk, mcc, ovr_mcc, accuracy, balanced_accuracy, cohen_kappa, recall, precision, f1,
-        macro_f1, macro_mcc, support, predicted_count, top_confusion,
+        rk, mcc, ovr_mcc, accuracy, balanced_accuracy, cohen_kappa, recall, precision, f1, macro_f1,
+        macro_mcc, support, predicted_count, top_confusion,
     )
     from foldcorr.decomposition import decompose, mismatch_shares
     from foldcorr.analysis.gains import (
@@ -87,6 +87,10 @@ if TYPE_CHECKING:  # the names for type checkers; at run time they load on first
     from foldcorr.analysis.many import compare_many, ManyComparison, holm
     from foldcorr.tensor.cells import cluster_tally, ClusterCells
     from foldcorr.analysis.crossval import cross_tally, compare_estimators, rk_score, rk_scorer
+    from foldcorr.analysis.groups import merge_classes, group_split, group_shares
+    from foldcorr.analysis.classfold import class_by_fold
+    from foldcorr.pipeline.groups import evaluate_groups, ClassGroups, GroupLevel
+    from foldcorr.sources.groups import read_groups
     from foldcorr.evaluation import Evaluation, evaluate
     from foldcorr.pipeline import score, evaluate_with, replay, load_evaluation, ScoreOptions
     from foldcorr.figures import Figure, FIGURES
@@ -95,7 +99,8 @@ if TYPE_CHECKING:  # the names for type checkers; at run time they load on first
     from foldcorr.sources.saved import SavedEvaluation, save_evaluation, load_saved
     from foldcorr.report import render
     from foldcorr.report.plots import (
-        loss_budget_figure, confusion_figure, fold_figure, figure_svg, save_plots,
+        loss_budget_plot, confusion_plot, fold_plot, class_fold_plot, models_plot, difference_plot,
+        threshold_plot, figure_svg, save_plots,
     )
     from foldcorr.sources.dispatch import load, load_tensor, tally_dataset
     from foldcorr.sources.stream import stream_tensor, StreamResult

@@ -44,7 +44,7 @@ def _ranks(values: np.ndarray) -> np.ndarray:
     return out.reshape(values.shape)
 
 
-def class_by_fold(t, *, undefined: str = "zero") -> xr.Dataset:
+def class_by_fold(t: xr.DataArray, *, undefined: str = "zero") -> xr.Dataset:
     """Per-class MCC, shortfall share and rank in each fold, and how far each class's rank moves.
 
     Parameters

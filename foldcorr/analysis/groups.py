@@ -74,7 +74,8 @@ def _key(label, mapping: Mapping):
     return label if label in mapping or str(label) not in mapping else str(label)
 
 
-def merge_classes(t, mapping: Mapping, *, other=None) -> xr.DataArray:
+def merge_classes(t: xr.DataArray, mapping: Mapping, *,
+                  other: str | None = None) -> xr.DataArray:
     """The confusion tensor of groups: rows and columns of the classes of each group summed.
 
     Parameters
@@ -150,7 +151,8 @@ def _repaired_rk(sums: Sums, moved_rows, moved_cols, undefined: str) -> np.ndarr
     return correlation(num, dp, dt, undefined)[0]
 
 
-def group_split(t, mapping: Mapping, *, other=None, undefined: str = "zero") -> xr.Dataset:
+def group_split(t: xr.DataArray, mapping: Mapping, *, other: str | None = None,
+                undefined: str = "zero") -> xr.Dataset:
     r"""The exact split of 1 - R_K into confusions inside groups and confusions between groups.
 
     Parameters
@@ -228,7 +230,8 @@ def group_split(t, mapping: Mapping, *, other=None, undefined: str = "zero") -> 
                        "inside": wrap(share_in, "inside"), "between": wrap(share_bt, "between")})
 
 
-def group_shares(shortfall_share: xr.DataArray, mapping: Mapping, *, other=None) -> xr.DataArray:
+def group_shares(shortfall_share: xr.DataArray, mapping: Mapping, *,
+                 other: str | None = None) -> xr.DataArray:
     """Each group's share of 1 - R_K: the shortfall shares of its classes added up.
 
     Parameters

@@ -10,11 +10,16 @@ share of 1 - R_K, and with a level of intervals bootstraps the group-level R_K.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from collections.abc import Mapping
 from dataclasses import dataclass
 
 import numpy as np
 import xarray as xr
+
+if TYPE_CHECKING:
+    from foldcorr.evaluation import Evaluation
 
 __all__ = ["GroupLevel", "ClassGroups", "evaluate_groups"]
 
@@ -107,8 +112,8 @@ class ClassGroups:
                        f"{[lv.name for lv in self.levels]!r}")
 
 
-def evaluate_groups(ev, levels: Mapping, *, other=None, intervals: dict | None = None
-                    ) -> ClassGroups:
+def evaluate_groups(ev: Evaluation, levels: Mapping, *, other: str | None = None,
+                    intervals: dict | None = None) -> ClassGroups:
     """Evaluate an evaluation's tensor at each level of class groups.
 
     Parameters

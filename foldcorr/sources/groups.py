@@ -2,14 +2,19 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from pathlib import Path
 
 from foldcorr.errors import InvalidInputError
 
+if TYPE_CHECKING:
+    import os
+
 __all__ = ["read_groups"]
 
 
-def read_groups(path) -> dict[str, dict[str, str]]:
+def read_groups(path: str | os.PathLike[str]) -> dict[str, dict[str, str]]:
     """Read class groups: ``class,group`` with a header; each further column is one more level.
 
     Parameters

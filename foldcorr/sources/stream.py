@@ -55,6 +55,7 @@ from foldcorr.tensor.coding import arrow_kind, label_key
 
 if TYPE_CHECKING:
     import os
+    from collections.abc import Sequence
 
     from numpy.typing import ArrayLike
 
@@ -128,7 +129,7 @@ def stream_tensor(path: str | os.PathLike[str], *, truth: str = ACTUAL, pred: st
                   classes: ArrayLike | None = None, where: str | Where | None = None,
                   skip_bad_files: bool = False, progress: bool | None = None,
                   batch_rows: int = BATCH_ROWS, count: str | None = None,
-                  na_values=()) -> StreamResult:
+                  na_values: Sequence[str] = ()) -> StreamResult:
     """Tally a dataset of prediction tables into a tensor, batch by batch.
 
     Parameters

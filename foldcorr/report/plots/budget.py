@@ -10,10 +10,18 @@ drawn carry, and the running total of the rows drawn is printed on the right.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 
 from foldcorr.figures import BUDGETED, MULTILABEL, POOLED
 from foldcorr.report.plots.canvas import PALETTE, axes_for, finish, short
+
+if TYPE_CHECKING:
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
+    from foldcorr.evaluation import Evaluation
 
 __all__ = ["loss_budget_data", "loss_budget_plot"]
 
@@ -72,7 +80,8 @@ def loss_budget_data(ev, *, max_classes: int = 20) -> dict:
             "name": name, "unit": ev.row_scope}
 
 
-def loss_budget_plot(ev, *, ax=None, max_classes: int = 20):
+def loss_budget_plot(ev: Evaluation, *, ax: Axes | None = None,
+                     max_classes: int = 20) -> Axes | Figure:
     """Draw the loss budget: a ranked dot plot of each class's share of 1 - R_K.
 
     Parameters

@@ -11,11 +11,16 @@ one clear :class:`~foldcorr.errors.MissingDependencyError` when it is missing.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import functools
 import io
 
 from foldcorr.errors import require
 from foldcorr.report.tables import plot_text
+
+if TYPE_CHECKING:
+    from matplotlib.figure import Figure
 
 __all__ = ["DPI", "MAX_LABEL", "PALETTE", "KILN", "SPLIT", "matplotlib_module", "new_figure",
            "axes_for", "finish", "short", "figure_png", "figure_svg", "save_figure"]
@@ -164,7 +169,7 @@ def figure_png(fig) -> bytes:
     return buffer.getvalue()
 
 
-def figure_svg(fig) -> str:
+def figure_svg(fig: Figure) -> str:
     """A figure as SVG text, e.g. to embed inline in an HTML page.
 
     The text is the same for the same figure on every run (fixed ids, no date).

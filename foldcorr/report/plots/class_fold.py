@@ -9,6 +9,8 @@ the folds is a class whose quality depends on the fold.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import warnings
 
 import numpy as np
@@ -19,6 +21,12 @@ from foldcorr.errors import InvalidTensorError, UndefinedMetricWarning, check_ch
 from foldcorr.figures import MULTILABEL
 from foldcorr.report.plots.canvas import PALETTE, SPLIT, axes_for, finish, matplotlib_module, short
 from foldcorr.tensor import CLASS, FOLD
+
+if TYPE_CHECKING:
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
+    from foldcorr.evaluation import Evaluation
 
 __all__ = ["CLASS_FOLD_FIGURES", "class_fold_figures", "class_fold_data", "class_fold_plot"]
 
@@ -102,7 +110,8 @@ def class_fold_data(ev, *, figure: str = "mcc", max_classes: int = 20) -> dict:
             "rest_count": int(table.sizes[CLASS] - len(ranked))}
 
 
-def class_fold_plot(ev, *, ax=None, figure: str = "mcc", max_classes: int = 20):
+def class_fold_plot(ev: Evaluation, *, ax: Axes | None = None, figure: str = "mcc",
+                    max_classes: int = 20) -> Axes | Figure:
     """Draw a class x fold heatmap of per-class MCC (or shortfall share) for the top classes.
 
     Parameters

@@ -12,12 +12,20 @@ number, which keeps every count.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 
 from foldcorr.errors import OptionError
 from foldcorr.report.plots.canvas import KILN, PALETTE, axes_for, finish, matplotlib_module, short
 from foldcorr.tensor import ACTUAL, FOLD, PREDICTED
 from foldcorr.tensor.backing import as_dense
+
+if TYPE_CHECKING:
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
+    from foldcorr.evaluation import Evaluation
 
 __all__ = ["confusion_data", "confusion_plot", "group_classes"]
 
@@ -102,7 +110,8 @@ def confusion_data(ev, *, max_classes: int = 100) -> dict:
             "counts": counts, "error_share": share, "recall": recall, "merged": merged}
 
 
-def confusion_plot(ev, *, ax=None, max_classes: int = 100):
+def confusion_plot(ev: Evaluation, *, ax: Axes | None = None,
+                   max_classes: int = 100) -> Axes | Figure:
     """Draw where the errors go: off-diagonal shares of all confusions, recall on the diagonal.
 
     Parameters

@@ -8,6 +8,8 @@ label; a two-model comparison ``difference``; a many-model comparison
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import re
 from pathlib import Path
 
@@ -20,6 +22,10 @@ from foldcorr.report.plots.confusion import confusion_plot
 from foldcorr.report.plots.folds import fold_plot
 from foldcorr.report.plots.models import difference_plot, models_plot
 from foldcorr.report.plots.thresholds import threshold_plot
+
+if TYPE_CHECKING:
+    import os
+    from collections.abc import Sequence
 
 __all__ = ["figures", "save_plots", "FILE_FORMATS"]
 
@@ -73,7 +79,8 @@ def figures(result, *, max_classes: int = 100) -> dict:
     return out
 
 
-def save_plots(result, folder, *, formats=FILE_FORMATS, max_classes: int = 100) -> list[Path]:
+def save_plots(result: object, folder: str | os.PathLike[str], *,
+               formats: Sequence[str] = FILE_FORMATS, max_classes: int = 100) -> list[Path]:
     """Write every plot of :func:`figures` into ``folder``, one file per format.
 
     Parameters

@@ -7,12 +7,20 @@ a solid line across and the mean of the folds a dotted one, both labelled.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 
 from foldcorr.errors import InvalidTensorError
 from foldcorr.figures import BUDGETED, MULTILABEL
 from foldcorr.report.plots.canvas import PALETTE, axes_for, finish, short
 from foldcorr.tensor import FOLD
+
+if TYPE_CHECKING:
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
+    from foldcorr.evaluation import Evaluation
 
 __all__ = ["fold_data", "fold_plot"]
 
@@ -84,7 +92,7 @@ def fold_data(ev) -> dict:
             "name": "macro MCC" if ev.kind == MULTILABEL else "R_K"}
 
 
-def fold_plot(ev, *, ax=None):
+def fold_plot(ev: Evaluation, *, ax: Axes | None = None) -> Axes | Figure:
     """Draw R_K of each fold, with the pooled and mean R_K (and intervals when known).
 
     Parameters

@@ -11,9 +11,18 @@ coloured by the side the interval falls on.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 
 from foldcorr.report.plots.canvas import PALETTE, axes_for, finish, short
+
+if TYPE_CHECKING:
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
+    from foldcorr.analysis.compare import Comparison
+    from foldcorr.analysis.many import ManyComparison
 
 __all__ = ["models_data", "models_plot", "difference_data", "difference_plot"]
 
@@ -58,7 +67,7 @@ def models_data(result) -> dict:
             "level": result.level}
 
 
-def models_plot(result, *, ax=None):
+def models_plot(result: ManyComparison, *, ax: Axes | None = None) -> Axes | Figure:
     """Draw R_K with intervals per model, best first, with the per-fold R_K as ticks.
 
     Parameters
@@ -159,7 +168,8 @@ def difference_data(result, *, max_classes: int = 25) -> dict:
             "level": result.level}
 
 
-def difference_plot(result, *, ax=None, max_classes: int = 25):
+def difference_plot(result: Comparison, *, ax: Axes | None = None,
+                    max_classes: int = 25) -> Axes | Figure:
     """Draw B - A: the pooled R_K difference and each class's MCC difference, with intervals.
 
     Parameters

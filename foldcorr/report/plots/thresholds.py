@@ -12,12 +12,22 @@ the pooled curve. Precision, recall, F1 and accuracy are drawn only on request.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 
 from foldcorr.analysis.thresholds import THRESHOLD
 from foldcorr.errors import OptionError
 from foldcorr.report.plots.canvas import PALETTE, axes_for, finish
 from foldcorr.report.tables import plot_text
+
+if TYPE_CHECKING:
+    from collections.abc import Hashable, Sequence
+
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
+    from foldcorr.analysis.thresholds import SweepResult
 
 __all__ = ["MAX_POINTS", "COMPANIONS", "threshold_data", "threshold_plot"]
 
@@ -87,7 +97,9 @@ def threshold_data(result, *, label=None, companions=()) -> dict:
             "user": None if s.at_threshold is None else (s.at_threshold, s.mcc_at)}
 
 
-def threshold_plot(result, *, ax=None, label=None, companions=()):
+def threshold_plot(result: SweepResult, *, ax: Axes | None = None,
+                   label: Hashable | None = None,
+                   companions: Sequence[str] = ()) -> Axes | Figure:
     """Draw MCC against the threshold: pooled and per-fold curves, the optimum and the choices.
 
     Parameters
