@@ -186,7 +186,7 @@ def test_cli_groups_missing_class_is_one_line_exit_2(tmp_path, capsys):
     groups.write_text("class,group\n0,a\n1,a\n2,b\n")
     assert main(["score", str(table), "--groups", str(groups)]) == 2
     err = capsys.readouterr().err.strip()
-    assert err.count("\n") == 0 and "3, 4, 5, 6" in err and "--groups-other" in err
+    assert err.count("\n") == 0 and "'3', '4', '5', '6'" in err and "--groups-other" in err
     assert main(["score", str(table), "--groups", str(groups), "--groups-other", "rest",
                  "--format", "json"]) == 0
     doc = json.loads(capsys.readouterr().out)

@@ -95,7 +95,7 @@ def test_wide_class_table_drops_columns_by_priority_instead_of_continuing():
         assert title in header
     wide = render_text(score_report(ev), width=250)
     assert "(continued)" not in wide and "not shown at this width" not in wide
-    for title in ("precision", "fix both", "w/o class", "top-5 folds", "most often taken for"):
+    for title in ("precision", "fix both", "w/o class", "fold ranks", "most often taken for"):
         assert title in wide
 
 
