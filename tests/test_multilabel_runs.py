@@ -115,3 +115,13 @@ def test_multilabel_plots_and_html(tags, tmp_path, capsys):
     assert {p.stem for p in plots.iterdir()} >= {"loss_budget", "folds"}
     html = page.read_text()
     assert all(label in html for label in LABELS) and "<svg" in html
+
+
+def test_multilabel_run_refuses_class_groups_in_one_line(tags, tmp_path, capsys):
+    # groups merge classes; a multilabel run has none to merge, so the option is refused, not ignored
+    path, _ = tags
+    groups = tmp_path / "groups.csv"
+    groups.write_text("class,group\ngull,seabird\ntern,seabird\nauk,seabird\n")
+    code, out, err = run(capsys, "score", path, *PREFIXES, "--groups", groups)
+    assert code == 2 and out == ""
+    assert err.count("\n") == 1 and "multilabel" in err and "Traceback" not in err

@@ -106,6 +106,9 @@ def _intervals(ev, options, samples):
 def _groups(ev, options, samples):
     if options.groups is None:
         return ev
+    if ev.kind != "multiclass":
+        raise OptionError("class groups merge the classes of a multiclass evaluation; this one "
+                          f"is {ev.kind} (each label its own 2 x 2 table): drop the groups")
     from foldcorr.pipeline.groups import evaluate_groups
 
     return ev.with_extra("groups", evaluate_groups(ev, options.groups, other=options.groups_other,
@@ -116,7 +119,7 @@ def _groups(ev, options, samples):
 KINDS = {
     "multiclass": (("skipped_files", _skipped_files), ("shift", _shift), ("repair", _repair),
                    ("intervals", _intervals), ("groups", _groups)),
-    "multilabel": (("intervals", _intervals),),
+    "multilabel": (("intervals", _intervals), ("groups", _groups)),
 }
 
 
