@@ -278,6 +278,11 @@ def _f(value) -> str:
     return "0.000" if text == "-0.000" else text
 
 
+def _signed(value) -> str:
+    text = _f(value)
+    return text if text.startswith("-") or text in ("n/a", "0.000") else f"+{text}"
+
+
 def _listed(items: list[str], limit: int = 5) -> str:
     shown = "; ".join(items[:limit])
     return shown + (f"; and {len(items) - limit} more" if len(items) > limit else "")
@@ -528,7 +533,7 @@ def _drop_rule(ev, baseline, rules: GateRules, samples, baseline_samples):
     if rules.confidence is None:
         passed = _holds(drop, rules.max_drop, "<=")
         return RuleResult("max_drop", drop, rules.max_drop, "<=", passed,
-                          f"{head}; drop {_f(drop)}"), "plain", notes
+                          f"{head}; change {_signed(-drop)}"), "plain", notes
     from foldcorr.analysis.drop import drop_interval
 
     low, high, how, more = drop_interval(baseline.tensor, ev.tensor, shared,
@@ -539,9 +544,9 @@ def _drop_rule(ev, baseline, rules: GateRules, samples, baseline_samples):
     if not (math.isfinite(low) and math.isfinite(high)):
         passed = _holds(drop, rules.max_drop, "<=")
     level = f"{rules.confidence * 100:g}%"
-    detail = (f"{head}; drop {_f(drop)}, {level} interval {_f(low)} to {_f(high)} "
-              f"({how}, seed {rules.seed}); a regression only when the whole interval lies above "
-              f"{rules.max_drop:g}")
+    detail = (f"{head}; change {_signed(-drop)}, {level} interval {_signed(-high)} to "
+              f"{_signed(-low)} ({how}, seed {rules.seed}); a regression only when the whole "
+              f"interval lies below {_signed(-rules.max_drop)}")
     return (RuleResult("max_drop", drop, rules.max_drop, "<=", passed, detail,
                        interval=(low, high)),
             how.split()[0], notes + more)

@@ -345,7 +345,8 @@ def test_confidence_paired_interval_against_scipy(capsys, tmp_path):
     sigma = float(np.std(ref.bootstrap_distribution))
     tol = 4 * 2.67 * sigma * np.sqrt(1 / 2000 + 1 / 4000)
     assert abs(ours_low - low) < tol and abs(ours_high - high) < tol
-    assert f"interval {ours_low:.3f} to {ours_high:.3f}" in detail
+    # the detail speaks of the change (+ better), the negated drop
+    assert f"interval {-ours_high:+.3f} to {-ours_low:+.3f}" in detail
     assert "paired bootstrap on 500 shared samples" in detail
     # The whole interval lies above 0: a regression, exit 1.
     assert low > 0 and code == 1 and rule["passed"] is False
