@@ -335,7 +335,9 @@ def test_dash_reads_stdin_for_gate_compare_and_sweep(tmp_path, capsys, monkeypat
     df["other"] = df["predicted"].iloc[::-1].to_numpy()
     if verb[0] == "sweep":
         df = pd.DataFrame({"actual": (df["actual"] == df["actual"].iloc[0]).astype(int),
-                           "score": np.linspace(0, 1, len(df))})
+                           # multiples of 1/64: exact in binary and in short decimal text,
+                           # so every CSV parser reads the same float the Parquet file holds
+                           "score": (np.arange(len(df)) % 64) / 64})
     df.to_csv(tmp_path / "p.csv", index=False)
     assert main([v.format(tmp_path / "p.csv") for v in verb]) in (0, 1)
     want = json.loads(capsys.readouterr().out)
