@@ -24,7 +24,7 @@ from foldcorr.errors import LabelTypeWarning
 
 __all__ = ["DIRECT_MAX", "BOOL_TEXT", "LabelCoder", "arrow_kind", "settle_labels",
            "labels_as_text", "coerce_classes", "label_key", "series_kind", "compared_labels",
-           "reads_as_numbers"]
+           "reads_as_numbers", "arrow_text_codes"]
 
 #: Integer labels in [0, DIRECT_MAX) are their own codes (no hashing).
 DIRECT_MAX = 1 << 11
@@ -374,3 +374,59 @@ def coerce_classes(classes, kind: str) -> tuple:
         except (TypeError, ValueError):
             return tuple(classes)
     return tuple(classes)
+
+
+def arrow_text_codes(arrays) -> tuple[list, list] | None:
+    """Codes over one sorted class list when every label column holds Arrow text, else None.
+
+    Arrow-backed text (a pandas column of ``pd.ArrowDtype(pa.string())`` or
+    ``"string[pyarrow]"``, the default for text read from Parquet or CSV with
+    Arrow, or a pyarrow array) is dictionary-coded by Arrow itself, so no
+    Python string is made per row; nulls get the code -1. Label text is kept
+    as it is.
+
+    Examples
+    --------
+    >>> import pandas as pd, pyarrow as pa
+    >>> truth = pd.Series(["b", "a", None], dtype=pd.ArrowDtype(pa.string()))
+    >>> codes, labels = arrow_text_codes([truth, pa.array(["a", "a", "c"])])
+    >>> [c.tolist() for c in codes], labels
+    ([[1, 0, -1], [0, 0, 2]], ['a', 'b', 'c'])
+    >>> arrow_text_codes([["a"], ["b"]]) is None
+    True
+    """
+    columns = [_arrow_text(values) for values in arrays]
+    if any(c is None for c in columns):
+        return None
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    encoded = [pc.dictionary_encode(c) for c in columns]  # each column hashed once, by Arrow
+    encoded = [e.combine_chunks() if isinstance(e, pa.ChunkedArray) else e for e in encoded]
+    labels = sorted(set().union(*(e.dictionary.to_pylist() for e in encoded)))
+    union = pa.array(labels, type=pa.large_string())
+    codes = []
+    for enc in encoded:
+        lut = pc.index_in(enc.dictionary.cast(pa.large_string()), value_set=union).to_numpy()
+        lut = np.append(lut.astype(np.int64), -1)  # the null index -1 picks the last entry
+        codes.append(lut[pc.fill_null(enc.indices, -1).to_numpy()])
+    return codes, labels
+
+
+def _arrow_text(values):
+    """The Arrow array (or chunked array) of a text column held by Arrow, else None.
+
+    Columns of other types are told apart without importing pyarrow.
+    """
+    dtype = getattr(values, "dtype", None)
+    held_by_arrow = "pyarrow" in type(values).__module__ or "pyarrow" in str(dtype)
+    if not held_by_arrow:
+        return None
+    import pyarrow as pa
+
+    try:
+        arr = pa.array(values)  # zero-copy through the __arrow_array__ protocol
+    except (pa.ArrowInvalid, pa.ArrowTypeError, TypeError):
+        return None
+    typ = arr.type  # chunks stay apart: their dictionary codes are combined, not their text
+    return arr if pa.types.is_string(typ) or pa.types.is_large_string(typ) else None

@@ -18,6 +18,7 @@ import xarray as xr
 
 from foldcorr._version import __version__
 from foldcorr.errors import InvalidInputError
+from foldcorr.tensor.coding import arrow_text_codes
 from foldcorr.tensor.backing import DENSE_CELL_LIMIT, check_dense_size, count_sparse
 from foldcorr.tensor.dims import ACTUAL, COUNT, FOLD, PREDICTED, py_value, validate_tensor
 
@@ -280,9 +281,10 @@ def _encode_labels(arrays, names, classes):
         for name, values, c in zip(names, arrays, codes):
             _raise_unknown(name, values, c, labels)
         return codes, labels, True
-    for special in (_direct_codes, _categorical_codes):
+    for special in (_direct_codes, _categorical_codes, lambda a, _: arrow_text_codes(a)):
         found = special(arrays, names)
-        if found is not None:
+        if found is not None:  # categoricals and Arrow text can hold missing labels
+            _raise_missing(np.concatenate(found[0]), [len(c) for c in found[0]], names)
             return (*found, False)
     plain = [_plain(v) for v in arrays]
     if len({p.dtype.kind for p in plain}) > 1:  # keep 1 and "1" apart
@@ -441,9 +443,7 @@ def _categorical_codes(arrays, names):
         if not c.categories.equals(union):
             union = union.union(c.categories, sort=False)
     cats = [c if c.categories.equals(union) else c.set_categories(union) for c in cats]
-    codes = [c.codes.astype(np.int64) for c in cats]
-    _raise_missing(np.concatenate(codes), [len(c) for c in codes], names)
-    return codes, list(union)
+    return [c.codes.astype(np.int64) for c in cats], list(union)
 
 
 def _categorical(values):
