@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass, field
-from functools import partial
+from functools import cached_property, partial
 
 import numpy as np
 import xarray as xr
@@ -33,6 +33,7 @@ from foldcorr.tensor import (ACTUAL, FOLD, JOINT_DIMS, PREDICTED, ClusterCells, 
 from foldcorr.analysis.clustered import (
     ClusterStrata, check_cells, cluster_notes, dense_cells, same_samples, scatter,
     scatter_sparse,
+    sparse_cells,
 )
 from foldcorr.analysis.support import blank_thin_classes, thin_classes, thin_note
 from foldcorr.analysis.intervals import interval
@@ -213,10 +214,17 @@ class PairStrata:
         shape = (*([folds] if self.lead else []), k, k)
         dims = (RESAMPLE, *self.lead, ACTUAL, PREDICTED)
         if self.sparse:
-            return [xr.DataArray(scatter_sparse(draws, base + pred, shape), dims=dims,
-                                 coords=self.coords) for pred in (pa, pb)]
+            known = self.model_cells if flip is None else (None, None)  # flips move cells
+            return [xr.DataArray(scatter_sparse(draws, base + pred, shape, cells=c), dims=dims,
+                                 coords=self.coords) for pred, c in zip((pa, pb), known)]
         return [xr.DataArray(scatter(draws, base + pred, folds * k * k).reshape(size, *shape),
                              dims=dims, coords=self.coords) for pred in (pa, pb)]
+
+    @cached_property
+    def model_cells(self) -> list:
+        """Each model's cells as :func:`sparse_cells` finds them, once for every block."""
+        base = (self.strata.fold * self.k + self.actual) * self.k
+        return [sparse_cells(base + pred) for pred in (self.a, self.b)]
 
     @property
     def sparse(self) -> bool:
@@ -502,12 +510,13 @@ def _sparse_flips(rng, n, stat_rk, rows, k, coords) -> np.ndarray:
     coords = {ACTUAL: coords[ACTUAL], PREDICTED: coords[PREDICTED]}
     dims = (RESAMPLE, ACTUAL, PREDICTED)
     out = []
+    cells = [sparse_cells(np.r_[i * k + x, i * k + y]) for x, y in ((a, b), (b, a))]
     for size in resample_blocks(n, 4 * len(counts)):
         swapped = np.zeros((size, len(counts)), np.int64)
         swapped[:, off] = rng.binomial(counts[off], 0.5, size=(size, len(off)))
         kept = np.concatenate([counts[None] - swapped, swapped], axis=1)
-        ta, tb = (xr.DataArray(scatter_sparse(kept, np.r_[i * k + x, i * k + y], (k, k)),
-                               dims=dims, coords=coords) for x, y in ((a, b), (b, a)))
+        ta, tb = (xr.DataArray(scatter_sparse(kept, None, (k, k), cells=c),
+                               dims=dims, coords=coords) for c in cells)
         out.append((stat_rk(tb) - stat_rk(ta)).values)
     return np.concatenate(out) if out else np.zeros(0)
 
