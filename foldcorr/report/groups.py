@@ -7,7 +7,7 @@ their share of 1 - R_K with the class-table figures of the merged tensor.
 
 from __future__ import annotations
 
-from foldcorr.report.tables import Column, Table, format_value
+from foldcorr.report.tables import Column, Table, format_interval
 
 __all__ = ["KEY", "tables", "json", "levels_table", "level_table", "GROUP_FIGURES"]
 
@@ -27,8 +27,7 @@ def _interval_text(level) -> str:
     res = level.interval
     if res is None:
         return ""
-    return (f"[{format_value(float(res.low), 'metric')}, "
-            f"{format_value(float(res.high), 'metric')}]")
+    return format_interval(res.low, res.high)
 
 
 def levels_table(ev) -> Table:

@@ -15,10 +15,6 @@ __all__ = ["MANY_SCHEMA", "many_report", "many_dict", "many_document"]
 MANY_SCHEMA = "foldcorr.compare/2"
 
 
-def _interval(low, high) -> str:
-    return format_interval(float(low), float(high))
-
-
 def _py(value):
     return value.item() if hasattr(value, "item") else value
 
@@ -55,9 +51,10 @@ def many_report(mc, *, top: int | None = 20, source: str | None = None) -> Repor
                   f"{max(effects):.2f})" if effects else "")
         facts += (("clusters", f"{mc.n_clusters}{spread}"),)
     rows = tuple(
-        (name, float(r["rk"].values[i]), _interval(r["low"].values[i], r["high"].values[i]))
+        (name, float(r["rk"].values[i]), format_interval(r["low"].values[i], r["high"].values[i]))
         + ((0.0, "", "", "(best)") if name == str(mc.best) else
-           (float(r["gap"].values[i]), _interval(r["gap_low"].values[i], r["gap_high"].values[i]),
+           (float(r["gap"].values[i]),
+            format_interval(r["gap_low"].values[i], r["gap_high"].values[i]),
             format_p(r["p_adjusted"].values[i]), "yes" if bool(r["separated"].values[i]) else "no"))
         for i, name in enumerate(models))
     ranking = Table(
@@ -91,7 +88,7 @@ def _winners(mc, top, lvl) -> Table:
                                             -abs(float(pc["margin"].values[i]) or 0.0)))
     rows = tuple(
         (classes[i], str(_py(pc["winner"].values[i])), str(_py(pc["runner_up"].values[i])),
-         float(pc["margin"].values[i]), _interval(pc["low"].values[i], pc["high"].values[i]),
+         float(pc["margin"].values[i]), format_interval(pc["low"].values[i], pc["high"].values[i]),
          "yes" if bool(pc["told"].values[i]) else "no")
         for i in order[:shown])
     return Table(
